@@ -1,0 +1,68 @@
+"""The exceptions a user can cause, and the exit codes the command line maps them to.
+
+Everything derived from :class:`UserError` is printed without a traceback; anything else
+is reported as an internal error.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+EXIT_OK = 0
+EXIT_USAGE = 2  # click's own code for a bad command line
+EXIT_INPUT = 3  # manifest or rig data rejected
+EXIT_BUILD = 4  # a stage could not produce a trustworthy result (e.g. a fit failed)
+EXIT_INTERNAL = 70  # a bug: please report it
+
+
+class UserError(Exception):
+    """A problem with what the user supplied; printed as-is, no traceback."""
+
+    exit_code = EXIT_INPUT
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One located complaint: where, and what is wrong there."""
+
+    location: str
+    message: str
+
+    def __str__(self) -> str:
+        return f"{self.location}: {self.message}"
+
+
+class ManifestError(UserError):
+    """The manifest failed validation; carries every problem found, not just the first."""
+
+    def __init__(self, manifest_path: str, problems: list[Problem]):
+        self.manifest_path = manifest_path
+        self.problems = list(problems)
+        lines = [f"{manifest_path}: {len(self.problems)} problem(s) in the manifest"]
+        lines += [f"  {p}" for p in self.problems]
+        super().__init__("\n".join(lines))
+
+
+class RigDataError(UserError):
+    """A rig data file could not be read; names the file and, where known, line and column."""
+
+    def __init__(self, file: str, message: str, line: int | None = None, column: str | None = None):
+        where = file
+        if line is not None:
+            where += f", line {line}"
+        if column is not None:
+            where += f", column '{column}'"
+        self.file, self.line, self.column = file, line, column
+        super().__init__(f"{where}: {message}")
+
+
+class StageError(UserError):
+    """A pipeline stage could not produce a result it would stand behind."""
+
+    exit_code = EXIT_BUILD
+
+
+class OutputError(UserError):
+    """The output folder cannot be written without risking the user's own files."""
+
+    exit_code = EXIT_BUILD

@@ -1,0 +1,137 @@
+"""Ingest: read a lab's rig file into internal units and the internal (ISO 8855) axes.
+
+This is the only stage that reads rig files. It accepts CSV-like text with ``,``, ``;`` or tab
+separators and ``.`` or ``,`` decimal marks, maps the manifest's column names to channels,
+converts units (:mod:`dossier.units`) and signs (:mod:`dossier.axes`), and refuses anything
+it cannot read with the file, line and column named.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import axes, units
+from .errors import RigDataError
+from .manifest import CHANNELS, RunSpec
+
+MAX_FILE_BYTES = 200 * 1024 * 1024  # refuse absurd inputs before reading them into memory
+
+
+@dataclass(frozen=True)
+class RigRun:
+    """One rig file, read: channels in internal units and axes, one row per sample."""
+
+    spec: RunSpec
+    sha256: str
+    channels: dict[str, np.ndarray]  # channel -> values (internal units, ISO 8855)
+    line_numbers: np.ndarray  # 1-based line in the file of each sample, for provenance
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.line_numbers.size)
+
+
+def read_run(project_dir: Path, spec: RunSpec) -> RigRun:
+    """Read the rig file of `spec` (relative to `project_dir`) into a :class:`RigRun`."""
+    path = Path(project_dir) / spec.file
+    shown = spec.file
+    try:
+        size = path.stat().st_size
+        if size > MAX_FILE_BYTES:
+            raise RigDataError(shown, f"file is {size / 1e6:.0f} MB; the limit is {MAX_FILE_BYTES / 1e6:.0f} MB")
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise RigDataError(shown, f"cannot be read: {exc.strerror}") from None
+    digest = hashlib.sha256(raw).hexdigest()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = raw.decode("latin-1")  # labs' tools often write Windows-1252 headers (e.g. '°')
+    channels, lines = parse_table(text, spec, shown)
+    return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines)
+
+
+def parse_table(text: str, spec: RunSpec, shown: str) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """Parse rig-file text per `spec`; return internal channels and source line numbers."""
+    rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
+    if len(rows) < spec.header_line:
+        raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(rows)} line(s)")
+    header = [h.strip() for h in rows[spec.header_line - 1]]
+    index: dict[str, int] = {}
+    for channel, col in spec.columns.items():
+        matches = [i for i, h in enumerate(header) if h == col.name]
+        if not matches:
+            raise RigDataError(shown, f"no column named {col.name!r} for channel '{channel}' "
+                               f"(manifest {spec.location}.columns.{channel}.name); header has: {', '.join(header)}",
+                               line=spec.header_line)
+        if len(matches) > 1:
+            raise RigDataError(shown, f"column name {col.name!r} appears {len(matches)} times in the header",
+                               line=spec.header_line)
+        index[channel] = matches[0]
+
+    first = spec.header_line + spec.skip_after_header  # 0-based index of the first data row
+    values = {ch: [] for ch in index}
+    lines: list[int] = []
+    for row_i in range(first, len(rows)):
+        row = rows[row_i]
+        line_no = row_i + 1
+        if not any(cell.strip() for cell in row) or row[0].lstrip().startswith("#"):
+            continue
+        if len(row) < len(header):
+            raise RigDataError(shown, f"expected {len(header)} fields; found {len(row)} (truncated line?)", line=line_no)
+        for ch, col_i in index.items():
+            values[ch].append(_number(row[col_i], spec.decimal, shown, line_no, header[col_i]))
+        lines.append(line_no)
+    if not lines:
+        raise RigDataError(shown, "has a header but no data rows")
+
+    channels: dict[str, np.ndarray] = {}
+    for ch, vals in values.items():
+        arr = np.asarray(vals, dtype=float) * units.factor_to_internal(CHANNELS[ch], spec.columns[ch].unit)
+        arr = axes.to_internal(ch, arr, spec.axis_convention)
+        arr.setflags(write=False)
+        channels[ch] = arr
+    line_arr = np.asarray(lines, dtype=np.int64)
+    line_arr.setflags(write=False)
+    _check_plausible(channels, line_arr, spec, shown)
+    return channels, line_arr
+
+
+def _number(cell: str, decimal: str, shown: str, line: int, column: str) -> float:
+    s = cell.strip()
+    if decimal == ",":
+        s = s.replace(",", ".")
+    try:
+        value = float(s)
+    except ValueError:
+        raise RigDataError(shown, f"expected a number with decimal mark {decimal!r}; found {cell!r}",
+                           line=line, column=column) from None
+    if not math.isfinite(value):
+        raise RigDataError(shown, f"expected a finite number; found {cell!r}", line=line, column=column)
+    return value
+
+
+def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: RunSpec, shown: str) -> None:
+    """Stop data that are probably in the wrong sign convention or unit, saying what was likely meant."""
+    fz = channels["fz"]
+    if np.median(fz) < 0:
+        other = axes.ISO_8855 if spec.axis_convention == axes.SAE_J670 else axes.SAE_J670
+        raise RigDataError(shown, f"normal load is negative after converting from {spec.axis_convention} "
+                           f"(median {np.median(fz):.0f} N); the file is probably in {other} "
+                           f"(manifest {spec.location}.axis_convention)")
+    t = channels["time"]
+    if t.size > 1 and np.any(np.diff(t) < 0):
+        bad = int(np.argmax(np.diff(t) < 0)) + 1
+        raise RigDataError(shown, "time goes backwards; rows must be in recording order",
+                           line=int(lines[bad]), column=spec.columns["time"].name)
+    span = float(np.ptp(channels["slip_angle"]))
+    if span < 1.0 and spec.columns["slip_angle"].unit == "deg":
+        raise RigDataError(shown, f"slip angle spans only {span:.3f} deg; the column is probably in radians "
+                           f"(manifest {spec.location}.columns.slip_angle.unit)")

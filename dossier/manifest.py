@@ -1,0 +1,472 @@
+"""The project manifest (``dossier.toml``): its schema, validation and typed result.
+
+The schema is declared once, as data (:data:`MANIFEST_SCHEMA`). Validation walks the TOML
+document against it and collects *every* problem with its key path
+(``runs[1].columns.fy.unit: unknown unit 'klbf'; expected one of N, kN, lbf, kgf``) before
+anything is built. Unknown keys are errors, with a spelling suggestion.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import difflib
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
+from typing import Any, Callable
+
+from . import axes, units
+from .errors import ManifestError, Problem
+
+MANIFEST_NAME = "dossier.toml"
+ROLES = ("baseline", "candidate", "control")
+
+# Channels a rig file may carry: channel -> quantity (for its unit).
+CHANNELS: dict[str, str] = {
+    "time": "time",
+    "slip_angle": "angle",
+    "inclination": "angle",
+    "slip_ratio": "slip_ratio",
+    "fz": "force",
+    "fy": "force",
+    "fx": "force",
+    "mz": "moment",
+    "mx": "moment",
+    "my": "moment",
+    "pressure": "pressure",
+    "speed": "speed",
+}
+REQUIRED_CHANNELS = ("time", "slip_angle", "fz", "fy")
+
+
+# ---------------------------------------------------------------------------------------------
+# Declarative schema: a handful of node types, each validating one value at one key path.
+# ---------------------------------------------------------------------------------------------
+
+Checker = Callable[[Any, str, list[Problem]], Any]
+
+
+def _type_name(value: Any) -> str:
+    return {str: "a string", int: "an integer", float: "a number", bool: "true/false",
+            list: "a list", dict: "a table", dt.date: "a date"}.get(type(value), type(value).__name__)
+
+
+@dataclass(frozen=True)
+class Text:
+    """A non-empty string."""
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, str) or not value.strip():
+            problems.append(Problem(path, f"must be a non-empty string; got {_shown(value)}"))
+            return None
+        return value.strip()
+
+
+@dataclass(frozen=True)
+class Choice:
+    """One of a fixed set of strings."""
+
+    options: tuple[str, ...]
+
+    def __call__(self, value, path, problems):
+        if value not in self.options:
+            hint = _suggest(value, self.options) if isinstance(value, str) else ""
+            problems.append(Problem(path, f"must be one of {', '.join(self.options)}; got {_shown(value)}{hint}"))
+            return None
+        return value
+
+
+@dataclass(frozen=True)
+class Number:
+    """A finite number, optionally within [minimum, maximum]."""
+
+    minimum: float | None = None
+    maximum: float | None = None
+    exclusive_minimum: bool = False
+
+    def __call__(self, value, path, problems):
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value or value in (float("inf"), float("-inf")):
+            problems.append(Problem(path, f"must be a finite number; got {_shown(value)}"))
+            return None
+        if self.minimum is not None and (value < self.minimum or (self.exclusive_minimum and value == self.minimum)):
+            op = ">" if self.exclusive_minimum else ">="
+            problems.append(Problem(path, f"must be {op} {self.minimum:g}; got {value!r}"))
+            return None
+        if self.maximum is not None and value > self.maximum:
+            problems.append(Problem(path, f"must be <= {self.maximum:g}; got {value!r}"))
+            return None
+        return float(value)
+
+
+@dataclass(frozen=True)
+class Integer:
+    minimum: int = 0
+
+    def __call__(self, value, path, problems):
+        if isinstance(value, bool) or not isinstance(value, int) or value < self.minimum:
+            problems.append(Problem(path, f"must be an integer >= {self.minimum}; got {_shown(value)}"))
+            return None
+        return value
+
+
+@dataclass(frozen=True)
+class Date:
+    def __call__(self, value, path, problems):
+        if isinstance(value, dt.datetime):
+            return value.date()
+        if isinstance(value, dt.date):
+            return value
+        problems.append(Problem(path, f"must be a TOML date such as 2026-11-20; got {_shown(value)}"))
+        return None
+
+
+@dataclass(frozen=True)
+class Unit:
+    """A unit spelling accepted for `quantity` (see :mod:`dossier.units`)."""
+
+    quantity: str
+
+    def __call__(self, value, path, problems):
+        accepted = units.accepted_units(self.quantity)
+        if value not in accepted:
+            hint = _suggest(value, accepted) if isinstance(value, str) else ""
+            problems.append(Problem(path, f"unknown unit {_shown(value)} for {self.quantity}; expected one of {', '.join(accepted)}{hint}"))
+            return None
+        return value
+
+
+@dataclass(frozen=True)
+class RelativePath:
+    """A path inside the project folder, written relative to the manifest."""
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, str) or not value.strip():
+            problems.append(Problem(path, f"must be a file path relative to the project folder; got {_shown(value)}"))
+            return None
+        posix = PurePosixPath(value.replace("\\", "/"))
+        if posix.is_absolute() or ":" in posix.parts[0] or ".." in posix.parts:
+            problems.append(Problem(path, f"must stay inside the project folder (relative, no '..'); got {value!r}"))
+            return None
+        return str(posix)
+
+
+@dataclass(frozen=True)
+class ListOf:
+    item: Checker
+    min_items: int = 0
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, list):
+            problems.append(Problem(path, f"must be a list; got {_shown(value)}"))
+            return None
+        if len(value) < self.min_items:
+            problems.append(Problem(path, f"must have at least {self.min_items} item(s); got {len(value)}"))
+        return [self.item(v, f"{path}[{i}]", problems) for i, v in enumerate(value)]
+
+
+@dataclass(frozen=True)
+class Key:
+    checker: Checker
+    required: bool = True
+    default: Any = None
+    help: str = ""
+
+
+@dataclass(frozen=True)
+class Table:
+    """A TOML table with known keys; unknown keys are errors with a suggestion."""
+
+    keys: dict[str, Key]
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, dict):
+            problems.append(Problem(path, f"must be a table; got {_shown(value)}"))
+            return None
+        out = {}
+        for name in value:
+            if name not in self.keys:
+                problems.append(Problem(_join(path, name), f"unknown key{_suggest(name, list(self.keys))}"))
+        for name, key in self.keys.items():
+            if name in value:
+                out[name] = key.checker(value[name], _join(path, name), problems)
+            elif key.required:
+                problems.append(Problem(_join(path, name), "is required" + (f" ({key.help})" if key.help else "")))
+                out[name] = None
+            else:
+                out[name] = key.default
+        return out
+
+
+@dataclass(frozen=True)
+class MapOf:
+    """A table whose keys are chosen from `allowed` and whose values share one checker per key."""
+
+    allowed: dict[str, Checker]
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, dict):
+            problems.append(Problem(path, f"must be a table; got {_shown(value)}"))
+            return None
+        out = {}
+        for name, item in value.items():
+            if name not in self.allowed:
+                problems.append(Problem(_join(path, name), f"unknown channel{_suggest(name, list(self.allowed))}; channels are {', '.join(self.allowed)}"))
+                continue
+            out[name] = self.allowed[name](item, _join(path, name), problems)
+        return out
+
+
+def _join(path: str, name: str) -> str:
+    return f"{path}.{name}" if path else name
+
+
+def _shown(value: Any) -> str:
+    if isinstance(value, str):
+        return repr(value)
+    if isinstance(value, (dict, list)):
+        return _type_name(value)
+    return f"{_type_name(value)} {value!r}"
+
+
+def _suggest(word: str, options) -> str:
+    close = difflib.get_close_matches(str(word), list(options), n=1, cutoff=0.6)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def _column(quantity: str) -> Table:
+    return Table({
+        "name": Key(Text(), help="the column's header text in the file"),
+        "unit": Key(Unit(quantity)),
+    })
+
+
+MANIFEST_SCHEMA = Table({
+    "document": Key(Table({
+        "title": Key(Text()),
+        "number": Key(Text(), help="the document number, e.g. 'NTC-EVD-0001'"),
+        "revision": Key(Text()),
+        "customer": Key(Text()),
+        "program": Key(Text(), help="the vehicle program"),
+        "supplier": Key(Text(), required=False),
+        "authors": Key(ListOf(Text(), min_items=1)),
+        "date": Key(Date()),
+    })),
+    "specimens": Key(ListOf(Table({
+        "id": Key(Text()),
+        "role": Key(Choice(ROLES)),
+        "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
+        "construction": Key(Text(), required=False, default=""),
+        "rated_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+    }), min_items=1)),
+    "runs": Key(ListOf(Table({
+        "specimen": Key(Text()),
+        "file": Key(RelativePath()),
+        "lab": Key(Text(), required=False, default=""),
+        "axis_convention": Key(Choice(axes.CONVENTIONS)),
+        "delimiter": Key(Choice((",", ";", "\t")), required=False, default=","),
+        "decimal": Key(Choice((".", ",")), required=False, default="."),
+        "header_line": Key(Integer(minimum=1), required=False, default=1),
+        "skip_after_header": Key(Integer(minimum=0), required=False, default=0),
+        "columns": Key(MapOf({name: _column(q) for name, q in CHANNELS.items()})),
+        "load_setpoints": Key(Table({
+            "values": Key(ListOf(Number(minimum=0, exclusive_minimum=True), min_items=1)),
+            "unit": Key(Unit("force")),
+        }), help="nominal normal loads of the run, e.g. { values = [2, 4, 6], unit = 'kN' }"),
+        "camber_setpoints_deg": Key(ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False, default=[0.0]),
+        "pressure": Key(Table({
+            "value": Key(Number(minimum=0, exclusive_minimum=True)),
+            "unit": Key(Unit("pressure")),
+        }), help="the nominal inflation pressure of the run"),
+    }), min_items=1)),
+    "conditioning": Key(Table({
+        "settling_s": Key(Number(minimum=0), required=False, default=1.0),
+        "load_tolerance_pct": Key(Number(minimum=0.5, maximum=50), required=False, default=8.0),
+        "camber_tolerance_deg": Key(Number(minimum=0.01, maximum=5), required=False, default=0.3),
+        "slip_bin_deg": Key(Number(minimum=0.05, maximum=2), required=False, default=0.5),
+        "min_samples_per_bin": Key(Integer(minimum=1), required=False, default=3),
+        "spike_threshold_mad": Key(Number(minimum=2), required=False, default=6.0),
+    }), required=False, default=None),
+    "fit": Key(Table({
+        "nominal_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "loss": Key(Choice(("linear", "soft_l1", "huber")), required=False, default="soft_l1"),
+        "max_evaluations": Key(Integer(minimum=50), required=False, default=4000),
+    }), required=False, default=None),
+})
+
+
+# ---------------------------------------------------------------------------------------------
+# Typed result
+# ---------------------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class DocumentInfo:
+    title: str
+    number: str
+    revision: str
+    customer: str
+    program: str
+    supplier: str | None
+    authors: tuple[str, ...]
+    date: dt.date
+
+
+@dataclass(frozen=True)
+class Specimen:
+    id: str
+    role: str
+    size: str
+    construction: str
+    rated_load_n: float | None
+
+
+@dataclass(frozen=True)
+class ColumnSpec:
+    name: str
+    unit: str
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    index: int
+    specimen: str
+    file: str  # relative to the project folder, POSIX separators
+    lab: str
+    axis_convention: str
+    delimiter: str
+    decimal: str
+    header_line: int
+    skip_after_header: int
+    columns: dict[str, ColumnSpec]
+    load_setpoints_n: tuple[float, ...]
+    camber_setpoints_deg: tuple[float, ...]
+    pressure_kpa: float
+
+    @property
+    def location(self) -> str:
+        return f"runs[{self.index}]"
+
+
+@dataclass(frozen=True)
+class ConditioningSettings:
+    settling_s: float = 1.0
+    load_tolerance_pct: float = 8.0
+    camber_tolerance_deg: float = 0.3
+    slip_bin_deg: float = 0.5
+    min_samples_per_bin: int = 3
+    spike_threshold_mad: float = 6.0
+
+
+@dataclass(frozen=True)
+class FitSettings:
+    nominal_load_n: float | None = None
+    loss: str = "soft_l1"
+    max_evaluations: int = 4000
+
+
+@dataclass(frozen=True)
+class Manifest:
+    project_dir: Path
+    document: DocumentInfo
+    specimens: tuple[Specimen, ...]
+    runs: tuple[RunSpec, ...]
+    conditioning: ConditioningSettings = field(default_factory=ConditioningSettings)
+    fit: FitSettings = field(default_factory=FitSettings)
+
+    def specimen(self, specimen_id: str) -> Specimen:
+        return next(s for s in self.specimens if s.id == specimen_id)
+
+
+def load_manifest(project_dir: Path) -> Manifest:
+    """Read and validate ``dossier.toml`` in `project_dir`; raise ManifestError listing every problem."""
+    project_dir = Path(project_dir)
+    path = project_dir / MANIFEST_NAME
+    shown = str(path)
+    if not project_dir.is_dir():
+        raise ManifestError(str(project_dir), [Problem("project", "is not a folder")])
+    if not path.is_file():
+        raise ManifestError(shown, [Problem(MANIFEST_NAME, f"not found in {project_dir}; a project folder needs one")])
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    except UnicodeDecodeError as exc:
+        raise ManifestError(shown, [Problem("file", f"is not UTF-8 text ({exc.reason} at byte {exc.start})")]) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ManifestError(shown, [Problem("TOML syntax", str(exc))]) from None
+    return parse_manifest(raw, project_dir, shown)
+
+
+def parse_manifest(raw: dict, project_dir: Path, shown: str = MANIFEST_NAME) -> Manifest:
+    """Validate a parsed TOML document against the schema and the cross-references."""
+    problems: list[Problem] = []
+    data = MANIFEST_SCHEMA(raw, "", problems)
+    if data is not None:
+        _check_references(data, project_dir, problems)
+    if problems:
+        raise ManifestError(shown, problems)
+    return _build(data, project_dir)
+
+
+def _check_references(data: dict, project_dir: Path, problems: list[Problem]) -> None:
+    specimens = data.get("specimens") or []
+    ids = [s["id"] for s in specimens if s and s.get("id")]
+    seen: set[str] = set()
+    for i, s in enumerate(specimens):
+        if s and s.get("id") in seen:
+            problems.append(Problem(f"specimens[{i}].id", f"duplicate specimen id {s['id']!r}"))
+        if s and s.get("id"):
+            seen.add(s["id"])
+    baselines = [s for s in specimens if s and s.get("role") == "baseline"]
+    if specimens and len(baselines) > 1:
+        problems.append(Problem("specimens", f"at most one specimen may have role 'baseline'; got {len(baselines)}"))
+    root = project_dir.resolve()
+    for i, run in enumerate(data.get("runs") or []):
+        if not run:
+            continue
+        sid = run.get("specimen")
+        if sid and ids and sid not in ids:
+            problems.append(Problem(f"runs[{i}].specimen", f"no specimen with id {sid!r}{_suggest(sid, ids)}; known ids: {', '.join(ids)}"))
+        columns = run.get("columns") or {}
+        if run.get("columns") is not None:
+            for ch in REQUIRED_CHANNELS:
+                if ch not in columns:
+                    problems.append(Problem(f"runs[{i}].columns.{ch}", f"is required (a rig file needs {', '.join(REQUIRED_CHANNELS)})"))
+        if run.get("delimiter") and run.get("decimal") and run["delimiter"] == run["decimal"]:
+            problems.append(Problem(f"runs[{i}].decimal", f"cannot equal the delimiter {run['delimiter']!r}"))
+        rel = run.get("file")
+        if rel:
+            target = (project_dir / rel)
+            try:
+                resolved = target.resolve()
+            except OSError:
+                resolved = target
+            if not resolved.is_relative_to(root):
+                problems.append(Problem(f"runs[{i}].file", f"resolves outside the project folder (symbolic link?): {rel!r}"))
+            elif not target.is_file():
+                problems.append(Problem(f"runs[{i}].file", f"file not found: {rel!r} (paths are relative to the manifest's folder)"))
+    used = {r.get("specimen") for r in (data.get("runs") or []) if r}
+    for i, s in enumerate(specimens):
+        if s and s.get("id") and s["id"] not in used and data.get("runs"):
+            problems.append(Problem(f"specimens[{i}]", f"specimen {s['id']!r} has no rig run; add a [[runs]] entry or remove it"))
+
+
+def _build(data: dict, project_dir: Path) -> Manifest:
+    d = data["document"]
+    document = DocumentInfo(d["title"], d["number"], d["revision"], d["customer"], d["program"],
+                            d["supplier"], tuple(d["authors"]), d["date"])
+    specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"])
+                      for s in data["specimens"])
+    runs = []
+    for i, r in enumerate(data["runs"]):
+        force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
+        pressure_factor = units.factor_to_internal("pressure", r["pressure"]["unit"])
+        runs.append(RunSpec(
+            index=i, specimen=r["specimen"], file=r["file"], lab=r["lab"] or "",
+            axis_convention=r["axis_convention"], delimiter=r["delimiter"], decimal=r["decimal"],
+            header_line=r["header_line"], skip_after_header=r["skip_after_header"],
+            columns={k: ColumnSpec(v["name"], v["unit"]) for k, v in r["columns"].items()},
+            load_setpoints_n=tuple(v * force_factor for v in r["load_setpoints"]["values"]),
+            camber_setpoints_deg=tuple(r["camber_setpoints_deg"]),
+            pressure_kpa=r["pressure"]["value"] * pressure_factor,
+        ))
+    cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
+    fit = FitSettings(**data["fit"]) if data.get("fit") else FitSettings()
+    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit)

@@ -1,0 +1,59 @@
+"""The writer: the only stage that writes. Atomic, and never deletes what the user made.
+
+The whole dossier is written into a fresh temporary folder beside the target, then swapped in.
+An existing target is replaced only if it carries our marker file (so it is a previous build);
+anything else there is refused, not deleted.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+from .errors import OutputError
+
+MARKER = ".dossier-output"
+
+
+def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
+    """Write `files` (relative path -> bytes) as the folder `out_dir`, atomically."""
+    out_dir = Path(out_dir)
+    if out_dir.exists():
+        if not out_dir.is_dir():
+            raise OutputError(f"{out_dir}: exists and is not a folder; choose another --out")
+        if any(out_dir.iterdir()) and not (out_dir / MARKER).is_file():
+            raise OutputError(f"{out_dir}: folder exists, is not empty and was not made by dossier "
+                              f"(no {MARKER} file); choose another --out. Nothing was changed.")
+    parent = out_dir.parent
+    parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))
+    try:
+        for rel, data in sorted(files.items()):
+            target = tmp / rel
+            target.parent.mkdir(parents=True, exist_ok=True)
+            target.write_bytes(data)
+        (tmp / MARKER).write_text("Made by dossier. This folder is replaced by the next build.\n", encoding="utf-8")
+        _swap(tmp, out_dir)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+
+
+def _swap(new: Path, target: Path) -> None:
+    if not target.exists():
+        os.replace(new, target)
+        return
+    old = target.with_name(f".{target.name}.previous")
+    if old.exists():
+        shutil.rmtree(old)  # left by an interrupted swap; it is ours (it was renamed from a marked build)
+    os.replace(target, old)
+    os.replace(new, target)
+    shutil.rmtree(old, ignore_errors=True)
+
+
+def json_bytes(data) -> bytes:
+    """Serialise `data` the same way every time (sorted keys would reorder records; keep order)."""
+    return (json.dumps(data, indent=2, ensure_ascii=False) + "\n").encode("utf-8")

@@ -1,0 +1,197 @@
+"""Render: one typed context, the theme's templates, an HTML site and a PDF from the same pages.
+
+Pure apart from reading templates: returns file contents (bytes) keyed by output path; the
+writer puts them on disk. Number formatting lives in the registered filters below, not in
+templates. The PDF is rendered by WeasyPrint from the same section templates as the site, with
+the theme's print CSS; its URL fetcher serves only the files of this build and fetches nothing
+from the network or the disk.
+"""
+
+from __future__ import annotations
+
+import math
+import mimetypes
+from dataclasses import dataclass
+from pathlib import Path
+from urllib.parse import urljoin
+
+import jinja2
+import weasyprint
+from weasyprint.urls import URLFetcher, URLFetcherResponse
+
+from . import __version__, axes
+from .cautions import CAUTIONS, CAUTIONS_ID
+from .condition import ConditioningAccount
+from .errors import StageError
+from .figures import FigureArtifact
+from .fit import LateralFit
+from .manifest import Manifest, Specimen
+from .metrics import METRICS, MetricDefinition, MetricValue
+from .theme import STATIC_FILES, Theme
+
+SITE_BASE_URL = "https://dossier.invalid/site/"  # never fetched: the fetcher serves from memory
+
+DECIMALS = {"N/deg": 0, "1/deg": 4, "1": 3, "deg": 2}
+
+
+@dataclass(frozen=True)
+class SpecimenView:
+    specimen: Specimen
+    page: str
+    accounts: tuple[ConditioningAccount, ...]
+    fit: LateralFit | None
+    metrics: tuple[MetricValue, ...]
+    figures: tuple[FigureArtifact, ...]
+
+
+@dataclass(frozen=True)
+class DossierContext:
+    """Everything a template may use. Templates get this one object as ``d``."""
+
+    manifest: Manifest
+    software_version: str
+    axis_convention: str
+    specimens: tuple[SpecimenView, ...]
+    summary_figures: tuple[FigureArtifact, ...]
+    metric_definitions: tuple[MetricDefinition, ...]
+    cautions: tuple[tuple[str, str], ...]
+    cautions_id: str
+    nominal_load_n: float
+
+    @property
+    def document(self):
+        return self.manifest.document
+
+    def summary_metrics(self, specimen_id: str) -> list[MetricValue]:
+        """Metrics of a specimen at the nominal load, in registry order."""
+        view = next(v for v in self.specimens if v.specimen.id == specimen_id)
+        return [m for m in view.metrics if math.isclose(m.load_n, self.nominal_load_n)]
+
+
+def make_context(manifest: Manifest, accounts, fits, metrics, specimen_figures, summary_figures,
+                 nominal_load_n: float) -> DossierContext:
+    views = []
+    for s in manifest.specimens:
+        views.append(SpecimenView(
+            specimen=s, page=f"specimen-{_slug(s.id)}.html",
+            accounts=tuple(a for a in accounts if a.specimen == s.id),
+            fit=next((f for f in fits if f.specimen == s.id), None),
+            metrics=tuple(m for m in metrics if m.specimen == s.id),
+            figures=tuple(specimen_figures.get(s.id, ())),
+        ))
+    return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
+                          tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n)
+
+
+# --- filters ---------------------------------------------------------------------------------
+
+def _fmt_metric(value: float | None, unit: str) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:,.{DECIMALS.get(unit, 3)}f}".replace(",", "\u2009")
+
+
+def _fmt_ci(ci, unit: str) -> str:
+    if not ci:
+        return "not estimable"
+    return f"{_fmt_metric(ci[0], unit)} … {_fmt_metric(ci[1], unit)}"
+
+
+def _fmt_sig(value: float | None, digits: int = 4) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:.{digits}g}"
+
+
+def _fmt_kn(value_n: float) -> str:
+    return f"{value_n / 1000:.1f}"
+
+
+def _metric_label(name: str) -> str:
+    return METRICS[name].label
+
+
+def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Environment:
+    search = ([str(project_templates)] if project_templates and project_templates.is_dir() else [])
+    search += [str(f) for f in theme.folders]
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(search),
+        autoescape=True,  # every manifest string is escaped
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+    env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, metric_label=_metric_label)
+    env.globals.update(options=theme.options)
+    return env
+
+
+def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme) -> dict[str, bytes]:
+    """Return the site's files, keyed by path relative to the site folder."""
+    files: dict[str, bytes] = {}
+    files["index.html"] = _page(env, "index.html", ctx, current="index.html")
+    for view in ctx.specimens:
+        files[view.page] = _page(env, "specimen.html", ctx, current=view.page, view=view)
+    for fig in ctx.summary_figures:
+        files[f"figures/{fig.filename}"] = fig.svg
+    for view in ctx.specimens:
+        for fig in view.figures:
+            files[f"figures/{fig.filename}"] = fig.svg
+    for name in STATIC_FILES:
+        path = theme.find(name)
+        if path is not None:
+            files[f"static/{name}"] = path.read_bytes()
+    _require_cautions(files)
+    return files
+
+
+def render_pdf(ctx: DossierContext, env: jinja2.Environment, site_files: dict[str, bytes]) -> bytes:
+    """Render the whole dossier as one PDF from the print template and the site's files."""
+    html = _page(env, "print.html", ctx, current="print.html")
+    _require_cautions({"print.html": html})
+    fetcher = _BuildFetcher(site_files)
+    document = weasyprint.HTML(string=html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
+    pdf = document.write_pdf(pdf_identifier=ctx.document.number.encode("utf-8"), uncompressed_pdf=False)
+    if fetcher.refused:
+        raise StageError("the PDF asked for resources outside this build, refused: " + ", ".join(sorted(fetcher.refused)))
+    return pdf
+
+
+def _page(env, template: str, ctx: DossierContext, **extra) -> bytes:
+    try:
+        return env.get_template(template).render(d=ctx, **extra).encode("utf-8")
+    except jinja2.TemplateError as exc:
+        where = getattr(exc, "filename", None) or template
+        line = getattr(exc, "lineno", None)
+        raise StageError(f"template {where}{f', line {line}' if line else ''}: {exc}") from None
+
+
+def _require_cautions(files: dict[str, bytes]) -> None:
+    marker = f'id="{CAUTIONS_ID}"'.encode()
+    pages = [name for name in files if name.endswith(".html")]
+    missing = [name for name in pages if marker not in files[name] and name in ("index.html", "print.html")]
+    if missing:
+        raise StageError(f"the theme's {', '.join(missing)} lacks the safety cautions block (id '{CAUTIONS_ID}'); "
+                         "every dossier must carry it")
+
+
+class _BuildFetcher(URLFetcher):
+    """Serve only this build's files; refuse every other URL (network, disk, data)."""
+
+    def __init__(self, files: dict[str, bytes]):
+        super().__init__(allowed_protocols=())
+        self.files = files
+        self.refused: set[str] = set()
+
+    def fetch(self, url, headers=None):
+        if url.startswith(SITE_BASE_URL):
+            rel = url[len(SITE_BASE_URL):].split("#")[0].split("?")[0]
+            if rel in self.files:
+                mime = mimetypes.guess_type(rel)[0] or "application/octet-stream"
+                return URLFetcherResponse(url, self.files[rel], {"Content-Type": mime})
+        self.refused.add(url)
+        raise ValueError(f"refused: {url}")
+
+
+def _slug(text: str) -> str:
+    return "".join(ch.lower() if ch.isalnum() else "-" for ch in text).strip("-")
