@@ -1,0 +1,43 @@
+import subprocess
+import sys
+
+import projects as P
+from dossier.cli import main
+from dossier.errors import EXIT_INPUT, EXIT_OK
+
+
+def _run(*args):
+    return subprocess.run([sys.executable, "-c", "import sys; from dossier.cli import main; sys.exit(main())", *args],
+                          capture_output=True, text=True)
+
+
+def test_bad_manifest_exits_3_with_located_message_and_no_traceback(tmp_path):
+    (tmp_path / "dossier.toml").write_text('[document]\ntitle = "x"\n', encoding="utf-8")
+    res = _run("check", str(tmp_path))
+    assert res.returncode == EXIT_INPUT
+    assert "document.number: is required" in res.stderr
+    assert "specimens: is required" in res.stderr
+    assert "Traceback" not in res.stderr + res.stdout
+
+
+def test_missing_project_folder(tmp_path):
+    res = _run("build", str(tmp_path / "nope"))
+    assert res.returncode == EXIT_INPUT
+    assert "is not a folder" in res.stderr and "Traceback" not in res.stderr
+
+
+def test_bad_rig_file_exits_3_and_writes_nothing(tmp_path):
+    (tmp_path / "rig").mkdir()
+    (tmp_path / "rig/a.csv").write_text("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n", encoding="utf-8")
+    (tmp_path / "dossier.toml").write_text(P.MANIFEST_HEAD + P.specimen_block("A")
+                                           + P.run_block("A", "rig/a.csv", [4000]), encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["build", str(tmp_path), "--out", str(out)]) == EXIT_INPUT
+    assert not out.exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["dossier.toml", "rig"]
+
+
+def test_check_reports_the_demo_project_ok(capsys):
+    assert main(["check", "demo_project"]) == EXIT_OK
+    out = capsys.readouterr().out
+    assert "manifest and 3 rig file(s) OK" in out

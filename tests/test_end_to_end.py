@@ -1,0 +1,103 @@
+"""Build the demo project once and look at everything it wrote, as a reviewer would."""
+
+import json
+import shutil
+from pathlib import Path
+
+import jsonschema
+import pytest
+from pypdf import PdfReader
+
+from dossier.build import build
+from dossier.cautions import CAUTIONS
+from dossier.errors import OutputError, UserError
+from dossier.output import MARKER
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "demo_project"
+
+
+@pytest.fixture(scope="module")
+def demo_out(tmp_path_factory):
+    out = tmp_path_factory.mktemp("e2e") / "out"
+    build(DEMO, out)
+    return out
+
+
+def test_site_pages_work_from_disk(demo_out):
+    site = demo_out / "site"
+    index = (site / "index.html").read_text(encoding="utf-8")
+    for sid in ("PRD-A", "CND-B", "CND-C"):
+        page = site / f"specimen-{sid.lower()}.html"
+        assert page.is_file()
+        assert f'href="specimen-{sid.lower()}.html"' in index
+    assert "http://" not in index and "https://" not in index  # nothing fetched from the network
+    for img in ("figures/cornering-coefficient-load.svg", "figures/fy-slip-prd-a.svg", "static/screen.css"):
+        assert (site / img).is_file()
+    assert 'alt="' in index and "<th scope=\"col\">" in index
+    for title, _ in CAUTIONS:
+        assert title in index
+
+
+def test_pdf_has_sections_cautions_and_page_numbers(demo_out):
+    reader = PdfReader(demo_out / "dossier.pdf")
+    assert 8 <= len(reader.pages) <= 30
+    text = "\n".join(page.extract_text() for page in reader.pages)
+    for heading in ("Contents", "Findings at the nominal load", "Specimen PRD-A", "Specimen CND-C",
+                    "How the numbers were made", "Metric definitions", "Safety cautions"):
+        assert heading in text
+    n = len(reader.pages)
+    assert f"Page 2 of {n}" in reader.pages[1].extract_text()
+    assert f"Page {n} of {n}" in reader.pages[-1].extract_text()
+    assert "NTW-EVD-2026-031" in text
+    titles = [o["/Title"] for o in reader.outline if isinstance(o, dict)]
+    assert "Safety cautions" in titles
+
+
+def test_results_json_follows_its_schema(demo_out):
+    results = json.loads((demo_out / "results.json").read_text(encoding="utf-8"))
+    schema = json.loads((ROOT / "dossier/schemas/results.schema.json").read_text(encoding="utf-8"))
+    jsonschema.validate(results, schema)
+    metrics = {m["metric"] for m in results["metrics"]}
+    assert metrics == {"cornering_stiffness", "cornering_coefficient", "peak_lateral_friction", "slip_angle_at_peak"}
+    for m in results["metrics"]:
+        assert m["ci95"] is None or m["ci95"][0] <= m["value"] <= m["ci95"][1]
+    assert all(len(i["sha256"]) == 64 for i in results["inputs"])
+
+
+def test_fit_recovers_the_demo_truth_within_3_percent(demo_out):
+    results = json.loads((demo_out / "results.json").read_text(encoding="utf-8"))
+    truth = json.loads((DEMO / "truth/true_coefficients.json").read_text(encoding="utf-8"))["specimens"]
+    checked = 0
+    for sid, t in truth.items():
+        for load, true_cs in zip(t["loads_n"], t["cornering_stiffness_n_per_deg"]):
+            (m,) = [m for m in results["metrics"] if m["specimen"] == sid and m["load_n"] == load
+                    and m["metric"] == "cornering_stiffness"]
+            assert m["value"] == pytest.approx(true_cs, rel=0.03), (sid, load)
+            checked += 1
+    assert checked == 12
+
+
+def test_rebuild_replaces_own_output_but_never_a_users_folder(demo_out, tmp_path):
+    assert (demo_out / MARKER).is_file()
+    users = tmp_path / "notes"
+    users.mkdir()
+    (users / "mine.txt").write_text("keep me", encoding="utf-8")
+    with pytest.raises(OutputError, match="was not made by dossier"):
+        build(DEMO, users)
+    assert (users / "mine.txt").read_text(encoding="utf-8") == "keep me"
+
+
+def test_a_failing_build_leaves_the_previous_output_intact(demo_out, tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    out = tmp_path / "out"
+    shutil.copytree(demo_out, out)
+    before = (out / "results.json").read_bytes()
+    manifest = project / "dossier.toml"
+    manifest.write_text(manifest.read_text(encoding="utf-8").replace('revision = "A"', 'revison = "A"'),
+                        encoding="utf-8")
+    with pytest.raises(UserError, match="did you mean 'revision'"):
+        build(project, out)
+    assert (out / "results.json").read_bytes() == before
+    assert not [p for p in tmp_path.iterdir() if "building" in p.name]
