@@ -286,6 +286,14 @@ def true_peak(coeffs: dict[str, float], fz_n: float) -> tuple[float, float]:
     return float(abs(fy[i]) / fz_n), float(alpha_deg[i])
 
 
+def true_peak_both_directions(coeffs: dict[str, float], fz_n: float) -> float:
+    """Return the mean of max |Fy|/Fz over 0..+12 deg and over -12..0 deg (offsets cancel)."""
+    alpha_deg = np.linspace(0.0, PEAK_SEARCH_DEG, 12001)
+    pos = np.max(np.abs(fy0(np.deg2rad(alpha_deg), fz_n, coeffs, FZ0_N)))
+    neg = np.max(np.abs(fy0(np.deg2rad(-alpha_deg), fz_n, coeffs, FZ0_N)))
+    return float(0.5 * (pos + neg) / fz_n)
+
+
 def truth_document(spike_rows: dict[str, list[int]]) -> dict:
     specimens = {}
     for spec in SPECIMENS:
@@ -299,12 +307,15 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
                                               for fz in LOADS_N],
             "peak_mu_within_12deg": [round(mu, 5) for mu, _ in peaks],
             "slip_at_peak_deg": [round(a, 3) for _, a in peaks],
+            "peak_mu_mean_of_both_directions": [round(true_peak_both_directions(spec.coefficients, fz), 5)
+                                                for fz in LOADS_N],
             "spike_rows_0_based": spike_rows[spec.id],
         }
     return {
         "note": "Fictional demo data. True Magic Formula Fy0 coefficients (Pacejka 2006, 4.3.2, "
                 "lambda = 1) in ISO 8855 axes, alpha in rad. Cornering stiffness = -dFy/dalpha at "
-                "alpha = 0 by central difference, per degree; peak_mu = max |Fy|/Fz for |alpha| <= 12 deg. "
+                "alpha = 0 by central difference, per degree; peak_mu = max |Fy|/Fz for |alpha| <= 12 deg; "
+                "peak_mu_mean_of_both_directions averages the two slip directions' peaks (as dossier reports). "
                 "spike_rows_0_based are data-row indices (0 = first data row) carrying an added Fy spike.",
         "axis_convention": "ISO 8855",
         "generator": {

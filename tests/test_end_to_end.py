@@ -70,10 +70,11 @@ def test_fit_recovers_the_demo_truth_within_3_percent(demo_out):
     truth = json.loads((DEMO / "truth/true_coefficients.json").read_text(encoding="utf-8"))["specimens"]
     checked = 0
     for sid, t in truth.items():
-        for load, true_cs in zip(t["loads_n"], t["cornering_stiffness_n_per_deg"]):
-            (m,) = [m for m in results["metrics"] if m["specimen"] == sid and m["load_n"] == load
-                    and m["metric"] == "cornering_stiffness"]
-            assert m["value"] == pytest.approx(true_cs, rel=0.03), (sid, load)
+        for load, true_cs, true_mu in zip(t["loads_n"], t["cornering_stiffness_n_per_deg"],
+                                          t["peak_mu_mean_of_both_directions"]):
+            found = {m["metric"]: m["value"] for m in results["metrics"] if m["specimen"] == sid and m["load_n"] == load}
+            assert found["cornering_stiffness"] == pytest.approx(true_cs, rel=0.03), (sid, load)
+            assert found["peak_lateral_friction"] == pytest.approx(true_mu, rel=0.02), (sid, load)
             checked += 1
     assert checked == 12
 
