@@ -429,6 +429,10 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
             for ch in REQUIRED_CHANNELS:
                 if ch not in columns:
                     problems.append(Problem(f"runs[{i}].columns.{ch}", f"is required (a rig file needs {', '.join(REQUIRED_CHANNELS)})"))
+        cambers = run.get("camber_setpoints_deg") or []
+        if run.get("columns") is not None and len(cambers) > 1 and "inclination" not in columns:
+            problems.append(Problem(f"runs[{i}].columns.inclination",
+                                    f"is required when the run has {len(cambers)} camber set-points"))
         if run.get("delimiter") and run.get("decimal") and run["delimiter"] == run["decimal"]:
             problems.append(Problem(f"runs[{i}].decimal", f"cannot equal the delimiter {run['delimiter']!r}"))
         rel = run.get("file")
