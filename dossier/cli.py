@@ -47,7 +47,9 @@ def check(project: Path) -> None:
     for c in conditioned:
         a = c.account
         click.echo(f"{a.source_file}: {a.n_samples} samples, {a.n_kept} kept, "
-                   f"{a.operating_points_found} operating point(s)")
+                   f"{a.operating_points_found} operating point(s): {a.verdict}")
+        for reason in a.verdict_reasons:
+            click.echo(f"    {reason}")
     click.echo(f"{project}: manifest and {len(conditioned)} rig file(s) OK")
 
 

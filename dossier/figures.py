@@ -14,7 +14,8 @@ import matplotlib
 import numpy as np
 from matplotlib.figure import Figure
 
-from .condition import OperatingPoint
+from .condition import ConditionedRun, OperatingPoint
+from .drift import DriftEstimate
 from .fit import LateralFit
 from .metrics import MetricValue
 
@@ -37,14 +38,14 @@ class FigureArtifact:
 
 def _svg(fig: Figure) -> bytes:
     buf = io.BytesIO()
-    fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
+    fig.savefig(buf, format="svg", dpi=200, metadata={"Date": None, "Creator": None})
     return buf.getvalue()
 
 
-def _render(style: Path | None, draw) -> bytes:
+def _render(style: Path | None, draw, size=(7.0, 4.2)) -> bytes:
     # The theme's style and our reproducibility settings apply only inside this context.
     with matplotlib.rc_context(rc=_REPRODUCIBLE, fname=None if style is None else str(style)):
-        fig = Figure(figsize=(7.0, 4.2))
+        fig = Figure(figsize=size)
         draw(fig)
         fig.tight_layout()
         return _svg(fig)
@@ -61,7 +62,10 @@ def lateral_force_figure(fit: LateralFit, points: list[OperatingPoint], style: P
         for i, p in enumerate(sorted(points, key=lambda q: q.load_n)):
             c = colors[i % len(colors)]
             step = max(1, p.raw_slip_angle_deg.size // (RAW_POINTS_SHOWN // max(len(points), 1)))
-            ax.plot(p.raw_slip_angle_deg[::step], p.raw_fy_n[::step], ".", ms=1.5, color=c, alpha=0.25)
+            # Dense clouds are embedded as a bitmap inside the SVG (axes, text and curves stay
+            # vector): thousands of vector markers make the PDF slow to render and to open.
+            ax.plot(p.raw_slip_angle_deg[::step], p.raw_fy_n[::step], ".", ms=1.5, color=c, alpha=0.25,
+                    rasterized=True)
             ax.plot(p.curve.slip_angle_deg, p.curve.fy_n, "o", ms=3.2, mfc="none", color=c)
             ax.plot(grid, fit.predict_fy_n(grid, p.mean_load_n), "-", lw=1.4, color=c,
                     label=f"{p.load_n / 1000:.1f} kN")
@@ -105,6 +109,102 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
         f"{label} against load",
         "Model values at the nominal loads; bars show 95 % intervals from the fit covariance.",
         f"Chart of {label.lower()} against normal load for specimens {', '.join(specimens)}.",
+        _render(style, draw))
+
+
+def time_history_figure(run: ConditionedRun, style: Path | None) -> FigureArtifact:
+    """Load and swept channel against time, kept samples dark, dropped ones grey, points shaded."""
+    o = run.overview
+    a = run.account
+    lateral = not run.points or run.points[0].sweep == "slip_angle"
+
+    def draw(fig):
+        ax1, ax2 = fig.subplots(2, 1, sharex=True)
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for ax, y, label in ((ax1, o.fz_n / 1000.0, "Normal load Fz [kN]"),
+                             (ax2, o.x, "Slip angle α [deg]" if lateral else "Slip ratio κ [1]")):
+            ax.plot(o.time_s, np.where(o.kept, np.nan, y), ".", ms=1.2, color="0.65", label="dropped", rasterized=True)
+            ax.plot(o.time_s, np.where(o.kept, y, np.nan), ".", ms=1.2, color=colors[0], label="kept", rasterized=True)
+            ax.set_ylabel(label)
+            for i, p in enumerate(run.points):
+                ax.axvspan(*p.time_span_s, color=colors[1 + i % (len(colors) - 1)], alpha=0.08, lw=0)
+        for p in run.points:
+            ax1.annotate(f"{p.load_n / 1000:.1f} kN", (0.5 * sum(p.time_span_s), p.mean_load_n / 1000.0),
+                         textcoords="offset points", xytext=(0, 6), ha="center", fontsize="x-small")
+        ax2.set_xlabel("Time [s]")
+        ax1.legend(loc="upper left", fontsize="x-small", markerscale=6)
+        ax1.set_title(f"Run {a.run_index}: {a.source_file} ({a.specimen})")
+
+    return FigureArtifact(
+        f"run-{a.run_index}-history.svg",
+        f"Time history of run {a.run_index} ({a.specimen})",
+        "Grey: samples dropped by conditioning (transitions, settling, spikes); shaded bands: the operating "
+        "points found, labelled with their nominal load.",
+        f"Two stacked time histories of run {a.run_index}: normal load and swept slip channel, kept and dropped "
+        f"samples, {len(run.points)} operating points marked.",
+        _render(style, draw, size=(7.0, 4.6)))
+
+
+def hysteresis_figure(p: OperatingPoint, style: Path | None) -> FigureArtifact:
+    """Rising and falling halves of one sweep and the steady-state curve formed from them."""
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        ax.plot(p.rising.x, p.rising.main, "-", lw=1.2, color=colors[1], label="rising slip")
+        ax.plot(p.falling.x, p.falling.main, "-", lw=1.2, color=colors[2], label="falling slip")
+        ax.plot(p.curve.x, p.curve.main, "--", lw=1.0, color=colors[0], label="steady state (lag removed)")
+        ax.axhline(0, lw=0.5, color="0.5")
+        ax.axvline(0, lw=0.5, color="0.5")
+        if p.hysteresis and p.hysteresis.slip_lag is not None:
+            ax.text(0.02, 0.04, f"difference at zero slip {p.hysteresis.force_diff_n:+.0f} N, "
+                                f"equivalent slip lag {p.hysteresis.slip_lag:+.3f}" + ("°" if p.sweep == "slip_angle" else ""),
+                    transform=ax.transAxes, fontsize="small")
+        ax.set_xlabel("Slip angle α [deg]" if p.sweep == "slip_angle" else "Slip ratio κ [1]")
+        ax.set_ylabel("Lateral force Fy [N]" if p.sweep == "slip_angle" else "Longitudinal force Fx [N]")
+        ax.legend(fontsize="small")
+        ax.set_title(f"Run {p.run_index} ({p.specimen}) at {p.load_n / 1000:.1f} kN: sweep directions")
+
+    return FigureArtifact(
+        f"run-{p.run_index}-hysteresis.svg",
+        f"Sweep directions of run {p.run_index} at {p.load_n / 1000:.1f} kN",
+        "Bin means of the rising and falling halves of the slip sweep; the steady-state curve used for fitting "
+        "bins both halves after shifting each back by the equivalent slip lag.",
+        f"Hysteresis loop of lateral force against slip angle for run {p.run_index} at {p.load_n / 1000:.1f} kN.",
+        _render(style, draw))
+
+
+def drift_figure(d: DriftEstimate, style: Path | None) -> FigureArtifact:
+    """The control tire's model-free metrics against session time, as % of the first repeat."""
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        hours = np.array([(r.tested_at - d.reference_time).total_seconds() / 3600.0 for r in d.repeats])
+        labels = {"cornering_stiffness_n_per_deg": "cornering stiffness", "peak_friction": "peak lateral friction"}
+        for name, marker in (("cornering_stiffness_n_per_deg", "o"), ("peak_friction", "s")):
+            y = np.array([getattr(r, name) for r in d.repeats], dtype=float)
+            rel = 100.0 * (y / y[0] - 1.0)
+            ax.plot(hours, rel, marker, ms=6, label=labels[name])
+            k = np.polyfit(hours, rel, 1)
+            hh = np.linspace(hours.min(), hours.max(), 20)
+            ax.plot(hh, np.polyval(k, hh), "-", lw=1.0, color=ax.lines[-1].get_color())
+        for c in d.corrections:
+            h = (c.tested_at - d.reference_time).total_seconds() / 3600.0
+            ax.axvline(h, lw=0.6, ls=":", color="0.4")
+            ax.annotate(c.specimen, (h, 0.02), xycoords=("data", "axes fraction"), fontsize="x-small",
+                        rotation=90, va="bottom", ha="right")
+        ax.axhline(0, lw=0.5, color="0.5")
+        ax.set_xlabel(f"Hours after the first control run ({d.reference_time:%Y-%m-%d %H:%M})")
+        ax.set_ylabel("Change from first repeat [%]")
+        ax.legend(fontsize="small")
+        ax.set_title(f"Control tire {d.control} at {d.load_n / 1000:.1f} kN through the session")
+
+    return FigureArtifact(
+        "drift-control.svg", f"Drift of the control tire {d.control}",
+        "Model-free metrics of each control repeat (points) and the straight line in time used as the drift; "
+        "dotted lines mark when the other runs were tested.",
+        f"Chart of the control tire's cornering stiffness and peak friction change against session time, "
+        f"{len(d.repeats)} repeats.",
         _render(style, draw))
 
 

@@ -36,7 +36,10 @@ CHANNELS: dict[str, str] = {
     "pressure": "pressure",
     "speed": "speed",
 }
-REQUIRED_CHANNELS = ("time", "slip_angle", "fz", "fy")
+SWEEPS = ("slip_angle", "slip_ratio")
+# Channels every run needs, and those its sweep needs in addition.
+REQUIRED_CHANNELS = ("time", "fz")
+SWEEP_CHANNELS = {"slip_angle": ("slip_angle", "fy"), "slip_ratio": ("slip_ratio", "fx")}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -107,6 +110,26 @@ class Integer:
             problems.append(Problem(path, f"must be an integer >= {self.minimum}; got {_shown(value)}"))
             return None
         return value
+
+
+@dataclass(frozen=True)
+class Boolean:
+    def __call__(self, value, path, problems):
+        if not isinstance(value, bool):
+            problems.append(Problem(path, f"must be true or false; got {_shown(value)}"))
+            return None
+        return value
+
+
+@dataclass(frozen=True)
+class DateTime:
+    """A TOML local or offset date-time, e.g. 2026-11-03T09:40:00."""
+
+    def __call__(self, value, path, problems):
+        if isinstance(value, dt.datetime):
+            return value.replace(tzinfo=None) if value.tzinfo is None else value
+        problems.append(Problem(path, f"must be a TOML date-time such as 2026-11-03T09:40:00; got {_shown(value)}"))
+        return None
 
 
 @dataclass(frozen=True)
@@ -268,11 +291,14 @@ MANIFEST_SCHEMA = Table({
         "header_line": Key(Integer(minimum=1), required=False, default=1),
         "skip_after_header": Key(Integer(minimum=0), required=False, default=0),
         "columns": Key(MapOf({name: _column(q) for name, q in CHANNELS.items()})),
+        "sweep": Key(Choice(SWEEPS), required=False, default="slip_angle"),
+        "rolling_direction": Key(Choice(("forward", "reverse")), required=False, default="forward"),
+        "tested_at": Key(DateTime(), required=False),
         "load_setpoints": Key(Table({
             "values": Key(ListOf(Number(minimum=0, exclusive_minimum=True), min_items=1)),
             "unit": Key(Unit("force")),
-        }), help="nominal normal loads of the run, e.g. { values = [2, 4, 6], unit = 'kN' }"),
-        "camber_setpoints_deg": Key(ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False, default=[0.0]),
+        }), required=False, help="nominal normal loads of the run, e.g. { values = [2, 4, 6], unit = 'kN' }"),
+        "camber_setpoints_deg": Key(ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False),
         "pressure": Key(Table({
             "value": Key(Number(minimum=0, exclusive_minimum=True)),
             "unit": Key(Unit("pressure")),
@@ -283,8 +309,19 @@ MANIFEST_SCHEMA = Table({
         "load_tolerance_pct": Key(Number(minimum=0.5, maximum=50), required=False, default=8.0),
         "camber_tolerance_deg": Key(Number(minimum=0.01, maximum=5), required=False, default=0.3),
         "slip_bin_deg": Key(Number(minimum=0.05, maximum=2), required=False, default=0.5),
+        "slip_ratio_bin": Key(Number(minimum=0.001, maximum=0.05), required=False, default=0.01),
+        "slip_settling_s": Key(Number(minimum=0, maximum=10), required=False, default=0.5),
+        "sweep_run_in_deg": Key(Number(minimum=0, maximum=5), required=False, default=1.0),
+        "sweep_run_in_ratio": Key(Number(minimum=0, maximum=0.1), required=False, default=0.02),
         "min_samples_per_bin": Key(Integer(minimum=1), required=False, default=3),
         "spike_threshold_mad": Key(Number(minimum=2), required=False, default=6.0),
+        "min_slip_range_deg": Key(Number(minimum=0.5, maximum=30), required=False, default=6.0),
+        "min_points_per_curve": Key(Integer(minimum=5), required=False, default=12),
+        "pressure_tolerance_pct": Key(Number(minimum=0.1, maximum=50), required=False, default=3.0),
+    }), required=False, default=None),
+    "drift": Key(Table({
+        "control": Key(Text(), help="id of the control specimen re-tested through the session"),
+        "correct": Key(Boolean(), required=False, default=False),
     }), required=False, default=None),
     "fit": Key(Table({
         "nominal_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
@@ -337,9 +374,12 @@ class RunSpec:
     header_line: int
     skip_after_header: int
     columns: dict[str, ColumnSpec]
-    load_setpoints_n: tuple[float, ...]
-    camber_setpoints_deg: tuple[float, ...]
+    load_setpoints_n: tuple[float, ...] | None  # None: detect the load steps from the data
+    camber_setpoints_deg: tuple[float, ...] | None  # None: detect (or 0 without an inclination channel)
     pressure_kpa: float
+    sweep: str = "slip_angle"
+    rolling_direction: str = "forward"
+    tested_at: dt.datetime | None = None
 
     @property
     def location(self) -> str:
@@ -352,8 +392,21 @@ class ConditioningSettings:
     load_tolerance_pct: float = 8.0
     camber_tolerance_deg: float = 0.3
     slip_bin_deg: float = 0.5
+    slip_ratio_bin: float = 0.01
+    slip_settling_s: float = 0.5
+    sweep_run_in_deg: float = 1.0
+    sweep_run_in_ratio: float = 0.02
     min_samples_per_bin: int = 3
     spike_threshold_mad: float = 6.0
+    min_slip_range_deg: float = 6.0
+    min_points_per_curve: int = 12
+    pressure_tolerance_pct: float = 3.0
+
+
+@dataclass(frozen=True)
+class DriftSettings:
+    control: str
+    correct: bool = False
 
 
 @dataclass(frozen=True)
@@ -371,6 +424,7 @@ class Manifest:
     runs: tuple[RunSpec, ...]
     conditioning: ConditioningSettings = field(default_factory=ConditioningSettings)
     fit: FitSettings = field(default_factory=FitSettings)
+    drift: DriftSettings | None = None
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
@@ -426,9 +480,11 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
             problems.append(Problem(f"runs[{i}].specimen", f"no specimen with id {sid!r}{_suggest(sid, ids)}; known ids: {', '.join(ids)}"))
         columns = run.get("columns") or {}
         if run.get("columns") is not None:
-            for ch in REQUIRED_CHANNELS:
+            sweep = run.get("sweep") or "slip_angle"
+            for ch in REQUIRED_CHANNELS + SWEEP_CHANNELS.get(sweep, ()):
                 if ch not in columns:
-                    problems.append(Problem(f"runs[{i}].columns.{ch}", f"is required (a rig file needs {', '.join(REQUIRED_CHANNELS)})"))
+                    problems.append(Problem(f"runs[{i}].columns.{ch}",
+                                            f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})"))
         cambers = run.get("camber_setpoints_deg") or []
         if run.get("columns") is not None and len(cambers) > 1 and "inclination" not in columns:
             problems.append(Problem(f"runs[{i}].columns.inclination",
@@ -446,6 +502,18 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
                 problems.append(Problem(f"runs[{i}].file", f"resolves outside the project folder (symbolic link?): {rel!r}"))
             elif not target.is_file():
                 problems.append(Problem(f"runs[{i}].file", f"file not found: {rel!r} (paths are relative to the manifest's folder)"))
+    drift = data.get("drift")
+    if drift and drift.get("control") and ids:
+        ctl = drift["control"]
+        roles = {s["id"]: s.get("role") for s in specimens if s and s.get("id")}
+        if ctl not in roles:
+            problems.append(Problem("drift.control", f"no specimen with id {ctl!r}{_suggest(ctl, ids)}"))
+        elif roles[ctl] != "control":
+            problems.append(Problem("drift.control", f"specimen {ctl!r} must have role 'control'; got {roles[ctl]!r}"))
+        untimed = [i for i, r in enumerate(data.get("runs") or []) if r and not r.get("tested_at")]
+        if untimed:
+            problems.append(Problem(f"runs[{untimed[0]}].tested_at",
+                                    "is required for every run when [drift] is set (drift is estimated over time)"))
     used = {r.get("specimen") for r in (data.get("runs") or []) if r}
     for i, s in enumerate(specimens):
         if s and s.get("id") and s["id"] not in used and data.get("runs"):
@@ -460,17 +528,22 @@ def _build(data: dict, project_dir: Path) -> Manifest:
                       for s in data["specimens"])
     runs = []
     for i, r in enumerate(data["runs"]):
-        force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
+        loads = None
+        if r["load_setpoints"]:
+            force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
+            loads = tuple(v * force_factor for v in r["load_setpoints"]["values"])
         pressure_factor = units.factor_to_internal("pressure", r["pressure"]["unit"])
         runs.append(RunSpec(
             index=i, specimen=r["specimen"], file=r["file"], lab=r["lab"] or "",
             axis_convention=r["axis_convention"], delimiter=r["delimiter"], decimal=r["decimal"],
             header_line=r["header_line"], skip_after_header=r["skip_after_header"],
             columns={k: ColumnSpec(v["name"], v["unit"]) for k, v in r["columns"].items()},
-            load_setpoints_n=tuple(v * force_factor for v in r["load_setpoints"]["values"]),
-            camber_setpoints_deg=tuple(r["camber_setpoints_deg"]),
+            load_setpoints_n=loads,
+            camber_setpoints_deg=tuple(r["camber_setpoints_deg"]) if r["camber_setpoints_deg"] else None,
             pressure_kpa=r["pressure"]["value"] * pressure_factor,
+            sweep=r["sweep"], rolling_direction=r["rolling_direction"], tested_at=r["tested_at"],
         ))
     cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
     fit = FitSettings(**data["fit"]) if data.get("fit") else FitSettings()
-    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit)
+    drift = DriftSettings(**data["drift"]) if data.get("drift") else None
+    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift)

@@ -21,12 +21,14 @@ from weasyprint.urls import URLFetcher, URLFetcherResponse
 
 from . import __version__, axes
 from .cautions import CAUTIONS, CAUTIONS_ID
-from .condition import ConditioningAccount
+from .condition import ConditionedRun, ConditioningAccount
+from .drift import DriftEstimate
 from .errors import StageError
 from .figures import FigureArtifact
 from .fit import LateralFit
-from .manifest import Manifest, Specimen
+from .manifest import Manifest, RunSpec, Specimen
 from .metrics import METRICS, MetricDefinition, MetricValue
+from .offsets import OffsetSplit
 from .theme import STATIC_FILES, Theme
 
 SITE_BASE_URL = "https://dossier.invalid/site/"  # never fetched: the fetcher serves from memory
@@ -45,6 +47,19 @@ class SpecimenView:
 
 
 @dataclass(frozen=True)
+class RunView:
+    """One rig run as the data-quality section shows it."""
+
+    run: ConditionedRun
+    spec: RunSpec
+    figures: tuple[FigureArtifact, ...]
+
+    @property
+    def account(self) -> ConditioningAccount:
+        return self.run.account
+
+
+@dataclass(frozen=True)
 class DossierContext:
     """Everything a template may use. Templates get this one object as ``d``."""
 
@@ -57,6 +72,11 @@ class DossierContext:
     cautions: tuple[tuple[str, str], ...]
     cautions_id: str
     nominal_load_n: float
+    runs: tuple[RunView, ...] = ()
+    drift: DriftEstimate | None = None
+    drift_figures: tuple[FigureArtifact, ...] = ()
+    offset_splits: tuple[OffsetSplit, ...] = ()
+    quality_page: str = "data-quality.html"
 
     @property
     def document(self):
@@ -68,8 +88,13 @@ class DossierContext:
         return [m for m in view.metrics if math.isclose(m.load_n, self.nominal_load_n)]
 
 
-def make_context(manifest: Manifest, accounts, fits, metrics, specimen_figures, summary_figures,
-                 nominal_load_n: float) -> DossierContext:
+def make_context(manifest: Manifest, conditioned: list[ConditionedRun], fits, metrics, specimen_figures,
+                 summary_figures, nominal_load_n: float, quality_figures=None, drift=None, drift_figures=(),
+                 offset_splits=()) -> DossierContext:
+    accounts = [c.account for c in conditioned]
+    quality_figures = quality_figures or {}
+    runs = tuple(RunView(c, manifest.runs[c.account.run_index], tuple(quality_figures.get(c.account.run_index, ())))
+                 for c in conditioned)
     views = []
     for s in manifest.specimens:
         views.append(SpecimenView(
@@ -80,7 +105,8 @@ def make_context(manifest: Manifest, accounts, fits, metrics, specimen_figures, 
             figures=tuple(specimen_figures.get(s.id, ())),
         ))
     return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
-                          tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n)
+                          tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n, runs, drift,
+                          tuple(drift_figures), tuple(offset_splits))
 
 
 # --- filters ---------------------------------------------------------------------------------
@@ -107,6 +133,12 @@ def _fmt_kn(value_n: float) -> str:
     return f"{value_n / 1000:.1f}"
 
 
+def _fmt_fixed(value: float | None, decimals: int = 1, signed: bool = False) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:{'+' if signed else ''}.{decimals}f}".replace("-", "−")
+
+
 def _metric_label(name: str) -> str:
     return METRICS[name].label
 
@@ -121,7 +153,8 @@ def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Env
         trim_blocks=True,
         lstrip_blocks=True,
     )
-    env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, metric_label=_metric_label)
+    env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, fixed=_fmt_fixed,
+                       metric_label=_metric_label)
     env.globals.update(options=theme.options)
     return env
 
@@ -132,11 +165,11 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme) -> d
     files["index.html"] = _page(env, "index.html", ctx, current="index.html")
     for view in ctx.specimens:
         files[view.page] = _page(env, "specimen.html", ctx, current=view.page, view=view)
-    for fig in ctx.summary_figures:
+    files[ctx.quality_page] = _page(env, "quality.html", ctx, current=ctx.quality_page)
+    figures = list(ctx.summary_figures) + list(ctx.drift_figures)
+    figures += [f for v in ctx.specimens for f in v.figures] + [f for r in ctx.runs for f in r.figures]
+    for fig in figures:
         files[f"figures/{fig.filename}"] = fig.svg
-    for view in ctx.specimens:
-        for fig in view.figures:
-            files[f"figures/{fig.filename}"] = fig.svg
     for name in STATIC_FILES:
         path = theme.find(name)
         if path is not None:
@@ -176,10 +209,10 @@ def _require_cautions(files: dict[str, bytes]) -> None:
 
 
 class _BuildFetcher(URLFetcher):
-    """Serve only this build's files; refuse every other URL (network, disk, data)."""
+    """Serve only this build's files and inline data; refuse every other URL (network, disk)."""
 
     def __init__(self, files: dict[str, bytes]):
-        super().__init__(allowed_protocols=())
+        super().__init__(allowed_protocols=("data",))
         self.files = files
         self.refused: set[str] = set()
 
@@ -189,7 +222,9 @@ class _BuildFetcher(URLFetcher):
             if rel in self.files:
                 mime = mimetypes.guess_type(rel)[0] or "application/octet-stream"
                 return URLFetcherResponse(url, self.files[rel], {"Content-Type": mime})
-        self.refused.add(url)
+        if url.startswith("data:image/"):  # bitmaps that matplotlib embedded in our own SVG figures
+            return super().fetch(url, headers)
+        self.refused.add(url if len(url) < 120 else url[:117] + "...")
         raise ValueError(f"refused: {url}")
 
 

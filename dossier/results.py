@@ -9,10 +9,12 @@ from __future__ import annotations
 import math
 
 from . import __version__, axes
-from .condition import ConditioningAccount
+from .condition import ConditionedRun, OperatingPoint
+from .drift import DriftEstimate
 from .fit import LateralFit
 from .manifest import Manifest
 from .metrics import METRICS, MetricValue
+from .offsets import OffsetSplit
 
 RESULTS_SCHEMA_VERSION = "1"
 
@@ -23,8 +25,44 @@ def _num(x: float | None) -> float | None:
     return float(f"{x:.10g}")
 
 
-def results_record(manifest: Manifest, accounts: list[ConditioningAccount], fits: list[LateralFit],
-                   metrics: list[MetricValue]) -> dict:
+def _point(p: OperatingPoint) -> dict:
+    h, o = p.hysteresis, p.offsets
+    return {
+        "load_n": _num(p.load_n), "camber_deg": _num(p.camber_deg), "pressure_kpa": _num(p.pressure_kpa),
+        "mean_load_n": _num(p.mean_load_n), "measured_pressure_kpa": _num(p.measured_pressure_kpa),
+        "mean_speed_kmh": _num(p.mean_speed_kmh), "sweep": p.sweep, "n_sweeps": _num(p.n_sweeps),
+        "n_points": p.curve.n_points, "samples_kept": p.n_samples_kept,
+        "lines": [p.first_line, p.last_line],
+        "hysteresis": None if h is None else {"force_diff_n": _num(h.force_diff_n), "mz_diff_nm": _num(h.mz_diff_nm),
+                                              "slip_lag": _num(h.slip_lag)},
+        "offsets": None if o is None else {
+            "fy_at_zero_slip_n": _num(o.fy_at_zero_slip_n), "mz_at_zero_slip_nm": _num(o.mz_at_zero_slip_nm),
+            "residual_cornering_force_n": _num(o.residual_cornering_force_n),
+            "residual_aligning_moment_nm": _num(o.residual_aligning_moment_nm)},
+        "force_scale": _num(p.force_scale),
+        "findings": [{"severity": f.severity, "text": f.text} for f in p.findings],
+    }
+
+
+def _drift(d: DriftEstimate | None) -> dict | None:
+    if d is None:
+        return None
+    return {
+        "control": d.control, "load_n": _num(d.load_n), "corrected": d.corrected,
+        "reference_time": d.reference_time.isoformat(),
+        "repeats": [{"run": r.run_index, "tested_at": r.tested_at.isoformat(),
+                     "cornering_stiffness_n_per_deg": _num(r.cornering_stiffness_n_per_deg),
+                     "peak_friction": _num(r.peak_friction)} for r in d.repeats],
+        "metrics": [{"metric": m.metric, "per_hour_pct": _num(m.per_hour_pct),
+                     "over_session_pct": _num(m.over_session_pct)} for m in d.metrics],
+        "corrections": [{"run": c.run_index, "specimen": c.specimen, "tested_at": c.tested_at.isoformat(),
+                         "force_scale": _num(c.force_scale)} for c in d.corrections],
+    }
+
+
+def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: list[LateralFit],
+                   metrics: list[MetricValue], drift: DriftEstimate | None = None,
+                   offset_splits: list[OffsetSplit] = ()) -> dict:
     """Return the ``results.json`` content as plain data."""
     d = manifest.document
     return {
@@ -39,10 +77,25 @@ def results_record(manifest: Manifest, accounts: list[ConditioningAccount], fits
             {"id": s.id, "role": s.role, "size": s.size, "construction": s.construction} for s in manifest.specimens
         ],
         "inputs": [
-            {"file": a.source_file, "sha256": a.sha256, "specimen": a.specimen, "run": a.run_index,
-             "samples": a.n_samples, "samples_kept": a.n_kept, "dropped": dict(a.dropped),
-             "operating_points": a.operating_points_found}
-            for a in accounts
+            {"file": c.account.source_file, "sha256": c.account.sha256, "specimen": c.account.specimen,
+             "run": c.account.run_index,
+             "tested_at": None if manifest.runs[c.account.run_index].tested_at is None
+             else manifest.runs[c.account.run_index].tested_at.isoformat(),
+             "rolling_direction": manifest.runs[c.account.run_index].rolling_direction,
+             "samples": c.account.n_samples, "samples_kept": c.account.n_kept, "dropped": dict(c.account.dropped),
+             "operating_points": c.account.operating_points_found,
+             "verdict": c.account.verdict, "verdict_reasons": list(c.account.verdict_reasons),
+             "findings": [{"severity": f.severity, "text": f.text} for f in c.account.findings],
+             "points": [_point(p) for p in c.points]}
+            for c in conditioned
+        ],
+        "drift": _drift(drift),
+        "offset_splits": [
+            {"specimen": o.specimen, "load_n": _num(o.load_n), "camber_deg": _num(o.camber_deg),
+             "fy_forward_n": _num(o.fy_forward_n), "fy_reverse_n": _num(o.fy_reverse_n),
+             "conicity_fy_n": _num(o.conicity_fy_n), "ply_steer_fy_n": _num(o.ply_steer_fy_n),
+             "conicity_mz_nm": _num(o.conicity_mz_nm), "ply_steer_mz_nm": _num(o.ply_steer_mz_nm)}
+            for o in offset_splits
         ],
         "metric_definitions": [
             {"metric": m.name, "label": m.label, "unit": m.unit, "definition": m.definition,
@@ -76,7 +129,8 @@ def results_record(manifest: Manifest, accounts: list[ConditioningAccount], fits
              ],
              "warnings": list(f.warnings),
              "operating_points": [
-                 {"load_n": _num(k[1]), "camber_deg": _num(k[2]), "pressure_kpa": _num(k[3])} for k in f.source_points
+                 {"run": k[0], "load_n": _num(k[1]), "camber_deg": _num(k[2]), "pressure_kpa": _num(k[3])}
+                 for k in f.source_points
              ]}
             for f in fits
         ],

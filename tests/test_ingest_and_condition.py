@@ -95,7 +95,7 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     for p in points:
         k = rng.permutation(p.curve.n_points)
         c = p.curve
-        shuffled.append(replace(p, curve=SlipCurve(c.slip_angle_deg[k], c.fy_n[k], None, c.fz_n[k],
+        shuffled.append(replace(p, curve=SlipCurve(c.sweep, c.x[k], c.fz_n[k], c.fy_n[k], None, None,
                                                    c.samples_per_bin[k])))
     a = metric_values(fit_lateral(points, FitSettings(), 3000.0), 2000.0)
     b = metric_values(fit_lateral(shuffled[::-1], FitSettings(), 3000.0), 2000.0)
