@@ -549,19 +549,17 @@ def _hysteresis(rising, falling) -> Hysteresis | None:
 
 
 def _offsets(c: SlipCurve) -> ZeroSlipOffsets:
-    fy0 = _at_zero(c.x, c.fy_n)
-    mz0 = _at_zero(c.x, c.mz_nm) if c.mz_nm is not None else None
+    """Residual force and moment from straight lines through the steady curve near zero slip."""
+    fy_line = _line_near_zero(c, c.fy_n)
+    mz_line = _line_near_zero(c, c.mz_nm)
+    fy0 = None if fy_line is None else fy_line[0]
+    mz0 = None if mz_line is None else mz_line[0]
     rcf = rat = None
-    near = np.abs(c.x) <= 3.0
-    if c.mz_nm is not None and np.count_nonzero(near) >= 3:
-        xs, fy, mz = c.x[near], c.fy_n[near], c.mz_nm[near]
-        a_mz, b_mz = np.polyfit(xs, mz, 1)  # Mz ≈ a x + b near zero slip
-        a_fy, b_fy = np.polyfit(xs, fy, 1)
-        if a_mz != 0 and a_fy != 0:
-            x_mz0 = -b_mz / a_mz
-            x_fy0 = -b_fy / a_fy
-            rcf = float(a_fy * x_mz0 + b_fy)
-            rat = float(a_mz * x_fy0 + b_mz)
+    if fy_line and mz_line and fy_line[1] != 0 and mz_line[1] != 0:
+        x_mz0 = -mz_line[0] / mz_line[1]  # slip angle where Mz = 0
+        x_fy0 = -fy_line[0] / fy_line[1]  # slip angle where Fy = 0
+        rcf = fy_line[0] + fy_line[1] * x_mz0
+        rat = mz_line[0] + mz_line[1] * x_fy0
     return ZeroSlipOffsets(fy0, mz0, rcf, rat)
 
 
@@ -573,8 +571,9 @@ def _spikes(x: np.ndarray, threshold: float) -> np.ndarray:
     The residual r_i = x_i − (x_{i−1} + x_{i+1})/2 removes the local trend, so a spike on the
     steep part of a sweep is as visible as one on a plateau (a moving-median filter misses
     it there). A sample is flagged when |r_i| exceeds `threshold` robust standard deviations
-    (1.4826·MAD of r over the run) and is the largest |r| among its neighbours, so the two
-    neighbours of a spike, which see half of it, are kept.
+    (1.4826·MAD of r over the run), is the largest |r| among its neighbours (so the two
+    neighbours, which see half of the spike, are kept) and its neighbours echo it with the
+    opposite sign (so a kink, where a sweep starts from a hold, is not taken for a spike).
     """
     if x.size < 3:
         return np.zeros(x.size, dtype=bool)
@@ -584,7 +583,12 @@ def _spikes(x: np.ndarray, threshold: float) -> np.ndarray:
     scale = 1.4826 * np.median(np.abs(r[1:-1] - np.median(r[1:-1]))) + 1e-12
     local_max = np.zeros(x.size, dtype=bool)
     local_max[1:-1] = (a[1:-1] >= a[:-2]) & (a[1:-1] >= a[2:])
-    return (a > threshold * scale) & local_max
+    # Both neighbours of a spike see about half of it with the opposite sign; a kink in the
+    # signal (a sweep starting from a hold) has neighbours near zero and is not a spike.
+    echoed = np.zeros(x.size, dtype=bool)
+    echoed[1:-1] = ((r[:-2] * r[1:-1] < 0) & (r[2:] * r[1:-1] < 0)
+                    & (np.minimum(a[:-2], a[2:]) > 0.25 * a[1:-1]))
+    return (a > threshold * scale) & local_max & echoed
 
 
 def _frozen(a: np.ndarray) -> np.ndarray:

@@ -131,7 +131,7 @@ def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: R
         bad = int(np.argmax(np.diff(t) < 0)) + 1
         raise RigDataError(shown, "time goes backwards; rows must be in recording order",
                            line=int(lines[bad]), column=spec.columns["time"].name)
-    span = float(np.ptp(channels["slip_angle"]))
-    if span < 1.0 and spec.columns["slip_angle"].unit == "deg":
+    span = float(np.ptp(channels["slip_angle"])) if "slip_angle" in channels else None
+    if span is not None and span < 1.0 and spec.columns["slip_angle"].unit == "deg" and spec.sweep == "slip_angle":
         raise RigDataError(shown, f"slip angle spans only {span:.3f} deg; the column is probably in radians "
                            f"(manifest {spec.location}.columns.slip_angle.unit)")

@@ -9,9 +9,33 @@ import numpy as np
 RATE_HZ = 25.0
 
 
+def discrete_lag_deg(rate_deg_s: float, tau_s: float) -> float:
+    """Steady lag of the sampled first-order filter used by `sweep_samples` on a constant ramp.
+
+    y[i] = a y[i-1] + (1 - a) x[i] with a = exp(-dt/tau) trails a ramp of r·dt per sample by
+    a·r·dt/(1 - a) (solve e = a(e - r dt) for the error e).
+    """
+    dt = 1.0 / RATE_HZ
+    a = np.exp(-dt / tau_s)
+    return a * rate_deg_s * dt / (1.0 - a)
+
+
+def lag(x: np.ndarray, tau_s: float) -> np.ndarray:
+    """First-order lag of a sampled signal (the tire's relaxation), exact for a held input."""
+    a = np.exp(-1.0 / (RATE_HZ * tau_s))
+    y = np.empty_like(x)
+    y[0] = x[0]
+    for i in range(1, x.size):
+        y[i] = a * y[i - 1] + (1.0 - a) * x[i]
+    return y
+
+
 def sweep_samples(loads_n, fy_of_slip_and_load, *, settle_s=1.0, ramp_s=1.0, sweep_deg=12.0,
-                  rate_deg_s=4.0, noise_n=0.0, seed=0):
-    """Return (time_s, slip_deg, fz_n, fy_n) arrays of a stepped-load, triangular-slip program."""
+                  rate_deg_s=4.0, noise_n=0.0, seed=0, tau_s=None):
+    """Return (time_s, slip_deg, fz_n, fy_n) arrays of a stepped-load, triangular-slip program.
+
+    With `tau_s`, the force follows the slip through a first-order lag (relaxation length / speed).
+    """
     rng = np.random.default_rng(seed)
     t_all, a_all, fz_all, fy_all = [], [], [], []
     t0 = 0.0
@@ -29,7 +53,8 @@ def sweep_samples(loads_n, fy_of_slip_and_load, *, settle_s=1.0, ramp_s=1.0, swe
                           np.where(tt < 3 * quarter, 2 - tt / quarter, tt / quarter - 4))
         fz = np.concatenate([ramp, hold, np.full(tri.size, float(load))])
         slip = np.concatenate([np.zeros(n_ramp + n_hold), tri])
-        fy = fy_of_slip_and_load(slip, fz) + noise_n * rng.standard_normal(slip.size)
+        felt = slip if tau_s is None else lag(slip, tau_s)
+        fy = fy_of_slip_and_load(felt, fz) + noise_n * rng.standard_normal(slip.size)
         t_all.append(t0 + dt * np.arange(fz.size))
         t0 = t_all[-1][-1] + dt
         a_all.append(slip)
