@@ -39,9 +39,10 @@ REASON_SETTLING = "settling after a set-point change"
 REASON_SPIKE = "spike (neighbour test)"
 REASON_RUN_IN = "sweep run-in from a hold (relaxation lag still building)"
 REASON_SLIP_SETTLING = "slip settling after the sweep stopped (relaxation lag decaying)"
+REASON_STEP_MOVE = "moving between slip steps (stepped sweep)"
 REASON_SPARSE = "too few samples in slip bin"
 REASONS = (REASON_TRANSITION, REASON_UNMATCHED, REASON_SETTLING, REASON_SPIKE, REASON_RUN_IN, REASON_SLIP_SETTLING,
-           REASON_SPARSE)
+           REASON_STEP_MOVE, REASON_SPARSE)
 
 SOUND, WITH_FINDINGS, UNUSABLE = "sound", "usable with findings", "unusable"
 NOTE, FINDING, BLOCKING = "note", "finding", "unusable"
@@ -275,9 +276,10 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
                 if spec.load_setpoints_n and ci == 0:
                     run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
                 continue
-            point, sparse = _operating_point(run, sel, direction, float(load), float(camber), bin_width, settings,
-                                             rated_load_n)
-            dropped[REASON_SPARSE] += sparse
+            point, drops = _operating_point(run, sel, direction, float(load), float(camber), bin_width, settings,
+                                            rated_load_n)
+            for reason, count in drops.items():
+                dropped[reason] += count
             if point is not None:
                 points.append(point)
 
@@ -307,27 +309,34 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
     x = ch[sweep][sel]
     d = direction[sel]
     data = {name: ch[name][sel] for name in ("fz", "fy", "mz", "fx") if name in ch}
-    sparse = 0
     halves = {}
     for label, sign in (("rising", 1), ("falling", -1)):
         m = d == sign
         if np.count_nonzero(m) == 0:
             halves[label] = None
             continue
-        curve, s = _bin_curve(sweep, x[m], {k: v[m] for k, v in data.items()}, bin_width, settings.min_samples_per_bin)
-        sparse += s
+        curve, _ = _bin_curve(sweep, x[m], {k: v[m] for k, v in data.items()}, bin_width, settings.min_samples_per_bin)
         halves[label] = curve if curve.n_points else None
     hyst = _hysteresis(halves["rising"], halves["falling"])
-    # Steady state: undo the lag of each moving half (rising samples saw x − lag, falling x + lag),
-    # then bin everything together; held samples need no shift.
-    shift = 0.0 if hyst is None or hyst.slip_lag is None else hyst.slip_lag
-    steady, s_all = _bin_curve(sweep, x - shift * d, data, bin_width, settings.min_samples_per_bin)
+    drops = {REASON_SPARSE: 0, REASON_STEP_MOVE: 0}
+    held = d == 0
+    if np.count_nonzero(held) > 0.5 * d.size:
+        # A stepped sweep: the held steps are the steady-state data; the moves between them
+        # are transitions.
+        drops[REASON_STEP_MOVE] = int(np.count_nonzero(~held))
+        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x[held], {k: v[held] for k, v in data.items()},
+                                                  bin_width, settings.min_samples_per_bin)
+    else:
+        # A continuous sweep: undo the lag of each moving half (rising samples saw x − lag,
+        # falling x + lag), then bin everything together; held samples need no shift.
+        shift = 0.0 if hyst is None or hyst.slip_lag is None else hyst.slip_lag
+        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x - shift * d, data, bin_width,
+                                                  settings.min_samples_per_bin)
     if steady.n_points == 0:
-        return None, sparse
+        return None, drops
     lines = run.line_numbers[sel]
     t = ch["time"][sel]
     main = data["fy" if sweep == "slip_angle" else "fx"]
-    sparse = s_all
     offsets = _offsets(steady) if sweep == "slip_angle" else None
     pressure = float(np.mean(ch["pressure"][sel])) if "pressure" in ch else None
     speed = float(np.mean(ch["speed"][sel])) if "speed" in ch else None
@@ -344,7 +353,7 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
         time_span_s=(float(t.min()), float(t.max())),
     )
     findings = _coverage(point, settings, rated_load_n)
-    return _replace_findings(point, findings), sparse
+    return _replace_findings(point, findings), drops
 
 
 def _replace_findings(point: OperatingPoint, findings) -> OperatingPoint:

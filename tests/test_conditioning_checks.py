@@ -185,3 +185,25 @@ def test_drift_needs_test_times(tmp_path):
     with pytest.raises(ManifestError, match=r"runs\[0\]\.tested_at: is required for every run when \[drift\] is set"):
         manifest(tmp_path, P.run_block("A", "rig/a.csv", [FZ0]), specimens=(("A", "control"),),
                  extra='\n[drift]\ncontrol = "A"\n')
+
+
+def test_stepped_sweeps_use_the_held_steps(tmp_path):
+    # Slip held for 1.5 s at each 1° step from −8° to +8°, moved at 8 °/s in between, with lag.
+    rate, dt = 8.0, 1.0 / P.RATE_HZ
+    targets = np.r_[np.arange(0, 9), np.arange(7, -9, -1), np.arange(-7, 1)].astype(float)
+    slip = [np.zeros(int(1.5 / dt))]
+    for a, b in zip(targets[:-1], targets[1:]):
+        n_move = max(1, int(abs(b - a) / rate / dt))
+        slip += [np.linspace(a, b, n_move, endpoint=False), np.full(int(1.5 / dt), b)]
+    slip = np.concatenate(slip)
+    t = np.arange(slip.size) * dt
+    fz = np.full(slip.size, FZ0)
+    rng = np.random.default_rng(5)
+    fy = tire()(P.lag(slip, 0.06), fz) + 5.0 * rng.standard_normal(slip.size)
+    P.write_csv(tmp_path / "rig/s.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -slip, -fz, -fy])
+    m = manifest(tmp_path, P.run_block("A", "rig/s.csv", [FZ0]))
+    run = conditioned(tmp_path, m)
+    (p,) = run.points
+    assert run.account.dropped["moving between slip steps (stepped sweep)"] > 0
+    assert sorted(np.round(p.curve.x).astype(int)) == list(range(-8, 9))
+    np.testing.assert_allclose(p.curve.fy_n, tire()(p.curve.x, p.curve.fz_n), atol=10.0)
