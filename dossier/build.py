@@ -15,20 +15,35 @@ from pathlib import Path
 from .condition import UNUSABLE, ConditionedRun, OperatingPoint, condition_run
 from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
-from .figures import (drift_figure, hysteresis_figure, lateral_force_figure, load_trend_figure,
-                      time_history_figure)
-from .fit import LateralFit, fit_lateral
+from .figures import (channel_figure, conditions_figure, drift_figure, hysteresis_figure, load_trend_figure,
+                      residual_figure, time_history_figure)
+from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .ingest import read_run
 from .manifest import Manifest, load_manifest
 from .metrics import METRICS, MetricValue, metric_values
 from .offsets import split_offsets
 from .output import json_bytes, write_dossier
 from .render import make_context, make_environment, render_pdf, render_site
-from .results import results_record
+from .results import coefficient_files, results_record
+from .sidewall import parse_size
 from .theme import load_theme
 
 PDF_NAME = "dossier.pdf"
 RESULTS_NAME = "results.json"
+
+
+@dataclass(frozen=True)
+class SpecimenModel:
+    """The fitted channels of one specimen (None where the data had none)."""
+
+    specimen: str
+    fy: ChannelFit | None
+    mz: ChannelFit | None
+    fx: ChannelFit | None
+
+    @property
+    def channels(self) -> list[ChannelFit]:
+        return [f for f in (self.fy, self.mz, self.fx) if f is not None]
 
 
 @dataclass(frozen=True)
@@ -69,26 +84,30 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     if drift and manifest.drift.correct:
         points, drift = correct_points(measured, drift)
     offset_splits = split_offsets(points)
-    fits = fit_specimens(points, manifest, fz0_n)
+    p0_kpa = nominal_pressure_kpa(manifest)
+    models = fit_specimens(points, manifest, fz0_n, p0_kpa)
+    fits = [m.fy for m in models if m.fy is not None]
     metrics = [m for f in fits for load in _fitted_loads(f, points) for m in metric_values(f, load)]
 
-    specimen_figures = {f.specimen: [lateral_force_figure(f, _points_of(f, points), theme.figure_style)]
-                        for f in fits}
+    specimen_figures = {m.specimen: specimen_figures_of(m, points, theme.figure_style) for m in models}
     summary_figures = [load_trend_figure(name, METRICS[name].label, METRICS[name].unit, metrics, theme.figure_style)
                        for name in ("cornering_coefficient", "peak_lateral_friction")]
     quality_figures = {c.account.run_index: _quality_figures(c, fz0_n, theme.figure_style) for c in conditioned}
     drift_figures = [drift_figure(drift, theme.figure_style)] if drift else []
-    ctx = make_context(manifest, conditioned, fits, metrics, specimen_figures, summary_figures, fz0_n,
+    ctx = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
                        quality_figures, drift, drift_figures, offset_splits)
     env = make_environment(theme, manifest.project_dir / "templates")
     site = render_site(ctx, env, theme)
     pdf = render_pdf(ctx, env, site)
-    results = results_record(manifest, conditioned, fits, metrics, drift, offset_splits)
+    all_fits = [f for m in models for f in m.channels]
+    results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits)
+    exports = coefficient_files(manifest, conditioned, models)
 
     # Start writing files now that all data is gathered.
     files = {f"site/{k}": v for k, v in site.items()}
     files[PDF_NAME] = pdf
     files[RESULTS_NAME] = json_bytes(results)
+    files.update(exports)
     write_dossier(out_dir, files)
     return BuildSummary(out_dir, len(files), len(fits), len(metrics))
 
@@ -100,18 +119,67 @@ def nominal_load_n(manifest: Manifest) -> float:
     return float(statistics.median(load for r in manifest.runs for load in r.load_setpoints_n))
 
 
-def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float) -> list[LateralFit]:
-    """Fit one lateral model per specimen and pressure, on the zero-camber forward slip-angle points."""
-    groups: dict[tuple[str, float], list[OperatingPoint]] = {}
-    for p in points:
-        if p.camber_deg == 0.0 and p.sweep == "slip_angle" and p.rolling_direction == "forward":
-            groups.setdefault((p.specimen, p.pressure_kpa), []).append(p)
-    fits = []
+def nominal_pressure_kpa(manifest: Manifest) -> float:
+    """p0: the manifest's choice, else the most common run pressure (to 1 kPa; ties: the lowest)."""
+    if manifest.fit.nominal_pressure_kpa:
+        return manifest.fit.nominal_pressure_kpa
+    rounded = [round(r.pressure_kpa) for r in manifest.runs]
+    best = max(sorted(set(rounded)), key=rounded.count)
+    return float(next(r.pressure_kpa for r in manifest.runs if round(r.pressure_kpa) == best))
+
+
+def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
+    """R0 of a specimen: the manifest's value, else from its size designation."""
+    s = manifest.specimen(specimen_id)
+    if s.unloaded_radius_m:
+        return s.unloaded_radius_m
+    size = parse_size(s.size)
+    if size is None:
+        i = manifest.specimens.index(s)
+        raise StageError(f"specimens[{i}].size: cannot read a size from {s.size!r} to get the unloaded radius "
+                         f"for the aligning-moment model; set specimens[{i}].unloaded_radius_m")
+    return size.unloaded_radius_m
+
+
+def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float,
+                  p0_kpa: float | None = None) -> list[SpecimenModel]:
+    """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen, from its forward runs."""
+    p0 = p0_kpa if p0_kpa is not None else nominal_pressure_kpa(manifest)
+    settings = manifest.fit
+    models = []
     for s in manifest.specimens:
-        for (sid, _), pts in sorted(groups.items()):
-            if sid == s.id:
-                fits.append(fit_lateral(pts, manifest.fit, fz0_n))
-    return fits
+        own = [p for p in points if p.specimen == s.id and p.rolling_direction == "forward"]
+        lateral = [p for p in own if p.sweep == "slip_angle" and p.curve.fy_n is not None]
+        longitudinal = [p for p in own if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
+        fy = mz = fx = None
+        r0 = None
+        if lateral:
+            fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
+            with_mz = [p for p in lateral if p.curve.mz_nm is not None]
+            if with_mz:
+                r0 = unloaded_radius_m(manifest, s.id)
+                mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
+        if longitudinal:
+            fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
+        if fy or fx:
+            models.append(SpecimenModel(s.id, fy, mz, fx))
+    return models
+
+
+def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:
+    return leave_one_load_out(fit, points, settings) if settings.leave_one_load_out else fit
+
+
+def specimen_figures_of(model: SpecimenModel, points: list[OperatingPoint], style) -> list:
+    figs = []
+    for fit in model.channels:
+        own = _points_of(fit, points)
+        figs.append(channel_figure(fit, own, style))
+        other = [p for p in own if p.camber_deg != 0.0 or round(p.pressure_kpa) != round(fit.p0_kpa)]
+        if other:
+            figs.append(conditions_figure(fit, other, style))
+        figs.append(residual_figure(fit, style))
+    return figs
 
 
 def _quality_figures(c: ConditionedRun, fz0_n: float, style):
@@ -123,13 +191,15 @@ def _quality_figures(c: ConditionedRun, fz0_n: float, style):
     return figs
 
 
-def _points_of(fit: LateralFit, points: list[OperatingPoint]) -> list[OperatingPoint]:
+def _points_of(fit: ChannelFit, points: list[OperatingPoint]) -> list[OperatingPoint]:
     keys = set(fit.source_points)
     return [p for p in points if p.key in keys]
 
 
-def _fitted_loads(fit: LateralFit, points: list[OperatingPoint]) -> list[float]:
-    return sorted({p.load_n for p in _points_of(fit, points)})
+def _fitted_loads(fit: ChannelFit, points: list[OperatingPoint]) -> list[float]:
+    """Loads measured at the nominal condition (zero camber, nominal pressure)."""
+    return sorted({p.load_n for p in _points_of(fit, points)
+                   if p.camber_deg == 0.0 and round(p.pressure_kpa) == round(fit.p0_kpa)})
 
 
 def _dropped_text(dropped: dict[str, int]) -> str:

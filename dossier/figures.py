@@ -16,7 +16,7 @@ from matplotlib.figure import Figure
 
 from .condition import ConditionedRun, OperatingPoint
 from .drift import DriftEstimate
-from .fit import LateralFit
+from .fit import ChannelFit
 from .metrics import MetricValue
 
 matplotlib.use("Agg")
@@ -51,39 +51,120 @@ def _render(style: Path | None, draw, size=(7.0, 4.2)) -> bytes:
         return _svg(fig)
 
 
-def lateral_force_figure(fit: LateralFit, points: list[OperatingPoint], style: Path | None) -> FigureArtifact:
-    """Fy against slip angle for every load: data cloud, conditioned bins and fitted curve."""
+_AXIS = {
+    "fy": ("Slip angle α [deg] (ISO 8855)", "Lateral force Fy [N]"),
+    "mz": ("Slip angle α [deg] (ISO 8855)", "Aligning moment Mz [N·m]"),
+    "fx": ("Slip ratio κ [1]", "Longitudinal force Fx [N]"),
+}
+_WORD = {"fy": "lateral force", "mz": "aligning moment", "fx": "longitudinal force"}
+
+
+def _measured(p: OperatingPoint, channel: str):
+    return {"fy": p.curve.fy_n, "mz": p.curve.mz_nm, "fx": p.curve.fx_n}[channel]
+
+
+def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path | None) -> FigureArtifact:
+    """Measured and fitted curves at the nominal condition (zero camber, nominal pressure), per load."""
+    nominal = sorted((p for p in points if p.camber_deg == 0.0 and round(p.pressure_kpa) == round(fit.p0_kpa)),
+                     key=lambda q: (q.load_n, q.run_index))
+    shown = nominal or sorted(points, key=lambda q: q.load_n)
+    xlabel, ylabel = _AXIS[fit.channel]
 
     def draw(fig):
         ax = fig.add_subplot()
         colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
-        lo, hi = fit.slip_range_deg
+        lo, hi = fit.slip_range
         grid = np.linspace(lo, hi, 241)
-        for i, p in enumerate(sorted(points, key=lambda q: q.load_n)):
-            c = colors[i % len(colors)]
-            step = max(1, p.raw_slip_angle_deg.size // (RAW_POINTS_SHOWN // max(len(points), 1)))
-            # Dense clouds are embedded as a bitmap inside the SVG (axes, text and curves stay
-            # vector): thousands of vector markers make the PDF slow to render and to open.
-            ax.plot(p.raw_slip_angle_deg[::step], p.raw_fy_n[::step], ".", ms=1.5, color=c, alpha=0.25,
-                    rasterized=True)
-            ax.plot(p.curve.slip_angle_deg, p.curve.fy_n, "o", ms=3.2, mfc="none", color=c)
-            ax.plot(grid, fit.predict_fy_n(grid, p.mean_load_n), "-", lw=1.4, color=c,
-                    label=f"{p.load_n / 1000:.1f} kN")
+        loads = sorted({p.load_n for p in shown})
+        for p in shown:
+            c = colors[loads.index(p.load_n) % len(colors)]
+            if fit.channel != "mz":
+                step = max(1, p.raw_x.size // (RAW_POINTS_SHOWN // max(len(shown), 1)))
+                # Dense clouds are embedded as a bitmap inside the SVG (axes, text and curves stay
+                # vector): thousands of vector markers make the PDF slow to render and to open.
+                ax.plot(p.raw_x[::step], p.raw_main[::step], ".", ms=1.5, color=c, alpha=0.25, rasterized=True)
+            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=3.2, mfc="none", color=c)
+        for load in loads:
+            c = colors[loads.index(load) % len(colors)]
+            ax.plot(grid, fit.predict(grid, load), "-", lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
         ax.axhline(0, lw=0.5, color="0.5")
         ax.axvline(0, lw=0.5, color="0.5")
-        ax.set_xlabel("Slip angle α [deg] (ISO 8855)")
-        ax.set_ylabel("Lateral force Fy [N]")
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(ylabel)
         ax.legend(title="Nominal load", fontsize="small", title_fontsize="small")
-        ax.set_title(f"{fit.specimen}: lateral force, {fit.pressure_kpa:.0f} kPa, camber {fit.camber_deg:g}°")
+        ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}, {fit.p0_kpa:.0f} kPa, camber 0°")
 
-    loads = ", ".join(f"{p.load_n / 1000:.1f}" for p in sorted(points, key=lambda q: q.load_n))
+    loads_txt = ", ".join(f"{v / 1000:.1f}" for v in sorted({p.load_n for p in shown}))
     return FigureArtifact(
-        f"fy-slip-{_slug(fit.specimen)}.svg",
-        f"Lateral force against slip angle, {fit.specimen}",
-        "Dots: kept rig samples (thinned); circles: conditioned slip-bin means; lines: fitted Magic Formula Fy0.",
-        f"Line chart of lateral force against slip angle for specimen {fit.specimen} at loads {loads} kN, "
-        f"measured points with the fitted Magic Formula curves.",
+        f"{fit.channel}-{_slug(fit.specimen)}.svg",
+        f"Measured and fitted {_WORD[fit.channel]}, {fit.specimen}",
+        ("Dots: kept rig samples (thinned); " if fit.channel != "mz" else "")
+        + f"circles: conditioned steady-state bins; lines: the fitted Magic Formula {fit.channel.upper()}0 "
+        "at the nominal condition.",
+        f"Chart of {_WORD[fit.channel]} against {xlabel.split(' [')[0].lower()} for specimen {fit.specimen} "
+        f"at loads {loads_txt} kN, measured points and fitted curves.",
         _render(style, draw))
+
+
+def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path | None) -> FigureArtifact:
+    """Measured and fitted curves away from the nominal condition (camber, pressure)."""
+    xlabel, ylabel = _AXIS[fit.channel]
+    pts = sorted(points, key=lambda q: (q.camber_deg, q.pressure_kpa, q.load_n))
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        lo, hi = fit.slip_range
+        grid = np.linspace(lo, hi, 241)
+        for i, p in enumerate(pts):
+            c = colors[i % len(colors)]
+            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c)
+            ax.plot(grid, fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa), "-", lw=1.2, color=c,
+                    label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa")
+        ax.axhline(0, lw=0.5, color="0.5")
+        ax.axvline(0, lw=0.5, color="0.5")
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(ylabel)
+        ax.legend(fontsize="x-small")
+        ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]} at other cambers and pressures")
+
+    return FigureArtifact(
+        f"{fit.channel}-conditions-{_slug(fit.specimen)}.svg",
+        f"Camber and pressure conditions, {_WORD[fit.channel]}, {fit.specimen}",
+        "Circles: conditioned steady-state bins; lines: the same fitted model at each point's load, "
+        "inclination and pressure.",
+        f"Chart of {_WORD[fit.channel]} for specimen {fit.specimen} at {len(pts)} operating points away from "
+        "the nominal camber and pressure, measured and fitted.",
+        _render(style, draw))
+
+
+def residual_figure(fit: ChannelFit, style: Path | None) -> FigureArtifact:
+    """Residuals (measured − fitted) against slip and against load."""
+    xlabel, ylabel = _AXIS[fit.channel]
+    unit = ylabel.split("[")[1].rstrip("]")
+
+    def draw(fig):
+        ax1, ax2 = fig.subplots(1, 2, sharey=True, gridspec_kw={"width_ratios": [2, 1]})
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        res = -fit.residual  # measured − fitted
+        ax1.plot(fit.residual_x, res, ".", ms=2.5, color=colors[0], rasterized=True)
+        ax1.axhline(0, lw=0.6, color="0.4")
+        ax1.set_xlabel(xlabel)
+        ax1.set_ylabel(f"Measured − fitted [{unit}]")
+        loads = fit.residual_load_n / 1000.0
+        jitter = (np.arange(loads.size) % 7 - 3) * 0.04
+        ax2.plot(loads + jitter, res, ".", ms=2.5, color=colors[1], rasterized=True)
+        ax2.axhline(0, lw=0.6, color="0.4")
+        ax2.set_xlabel("Nominal load [kN]")
+        fig.suptitle(f"{fit.specimen}: residuals of the {fit.channel.upper()}0 fit "
+                     f"(RMSE {fit.statistics.rmse:.3g} {unit})", fontsize="medium")
+
+    return FigureArtifact(
+        f"{fit.channel}-residuals-{_slug(fit.specimen)}.svg",
+        f"Residuals of the {_WORD[fit.channel]} fit, {fit.specimen}",
+        "Every conditioned point used by the fit; a trend against slip or load shows what the model misses.",
+        f"Scatter of {_WORD[fit.channel]} residuals against slip and against load for specimen {fit.specimen}.",
+        _render(style, draw, size=(7.0, 3.4)))
 
 
 def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricValue], style: Path | None) -> FigureArtifact:

@@ -280,6 +280,8 @@ MANIFEST_SCHEMA = Table({
         "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
         "construction": Key(Text(), required=False, default=""),
         "rated_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "unloaded_radius_m": Key(Number(minimum=0.1, maximum=1.5), required=False,
+                                 help="R0 for the aligning-moment model; default from the size designation"),
     }), min_items=1)),
     "runs": Key(ListOf(Table({
         "specimen": Key(Text()),
@@ -325,6 +327,8 @@ MANIFEST_SCHEMA = Table({
     }), required=False, default=None),
     "fit": Key(Table({
         "nominal_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "nominal_pressure_kpa": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "leave_one_load_out": Key(Boolean(), required=False, default=True),
         "loss": Key(Choice(("linear", "soft_l1", "huber")), required=False, default="soft_l1"),
         "max_evaluations": Key(Integer(minimum=50), required=False, default=4000),
     }), required=False, default=None),
@@ -354,6 +358,7 @@ class Specimen:
     size: str
     construction: str
     rated_load_n: float | None
+    unloaded_radius_m: float | None = None
 
 
 @dataclass(frozen=True)
@@ -412,6 +417,8 @@ class DriftSettings:
 @dataclass(frozen=True)
 class FitSettings:
     nominal_load_n: float | None = None
+    nominal_pressure_kpa: float | None = None
+    leave_one_load_out: bool = True
     loss: str = "soft_l1"
     max_evaluations: int = 4000
 
@@ -524,7 +531,8 @@ def _build(data: dict, project_dir: Path) -> Manifest:
     d = data["document"]
     document = DocumentInfo(d["title"], d["number"], d["revision"], d["customer"], d["program"],
                             d["supplier"], tuple(d["authors"]), d["date"])
-    specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"])
+    specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"],
+                               s["unloaded_radius_m"])
                       for s in data["specimens"])
     runs = []
     for i, r in enumerate(data["runs"]):

@@ -25,7 +25,7 @@ from .condition import ConditionedRun, ConditioningAccount
 from .drift import DriftEstimate
 from .errors import StageError
 from .figures import FigureArtifact
-from .fit import LateralFit
+from .fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME, ChannelFit
 from .manifest import Manifest, RunSpec, Specimen
 from .metrics import METRICS, MetricDefinition, MetricValue
 from .offsets import OffsetSplit
@@ -41,9 +41,17 @@ class SpecimenView:
     specimen: Specimen
     page: str
     accounts: tuple[ConditioningAccount, ...]
-    fit: LateralFit | None
+    fits: tuple[ChannelFit, ...]  # fy, mz, fx as available
     metrics: tuple[MetricValue, ...]
     figures: tuple[FigureArtifact, ...]
+
+    @property
+    def fit(self) -> ChannelFit | None:
+        """The lateral-force fit, which the metrics come from."""
+        return next((f for f in self.fits if f.channel == "fy"), None)
+
+    def figures_of(self, channel: str) -> list[FigureArtifact]:
+        return [f for f in self.figures if f.filename.startswith(channel + "-")]
 
 
 @dataclass(frozen=True)
@@ -88,7 +96,7 @@ class DossierContext:
         return [m for m in view.metrics if math.isclose(m.load_n, self.nominal_load_n)]
 
 
-def make_context(manifest: Manifest, conditioned: list[ConditionedRun], fits, metrics, specimen_figures,
+def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
                  summary_figures, nominal_load_n: float, quality_figures=None, drift=None, drift_figures=(),
                  offset_splits=()) -> DossierContext:
     accounts = [c.account for c in conditioned]
@@ -100,7 +108,7 @@ def make_context(manifest: Manifest, conditioned: list[ConditionedRun], fits, me
         views.append(SpecimenView(
             specimen=s, page=f"specimen-{_slug(s.id)}.html",
             accounts=tuple(a for a in accounts if a.specimen == s.id),
-            fit=next((f for f in fits if f.specimen == s.id), None),
+            fits=tuple(next((m.channels for m in models if m.specimen == s.id), ())),
             metrics=tuple(m for m in metrics if m.specimen == s.id),
             figures=tuple(specimen_figures.get(s.id, ())),
         ))
@@ -155,7 +163,8 @@ def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Env
     )
     env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, fixed=_fmt_fixed,
                        metric_label=_metric_label)
-    env.globals.update(options=theme.options)
+    env.globals.update(options=theme.options, channel_label=CHANNEL_LABEL, channel_unit=CHANNEL_UNIT,
+                       model_name=MODEL_NAME)
     return env
 
 

@@ -6,12 +6,16 @@ build against it. This module only assembles a plain dict; the writer serialises
 
 from __future__ import annotations
 
+import csv
+import hashlib
+import io
+import json
 import math
 
 from . import __version__, axes
 from .condition import ConditionedRun, OperatingPoint
 from .drift import DriftEstimate
-from .fit import LateralFit
+from .fit import MODEL_NAME, ChannelFit
 from .manifest import Manifest
 from .metrics import METRICS, MetricValue
 from .offsets import OffsetSplit
@@ -60,7 +64,41 @@ def _drift(d: DriftEstimate | None) -> dict | None:
     }
 
 
-def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: list[LateralFit],
+def _coefficient_record(c) -> dict:
+    return {"name": c.name, "value": _num(c.value), "unit": c.unit, "equation": c.equation,
+            "status": c.status, "stderr": _num(c.stderr),
+            "ci95": None if c.ci95 is None else [_num(c.ci95[0]), _num(c.ci95[1])],
+            "at_bound": c.at_bound, "note": c.note}
+
+
+def _fit_record(f: ChannelFit) -> dict:
+    return {
+        "model": MODEL_NAME[f.channel], "channel": f.channel, "specimen": f.specimen,
+        "fz0_n": _num(f.fz0_n), "p0_kpa": _num(f.p0_kpa), "r0_m": _num(f.r0_m) if f.channel == "mz" else None,
+        "pressure_kpa": _num(f.p0_kpa), "camber_deg": 0.0,
+        "load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
+        "slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
+        "slip_unit": "1" if f.channel == "fx" else "deg",
+        "camber_range_deg": [_num(f.camber_range_deg[0]), _num(f.camber_range_deg[1])],
+        "pressure_range_kpa": [_num(f.pressure_range_kpa[0]), _num(f.pressure_range_kpa[1])],
+        "statistics": {"n_points": f.statistics.n_points, "n_params": f.statistics.n_params,
+                       "dof": f.statistics.dof, "rmse": _num(f.statistics.rmse),
+                       "rmse_pct_of_peak": _num(f.statistics.rmse_pct_of_peak),
+                       "n_evaluations": f.statistics.n_evaluations, "restarts": f.statistics.restarts,
+                       "success": f.statistics.success},
+        "coefficients": [_coefficient_record(c) for c in f.coefficients],
+        "correlation": {"names": list(f.fitted_names),
+                        "matrix": [[_num(v) for v in row] for row in f.correlation]},
+        "leave_one_load_out": [{"load_n": _num(o.load_n), "rmse": _num(o.rmse),
+                                "rmse_pct_of_peak": _num(o.rmse_pct_of_peak), "extrapolated": o.extrapolated}
+                               for o in f.load_out],
+        "warnings": list(f.warnings),
+        "operating_points": [{"run": k[0], "load_n": _num(k[1]), "camber_deg": _num(k[2]), "pressure_kpa": _num(k[3])}
+                             for k in f.source_points],
+    }
+
+
+def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: list[ChannelFit],
                    metrics: list[MetricValue], drift: DriftEstimate | None = None,
                    offset_splits: list[OffsetSplit] = ()) -> dict:
     """Return the ``results.json`` content as plain data."""
@@ -109,29 +147,63 @@ def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: 
              "basis": v.basis, "extrapolated": v.extrapolated, "note": v.note}
             for v in metrics
         ],
-        "fits": [
-            {"model": "Magic Formula 2002 pure-slip lateral force Fy0",
-             "specimen": f.specimen, "pressure_kpa": _num(f.pressure_kpa), "camber_deg": _num(f.camber_deg),
-             "fz0_n": _num(f.fz0_n),
-             "load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
-             "slip_range_deg": [_num(f.slip_range_deg[0]), _num(f.slip_range_deg[1])],
-             "statistics": {"n_points": f.statistics.n_points, "n_params": f.statistics.n_params,
-                            "dof": f.statistics.dof, "rmse_n": _num(f.statistics.rmse_n),
-                            "rmse_pct_of_peak": _num(f.statistics.rmse_pct_of_peak),
-                            "n_evaluations": f.statistics.n_evaluations, "restarts": f.statistics.restarts,
-                            "success": f.statistics.success},
-             "coefficients": [
-                 {"name": c.name, "value": _num(c.value), "unit": c.unit, "equation": c.equation,
-                  "status": c.status, "stderr": _num(c.stderr),
-                  "ci95": None if c.ci95 is None else [_num(c.ci95[0]), _num(c.ci95[1])],
-                  "at_bound": c.at_bound, "note": c.note}
-                 for c in f.coefficients
-             ],
-             "warnings": list(f.warnings),
-             "operating_points": [
-                 {"run": k[0], "load_n": _num(k[1]), "camber_deg": _num(k[2]), "pressure_kpa": _num(k[3])}
-                 for k in f.source_points
-             ]}
-            for f in fits
-        ],
+        "fits": [_fit_record(f) for f in fits],
+
     }
+
+
+def coefficient_files(manifest: Manifest, conditioned: list[ConditionedRun], models) -> dict[str, bytes]:
+    """Return the coefficient export: per specimen a self-describing JSON and a flat CSV.
+
+    The layout is our own: every coefficient with value, standard error, 95 % interval, unit,
+    equation reference and status, and beside it the specimen, the model's nominal values, the
+    SHA-256 of every input file the fit used and the software version.
+    """
+    by_run = {c.account.run_index: c.account for c in conditioned}
+    d = manifest.document
+    files: dict[str, bytes] = {}
+    for m in models:
+        runs = sorted({k[0] for f in m.channels for k in f.source_points})
+        inputs = [{"file": by_run[r].source_file, "sha256": by_run[r].sha256} for r in runs]
+        data_hash = hashlib.sha256("".join(sorted(i["sha256"] for i in inputs)).encode()).hexdigest()
+        doc = {
+            "kind": "dossier coefficient set",
+            "layout_version": "1",
+            "software": {"name": "dossier", "version": __version__},
+            "document": {"number": d.number, "revision": d.revision},
+            "specimen": m.specimen,
+            "axis_convention": axes.INTERNAL,
+            "units": {"force": "N", "moment": "N·m", "slip_angle": "rad", "slip_ratio": "1",
+                      "inclination": "rad", "pressure": "kPa", "length": "m"},
+            "inputs": inputs,
+            "data_sha256": data_hash,
+            "channels": [
+                {"channel": f.channel, "model": MODEL_NAME[f.channel],
+                 "reference": "Pacejka, Tire and Vehicle Dynamics (2006) §4.3.2; pressure terms Besselink, "
+                              "Schmeitz & Pacejka (2010)",
+                 "fz0_n": _num(f.fz0_n), "p0_kpa": _num(f.p0_kpa), "r0_m": _num(f.r0_m) if f.channel == "mz" else None,
+                 "valid_load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
+                 "valid_slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
+                 "slip_unit_of_range": "1" if f.channel == "fx" else "deg",
+                 "coefficients": [_coefficient_record(c) for c in f.coefficients]}
+                for f in m.channels
+            ],
+        }
+        slug = "".join(ch.lower() if ch.isalnum() else "-" for ch in m.specimen).strip("-")
+        files[f"coefficients/{slug}.json"] = (json.dumps(doc, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["specimen", "channel", "name", "value", "stderr", "ci95_low", "ci95_high", "unit", "equation",
+                    "status", "note", "fz0_n", "p0_kpa", "r0_m", "axis_convention", "data_sha256",
+                    "software_version", "document", "revision"])
+        for f in m.channels:
+            for c in f.coefficients:
+                w.writerow([m.specimen, f.channel, c.name, repr(float(c.value)),
+                            "" if c.stderr is None else repr(float(c.stderr)),
+                            "" if c.ci95 is None else repr(float(c.ci95[0])),
+                            "" if c.ci95 is None else repr(float(c.ci95[1])),
+                            c.unit, c.equation, c.status, c.note, repr(float(f.fz0_n)), repr(float(f.p0_kpa)),
+                            repr(float(f.r0_m)) if f.channel == "mz" else "", axes.INTERNAL, data_hash,
+                            __version__, d.number, d.revision])
+        files[f"coefficients/{slug}.csv"] = buf.getvalue().encode("utf-8")
+    return files

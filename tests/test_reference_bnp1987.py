@@ -45,7 +45,8 @@ def test_published_tire_is_recovered_through_the_whole_pipeline(tmp_path, style)
     manifest, conditioned = check(_project(tmp_path, style))
     points = [p for c in conditioned for p in c.points]
     assert len(points) == 4
-    (fit,) = fit_specimens(points, manifest, nominal_load_n(manifest))
+    (model,) = fit_specimens(points, manifest, nominal_load_n(manifest))
+    fit = model.fy
     values = {m.metric: m for m in metric_values(fit, 4000.0)}
     B, C, D, E = bnp1987.coefficients(4.0)
     # SAE 870421 (1987) Tables 2-3: cornering stiffness BCD = 1027.3 N/deg at 4 kN
