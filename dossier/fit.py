@@ -346,8 +346,9 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
                          f"{budget} evaluations (fit.max_evaluations); last state: {res.message}")
 
     x = res.x
+    at_bound = (x - lo <= 1e-6 * (hi - lo)) | (hi - x <= 1e-6 * (hi - lo))
     if prune:
-        weak = _inseparable(resid, x, lo, hi, names)
+        weak = _inseparable(resid, x, names, ~at_bound)
         if weak is not None:
             # The data cannot separate this coefficient from others: hold it at its default
             # and fit again from here, rather than report a number the data do not determine.
@@ -366,7 +367,6 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
     if dof <= 0:
         raise StageError(f"specimen {specimen!r}: {n} conditioned points cannot determine {k} "
                          f"{CHANNEL_LABEL[channel]} coefficients")
-    at_bound = (x - lo <= 1e-6 * (hi - lo)) | (hi - x <= 1e-6 * (hi - lo))
     cov, note = _covariance(resid, x, r, dof, at_bound)
     sd = np.sqrt(np.diag(cov))
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -567,26 +567,28 @@ _HOLD_FIRST = {"pressure3": 0, "pressure_loads": 0, "pressure": 1, "camber_loads
                "loads": 4, "": 5}
 
 
-def _inseparable(resid, x, lo, hi, names) -> tuple[str, str] | None:
+def _inseparable(resid, x, names, free) -> tuple[str, str] | None:
     """Return (coefficient to hold, its closest partner) if the Jacobian is (nearly) singular.
 
-    Columns are normalised so that units do not matter; the weakest right singular vector says
-    which coefficients move together without changing the residual.
+    Only coefficients inside their bounds (`free`) take part. Columns are normalised so that
+    units do not matter; the weakest right singular vector says which coefficients move
+    together without changing the residual.
     """
-    if x.size == 0:
+    idx = np.flatnonzero(free)
+    if idx.size == 0:
         return None
-    J = _jacobian(resid, x)
+    J = _jacobian(resid, x)[:, idx]
     norms = np.linalg.norm(J, axis=0)
     if np.any(norms == 0):
-        return names[int(np.argmin(norms))], ""
+        return names[int(idx[np.argmin(norms)])], ""
     u, sv, vt = np.linalg.svd(J / norms, full_matrices=False)
     if sv[-1] > RCOND * sv[0]:
         return None
     v = np.abs(vt[-1])
     involved = [i for i in np.argsort(-v) if v[i] > 0.1 * v.max()]
-    hold = min(involved, key=lambda i: (_HOLD_FIRST[mf.INFO[names[i]].needs], -v[i]))
-    partner = next((names[i] for i in involved if i != hold), "")
-    return names[hold], partner
+    hold = min(involved, key=lambda i: (_HOLD_FIRST[mf.INFO[names[idx[i]]].needs], -v[i]))
+    partner = next((names[idx[i]] for i in involved if i != hold), "")
+    return names[idx[hold]], partner
 
 
 def _jacobian(resid, x):
@@ -615,12 +617,16 @@ def _covariance(resid, x, r, dof, at_bound):
     note = ""
     Jf = J[:, free]
     if Jf.shape[1]:
-        u, sv, vt = np.linalg.svd(Jf, full_matrices=False)
-        if sv[-1] <= sv[0] * 1e-10:
+        # Normalise the columns so that the units of the coefficients do not decide singularity.
+        norms = np.linalg.norm(Jf, axis=0)
+        if np.any(norms == 0):
+            return cov, "not estimable: a coefficient has no effect on these data"
+        u, sv, vt = np.linalg.svd(Jf / norms, full_matrices=False)
+        if sv[-1] <= sv[0] * RCOND:
             note = "not estimable: the Jacobian is singular (coefficients not separable by these data)"
             return cov, note
         inv = (vt.T / sv**2) @ vt
-        cov[np.ix_(free, free)] = s2 * inv
+        cov[np.ix_(free, free)] = s2 * inv / np.outer(norms, norms)
     return cov, note
 
 

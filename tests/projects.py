@@ -101,3 +101,21 @@ def run_block(sid: str, file: str, loads, load_unit="N", convention="SAE J670", 
             f'load_setpoints = {{ values = [{", ".join(str(v) for v in loads)}], unit = "{load_unit}" }}\n'
             f'pressure = {{ value = {pressure}, unit = "{pressure_unit}" }}\n'
             f'[runs.columns]\n{cols}\n')
+
+
+def operating_point(x, load_n, *, fy=None, mz=None, fx=None, camber_deg=0.0, pressure_kpa=250.0,
+                    sweep="slip_angle", specimen="S", run_index=0, fz=None):
+    """A conditioned operating point made directly from arrays (for fit-stage tests)."""
+    from dossier.condition import OperatingPoint, SlipCurve
+
+    x = np.asarray(x, dtype=float)
+    fz = np.full(x.size, float(load_n)) if fz is None else np.asarray(fz, dtype=float)
+    curve = SlipCurve(sweep, x, fz, fy, mz, fx, np.ones(x.size))
+    main = fy if sweep == "slip_angle" else fx
+    return OperatingPoint(
+        specimen=specimen, run_index=run_index, source_file="synthetic", sweep=sweep, rolling_direction="forward",
+        tested_at=None, load_n=float(load_n), camber_deg=float(camber_deg), pressure_kpa=float(pressure_kpa),
+        mean_load_n=float(np.mean(fz)), measured_pressure_kpa=None, mean_speed_kmh=None, curve=curve,
+        rising=None, falling=None, hysteresis=None, offsets=None, n_sweeps=1.0, raw_x=x,
+        raw_main=np.asarray(main, dtype=float), first_line=2, last_line=2 + x.size, n_samples_kept=x.size,
+        time_span_s=(0.0, 1.0))
