@@ -109,7 +109,7 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     files[RESULTS_NAME] = json_bytes(results)
     files.update(exports)
     write_dossier(out_dir, files)
-    return BuildSummary(out_dir, len(files), len(fits), len(metrics))
+    return BuildSummary(out_dir, len(files), len(all_fits), len(metrics))
 
 
 def nominal_load_n(manifest: Manifest) -> float:

@@ -33,7 +33,7 @@ def build(project: Path, out_dir: Path | None, theme: str) -> None:
     from .build import build as run_build
 
     summary = run_build(project, out_dir, theme)
-    click.echo(f"dossier written to {summary.out_dir}: {summary.n_fits} fit(s), {summary.n_metrics} metric "
+    click.echo(f"dossier written to {summary.out_dir}: {summary.n_fits} fitted channel(s), {summary.n_metrics} metric "
                f"values, {summary.n_files} files (site/index.html, dossier.pdf, results.json)")
 
 
