@@ -20,7 +20,7 @@ from .figures import (channel_figure, conditions_figure, drift_figure, hysteresi
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .ingest import read_run
 from .manifest import Manifest, load_manifest
-from .metrics import METRICS, MetricValue, metric_values
+from .metrics import METRICS, Models, MetricValue, metric_values, specimen_metrics
 from .offsets import split_offsets
 from .output import json_bytes, write_dossier
 from .render import make_context, make_environment, render_pdf, render_site
@@ -58,7 +58,7 @@ def check(project_dir: Path) -> tuple[Manifest, list[ConditionedRun]]:
     """Validate the manifest and read and condition every rig file, without fitting or writing."""
     manifest = load_manifest(project_dir)
     runs = [read_run(manifest.project_dir, spec) for spec in manifest.runs]
-    conditioned = [condition_run(run, manifest.conditioning, manifest.specimen(run.spec.specimen).rated_load_n)
+    conditioned = [condition_run(run, manifest.conditioning, rated_load_n(manifest.specimen(run.spec.specimen)))
                    for run in runs]
     for c in conditioned:
         if c.account.verdict == UNUSABLE:
@@ -87,11 +87,12 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     p0_kpa = nominal_pressure_kpa(manifest)
     models = fit_specimens(points, manifest, fz0_n, p0_kpa)
     fits = [m.fy for m in models if m.fy is not None]
-    metrics = [m for f in fits for load in _fitted_loads(f, points) for m in metric_values(f, load)]
+    metrics = specimen_metric_values(models, points, manifest)
 
     specimen_figures = {m.specimen: specimen_figures_of(m, points, theme.figure_style) for m in models}
     summary_figures = [load_trend_figure(name, METRICS[name].label, METRICS[name].unit, metrics, theme.figure_style)
-                       for name in ("cornering_coefficient", "peak_lateral_friction")]
+                       for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail")
+                       if any(m.metric == name for m in metrics)]
     quality_figures = {c.account.run_index: _quality_figures(c, fz0_n, theme.figure_style) for c in conditioned}
     drift_figures = [drift_figure(drift, theme.figure_style)] if drift else []
     ctx = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
@@ -117,6 +118,29 @@ def nominal_load_n(manifest: Manifest) -> float:
     if manifest.fit.nominal_load_n:
         return manifest.fit.nominal_load_n
     return float(statistics.median(load for r in manifest.runs for load in r.load_setpoints_n))
+
+
+def rated_load_n(specimen) -> float | None:
+    """The rated load per tire: the manifest's value, else from the load index of the size."""
+    if specimen.rated_load_n:
+        return specimen.rated_load_n
+    size = parse_size(specimen.size)
+    return None if size is None else size.rated_load_n
+
+
+def specimen_metric_values(models: list[SpecimenModel], points: list[OperatingPoint],
+                           manifest: Manifest) -> list[MetricValue]:
+    """Metrics at every load measured at the nominal condition, the nominal load and any asked-for load."""
+    out = []
+    for m in models:
+        ms = Models(m.specimen, m.fy, m.mz, m.fx)
+        ref = m.fy or m.fx
+        loads = set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(manifest.metrics.loads_n)
+        own = [p for p in points if p.specimen == m.specimen]
+        for load in sorted(loads):
+            out += metric_values(ms, load, own, manifest.metrics.crosscheck_threshold_pct)
+        out += specimen_metrics(ms)
+    return out
 
 
 def nominal_pressure_kpa(manifest: Manifest) -> float:

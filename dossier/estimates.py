@@ -10,15 +10,19 @@ import numpy as np
 
 from .condition import SlipCurve
 
-LINEAR_HALF_RANGE_DEG = 1.0  # local linear fit of Fy over |α| ≤ 1° (common practice)
+LOCAL_HALF_RANGE_DEG = 2.0  # local fit of Fy over |α| ≤ 2°
 
 
 def cornering_stiffness_n_per_deg(curve: SlipCurve) -> float | None:
-    """Return −dFy/dα at zero slip from a straight line through the points with |α| ≤ 1°."""
-    near = np.abs(curve.x) <= LINEAR_HALF_RANGE_DEG + 1e-9
-    if np.count_nonzero(near) < 3 or curve.fy_n is None:
+    """Return −dFy/dα at zero slip from a local cubic through the points with |α| ≤ 2°.
+
+    A cubic (not a straight line) so that the curvature of Fy within ±2° does not bias the
+    slope at zero; its linear coefficient is the slope there.
+    """
+    near = np.abs(curve.x) <= LOCAL_HALF_RANGE_DEG + 1e-9
+    if np.count_nonzero(near) < 5 or curve.fy_n is None:
         return None
-    return float(-np.polyfit(curve.x[near], curve.fy_n[near], 1)[0])
+    return float(-np.polyfit(curve.x[near], curve.fy_n[near], 3)[2])
 
 
 def peak_friction(curve: SlipCurve) -> float | None:

@@ -38,7 +38,7 @@ class FigureArtifact:
 
 def _svg(fig: Figure) -> bytes:
     buf = io.BytesIO()
-    fig.savefig(buf, format="svg", dpi=200, metadata={"Date": None, "Creator": None})
+    fig.savefig(buf, format="svg", dpi=150, metadata={"Date": None, "Creator": None})
     return buf.getvalue()
 
 
@@ -83,7 +83,7 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path | 
                 # Dense clouds are embedded as a bitmap inside the SVG (axes, text and curves stay
                 # vector): thousands of vector markers make the PDF slow to render and to open.
                 ax.plot(p.raw_x[::step], p.raw_main[::step], ".", ms=1.5, color=c, alpha=0.25, rasterized=True)
-            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=3.2, mfc="none", color=c)
+            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=3.2, mfc="none", color=c, rasterized=True)
         for load in loads:
             c = colors[loads.index(load) % len(colors)]
             ax.plot(grid, fit.predict(grid, load), "-", lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
@@ -118,7 +118,7 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path
         grid = np.linspace(lo, hi, 241)
         for i, p in enumerate(pts):
             c = colors[i % len(colors)]
-            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c)
+            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c, rasterized=True)
             ax.plot(grid, fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa), "-", lw=1.2, color=c,
                     label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa")
         ax.axhline(0, lw=0.5, color="0.5")

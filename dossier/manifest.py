@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 from typing import Any, Callable
 
-from . import axes, units
+from . import axes, sidewall, units
 from .errors import ManifestError, Problem
 
 MANIFEST_NAME = "dossier.toml"
@@ -280,6 +280,7 @@ MANIFEST_SCHEMA = Table({
         "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
         "construction": Key(Text(), required=False, default=""),
         "rated_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "tin": Key(Text(), required=False, help="DOT tire identification number, e.g. 'DOT 7HX2 VK3R 4126'"),
         "unloaded_radius_m": Key(Number(minimum=0.1, maximum=1.5), required=False,
                                  help="R0 for the aligning-moment model; default from the size designation"),
     }), min_items=1)),
@@ -321,6 +322,11 @@ MANIFEST_SCHEMA = Table({
         "min_points_per_curve": Key(Integer(minimum=5), required=False, default=12),
         "pressure_tolerance_pct": Key(Number(minimum=0.1, maximum=50), required=False, default=3.0),
     }), required=False, default=None),
+    "metrics": Key(Table({
+        "loads_n": Key(ListOf(Number(minimum=0, exclusive_minimum=True)), required=False, default=[],
+                       help="extra loads to report metrics at, besides the measured ones"),
+        "crosscheck_threshold_pct": Key(Number(minimum=0.1, maximum=50), required=False, default=5.0),
+    }), required=False, default=None),
     "drift": Key(Table({
         "control": Key(Text(), help="id of the control specimen re-tested through the session"),
         "correct": Key(Boolean(), required=False, default=False),
@@ -359,6 +365,7 @@ class Specimen:
     construction: str
     rated_load_n: float | None
     unloaded_radius_m: float | None = None
+    tin: str | None = None
 
 
 @dataclass(frozen=True)
@@ -409,6 +416,12 @@ class ConditioningSettings:
 
 
 @dataclass(frozen=True)
+class MetricSettings:
+    loads_n: tuple[float, ...] = ()
+    crosscheck_threshold_pct: float = 5.0
+
+
+@dataclass(frozen=True)
 class DriftSettings:
     control: str
     correct: bool = False
@@ -432,6 +445,7 @@ class Manifest:
     conditioning: ConditioningSettings = field(default_factory=ConditioningSettings)
     fit: FitSettings = field(default_factory=FitSettings)
     drift: DriftSettings | None = None
+    metrics: MetricSettings = field(default_factory=MetricSettings)
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
@@ -475,6 +489,15 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
             problems.append(Problem(f"specimens[{i}].id", f"duplicate specimen id {s['id']!r}"))
         if s and s.get("id"):
             seen.add(s["id"])
+    for i, s in enumerate(specimens):
+        if s and s.get("size") and sidewall.parse_size(s["size"]) is None:
+            problems.append(Problem(f"specimens[{i}].size", f"cannot read {s['size']!r} as a size designation; "
+                                    "expected e.g. '225/45 R17 94W', 'LT265/75R16 123/120R' or '295/75R22.5 144/141L'"))
+        if s and s.get("tin"):
+            try:
+                sidewall.parse_tin(s["tin"])
+            except sidewall.SidewallError as exc:
+                problems.append(Problem(f"specimens[{i}].tin", str(exc)))
     baselines = [s for s in specimens if s and s.get("role") == "baseline"]
     if specimens and len(baselines) > 1:
         problems.append(Problem("specimens", f"at most one specimen may have role 'baseline'; got {len(baselines)}"))
@@ -532,7 +555,7 @@ def _build(data: dict, project_dir: Path) -> Manifest:
     document = DocumentInfo(d["title"], d["number"], d["revision"], d["customer"], d["program"],
                             d["supplier"], tuple(d["authors"]), d["date"])
     specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"],
-                               s["unloaded_radius_m"])
+                               s["unloaded_radius_m"], s["tin"])
                       for s in data["specimens"])
     runs = []
     for i, r in enumerate(data["runs"]):
@@ -554,4 +577,6 @@ def _build(data: dict, project_dir: Path) -> Manifest:
     cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
     fit = FitSettings(**data["fit"]) if data.get("fit") else FitSettings()
     drift = DriftSettings(**data["drift"]) if data.get("drift") else None
-    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift)
+    met = data.get("metrics")
+    metrics = MetricSettings(tuple(met["loads_n"] or ()), met["crosscheck_threshold_pct"]) if met else MetricSettings()
+    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics)

@@ -1,9 +1,15 @@
-"""Metrics: the numbers the trade reads, from the fitted model, each with a 95 % interval.
+"""Metrics: the numbers the trade reads, from the fitted models, each with a 95 % interval.
 
-Every metric is declared once in :data:`METRICS` (name, unit, definition, how it is computed,
-the source that defines it, and the function that computes it from a fitted model at a
-load). Intervals come from the fit covariance by the delta method: the metric's gradient with
-respect to the fitted coefficients, ``var = gᵀ Σ g``, times the fit's Student-t quantile.
+Every metric is declared once in :data:`METRICS`: name, label, unit, definition, how it is
+computed, the source that defines it, which fitted channels it needs, and the function that
+computes it. The glossary, the tables and ``results.json`` all read this registry; adding a
+metric is one entry here.
+
+Intervals come from the fit covariance by the delta method: the metric's gradient with
+respect to the fitted coefficients, ``var = gᵀ Σ g``, summed over the channels it uses (the
+channels are treated as independent: Mz0 is fitted given Fy0), times the Student-t quantile
+of the fit. Metrics are evaluated at zero camber and the nominal pressure p0, at any load:
+loads outside the fitted range are labelled extrapolation.
 """
 
 from __future__ import annotations
@@ -14,15 +20,36 @@ from typing import Callable
 import numpy as np
 from scipy import optimize
 
-from .fit import LateralFit
+from . import estimates
+from .condition import OperatingPoint
+from .fit import ChannelFit
 
 SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
-PEAK_GRID_DEG = 0.05
+SLIP_STEP_RATIO = 1e-5
+GRID_DEG = 0.05
+GRID_RATIO = 0.001
+LINEAR_RANGE_FRACTION = 0.10  # linear range: where |Fy − Cα·α| first exceeds 10 % of |Cα·α| (common practice)
+
+
+@dataclass(frozen=True)
+class Models:
+    """The fitted channels of one specimen that metrics are computed from."""
+
+    specimen: str
+    fy: ChannelFit | None
+    mz: ChannelFit | None
+    fx: ChannelFit | None
+
+    def get(self, channel: str) -> ChannelFit | None:
+        return getattr(self, channel)
+
+
+Values = dict[str, dict[str, float]]  # channel -> coefficient values
 
 
 @dataclass(frozen=True)
 class MetricDefinition:
-    """What a metric is, for the glossary and for ``results.json``."""
+    """What a metric is, for the glossary, the tables and ``results.json``."""
 
     name: str
     label: str
@@ -30,7 +57,10 @@ class MetricDefinition:
     definition: str
     computed: str
     source: str
-    compute: Callable[[LateralFit, float, dict[str, float]], float]
+    channels: tuple[str, ...]
+    compute: Callable[[Models, float, Values], float | None]
+    per_load: bool = True  # False: one value per specimen (load sensitivity)
+    headline: bool = False  # shown in the summary and by-load tables
 
 
 @dataclass(frozen=True)
@@ -49,115 +79,352 @@ class MetricValue:
     basis: str  # "model"
     extrapolated: bool
     note: str = ""
+    crosscheck: float | None = None  # model-free estimate from the conditioned data
+    crosscheck_diff_pct: float | None = None
+    finding: str = ""
 
 
-def _cornering_stiffness(fit: LateralFit, load_n: float, values: dict[str, float]) -> float:
-    h = SLIP_STEP_DEG
-    fy = fit.predict_fy_n(np.array([-h, h]), load_n, values)
-    return float(-(fy[1] - fy[0]) / (2 * h))
+# --- evaluation helpers -----------------------------------------------------------------------
+
+def _fy(m: Models, x, load, v: Values):
+    return m.fy.predict(x, load, values=v["fy"])
 
 
-def _cornering_coefficient(fit, load_n, values):
-    return _cornering_stiffness(fit, load_n, values) / load_n
+def _mz(m: Models, x, load, v: Values):
+    return m.mz.predict(x, load, values=v["mz"])
 
 
-def _side_peak(fit: LateralFit, load_n: float, values: dict[str, float], sign: float) -> tuple[float, float, bool]:
-    """Return (|Fy|max, |slip angle| at it in deg, reached inside the range) on one side of zero slip."""
-    lo, hi = fit.slip_range_deg
-    edge = hi if sign > 0 else -lo
-    grid = np.arange(0.0, edge + PEAK_GRID_DEG / 2, PEAK_GRID_DEG)
-    fy = np.abs(fit.predict_fy_n(sign * grid, load_n, values))
-    i = int(np.argmax(fy))
-    if i == grid.size - 1 or i == 0:
-        return float(fy[i]), float(grid[i]), False
-    res = optimize.minimize_scalar(lambda a: -abs(float(fit.predict_fy_n(sign * a, load_n, values))),
-                                   bounds=(grid[i - 1], grid[i + 1]), method="bounded",
-                                   options={"xatol": 1e-6})
+def _fx(m: Models, x, load, v: Values):
+    return m.fx.predict(x, load, values=v["fx"])
+
+
+def _slope(f, h):
+    return float((f(h) - f(-h)) / (2 * h))
+
+
+def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, bool]:
+    """Return (|y|max, |x| at it, reached inside the range) of f on one side of zero, up to `edge`."""
+    grid = np.arange(0.0, edge + step / 2, step)
+    y = np.abs(f(sign * grid))
+    i = int(np.argmax(y))
+    if i == 0 or i == grid.size - 1:
+        return float(y[i]), float(grid[i]), False
+    res = optimize.minimize_scalar(lambda a: -abs(float(f(sign * a))), bounds=(grid[i - 1], grid[i + 1]),
+                                   method="bounded", options={"xatol": 1e-7})
     return float(-res.fun), float(res.x), True
 
 
-def _peak(fit: LateralFit, load_n: float, values: dict[str, float]) -> tuple[float, float, bool]:
-    """Return (mean |Fy|max of both slip directions, mean |slip| at them, both reached in range).
-
-    Averaging the positive- and negative-slip peaks cancels the offset that ply-steer and
-    conicity add to one side and take from the other (common practice).
-    """
-    fp, ap, okp = _side_peak(fit, load_n, values, +1.0)
-    fn, an, okn = _side_peak(fit, load_n, values, -1.0)
-    return 0.5 * (fp + fn), 0.5 * (ap + an), okp and okn
+def _lateral_peak(m, load, v, sign):
+    lo, hi = m.fy.slip_range
+    return _side_peak(lambda a: _fy(m, a, load, v), hi if sign > 0 else -lo, sign, GRID_DEG)
 
 
-def _peak_friction(fit, load_n, values):
-    return _peak(fit, load_n, values)[0] / load_n
+def _mz_peak(m, load, v, sign):
+    lo, hi = m.mz.slip_range
+    return _side_peak(lambda a: _mz(m, a, load, v), hi if sign > 0 else -lo, sign, GRID_DEG)
 
 
-def _slip_at_peak(fit, load_n, values):
-    return _peak(fit, load_n, values)[1]
+def _fx_peak(m, load, v, sign):
+    lo, hi = m.fx.slip_range
+    return _side_peak(lambda k: _fx(m, k, load, v), hi if sign > 0 else -lo, sign, GRID_RATIO)
 
 
+def cornering_stiffness(m, load, v):
+    return -_slope(lambda a: _fy(m, a, load, v), SLIP_STEP_DEG)
+
+
+def _linear_range_side(m, load, v, sign):
+    k = -cornering_stiffness(m, load, v)  # dFy/dα, N/deg (negative in ISO 8855)
+    f0 = float(_fy(m, 0.0, load, v))
+    lo, hi = m.fy.slip_range
+    edge = hi if sign > 0 else -lo
+
+    def excess(a):
+        lin = k * sign * a
+        return np.abs(_fy(m, sign * a, load, v) - f0 - lin) - LINEAR_RANGE_FRACTION * np.abs(lin)
+
+    grid = np.arange(0.05, edge, 0.05)
+    vals = excess(grid)
+    above = np.flatnonzero(vals > 0)
+    if above.size == 0:
+        return None
+    i = above[0]
+    if i == 0:
+        return float(grid[0])
+    return float(optimize.brentq(lambda a: float(excess(a)), grid[i - 1], grid[i], xtol=1e-8))
+
+
+def _both(fn):
+    def mean(m, load, v):
+        a, b = fn(m, load, v, 1.0), fn(m, load, v, -1.0)
+        return None if a is None or b is None else 0.5 * (a + b)
+    return mean
+
+
+def _retention_side(m, load, v, sign):
+    peak, _, _ = _lateral_peak(m, load, v, sign)
+    lo, hi = m.fy.slip_range
+    edge = hi if sign > 0 else lo
+    return float(abs(_fy(m, edge, load, v)) / peak)
+
+
+def aligning_stiffness(m, load, v):
+    return _slope(lambda a: _mz(m, a, load, v), SLIP_STEP_DEG)
+
+
+def pneumatic_trail_mm(m, load, v):
+    dfy = -cornering_stiffness(m, load, v)
+    return 1000.0 * -aligning_stiffness(m, load, v) / dfy if dfy else None
+
+
+def _root_near_zero(f, half=3.0):
+    grid = np.linspace(-half, half, 121)
+    y = np.asarray(f(grid), dtype=float)
+    s = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
+    if s.size == 0:
+        return None
+    i = s[np.argmin(np.abs(grid[s]))]
+    return float(optimize.brentq(lambda a: float(f(a)), grid[i], grid[i + 1], xtol=1e-10))
+
+
+def residual_cornering_force(m, load, v):
+    a = _root_near_zero(lambda x: _mz(m, x, load, v))
+    return None if a is None else float(_fy(m, a, load, v))
+
+
+def residual_aligning_moment(m, load, v):
+    a = _root_near_zero(lambda x: _fy(m, x, load, v))
+    return None if a is None else float(_mz(m, a, load, v))
+
+
+def camber_stiffness(m, load, v):
+    if not any(c.status == "fitted" and c.name in ("pVy3", "pVy4", "pHy3", "pKy3") for c in m.fy.coefficients):
+        return None  # no cambered data: camber dependence held at its default
+    h = 1e-3
+    return float((m.fy.predict(0.0, load, h, values=v["fy"]) - m.fy.predict(0.0, load, -h, values=v["fy"])) / (2 * h))
+
+
+def slip_stiffness(m, load, v):
+    return _slope(lambda k: _fx(m, k, load, v), SLIP_STEP_RATIO)
+
+
+def _peak_mu_at(m, load, v):
+    return 0.5 * (_lateral_peak(m, load, v, 1.0)[0] + _lateral_peak(m, load, v, -1.0)[0]) / load
+
+
+def friction_load_sensitivity(m, load, v):
+    fz0 = m.fy.fz0_n
+    h = 0.05 * fz0
+    return float((_peak_mu_at(m, fz0 + h, v) - _peak_mu_at(m, fz0 - h, v)) / (2 * h / 1000.0))
+
+
+def load_at_max_cornering_stiffness(m, load, v):
+    fz0 = m.fy.fz0_n
+    res = optimize.minimize_scalar(lambda fz: -cornering_stiffness(m, fz, v), bounds=(0.2 * fz0, 4.0 * fz0),
+                                   method="bounded", options={"xatol": 0.1})
+    return float(res.x)
+
+
+D = MetricDefinition
 METRICS: dict[str, MetricDefinition] = {m.name: m for m in (
-    MetricDefinition(
-        "cornering_stiffness", "Cornering stiffness", "N/deg",
-        "Negative slope of lateral force against slip angle at zero slip angle.",
-        "Central difference of the fitted Fy0 model at zero slip (±0.001°).",
-        "SAE J670 (cornering stiffness); Pacejka 2006 §4.3.2", _cornering_stiffness),
-    MetricDefinition(
-        "cornering_coefficient", "Cornering coefficient", "1/deg",
-        "Cornering stiffness divided by the normal load.",
-        "Model cornering stiffness divided by the nominal load of the operating point.",
-        "SAE J670; Gillespie 1992, ch. 6", _cornering_coefficient),
-    MetricDefinition(
-        "peak_lateral_friction", "Peak lateral friction", "1",
-        "Largest |Fy| divided by the normal load, averaged over the positive and negative slip "
-        "directions, within the measured slip-angle range.",
-        "Maximum of |Fy0| of the fitted model on each side of zero slip within the measured range, "
-        "refined by a bounded scalar search; the two sides averaged and divided by the nominal load.",
-        "common practice", _peak_friction),
-    MetricDefinition(
-        "slip_angle_at_peak", "Slip angle at peak", "deg",
-        "Magnitude of the slip angle at which |Fy| is largest, averaged over both slip directions.",
-        "Arguments of the two maxima found for peak lateral friction, as magnitudes, averaged.",
-        "common practice", _slip_at_peak),
+    D("cornering_stiffness", "Cornering stiffness", "N/deg",
+      "Negative slope of lateral force against slip angle at zero slip angle.",
+      "Central difference of the fitted Fy0 at zero slip (±0.001°), zero camber, nominal pressure.",
+      "SAE J670 (cornering stiffness); Pacejka 2006 §4.3.2", ("fy",), cornering_stiffness, headline=True),
+    D("cornering_coefficient", "Cornering coefficient", "1/deg",
+      "Cornering stiffness divided by the normal load.",
+      "Model cornering stiffness divided by the load the metric is evaluated at.",
+      "SAE J670; Gillespie 1992, ch. 6", ("fy",), lambda m, L, v: cornering_stiffness(m, L, v) / L, headline=True),
+    D("peak_lateral_friction", "Peak lateral friction", "1",
+      "Largest |Fy| over the normal load, averaged over the positive and negative slip directions "
+      "(the average cancels the ply-steer and conicity offset), within the measured slip range.",
+      "Maximum of |Fy0| of the fitted model on each side of zero slip, refined by a bounded scalar search.",
+      "common practice", ("fy",), lambda m, L, v: _peak_mu_at(m, L, v), headline=True),
+    D("peak_lateral_friction_positive_slip", "Peak lateral friction, positive slip", "1",
+      "Largest |Fy| over the normal load for positive slip angles (ISO 8855).",
+      "As peak lateral friction, positive side only.", "common practice", ("fy",),
+      lambda m, L, v: _lateral_peak(m, L, v, 1.0)[0] / L),
+    D("peak_lateral_friction_negative_slip", "Peak lateral friction, negative slip", "1",
+      "Largest |Fy| over the normal load for negative slip angles (ISO 8855).",
+      "As peak lateral friction, negative side only.", "common practice", ("fy",),
+      lambda m, L, v: _lateral_peak(m, L, v, -1.0)[0] / L),
+    D("slip_angle_at_peak", "Slip angle at peak", "deg",
+      "Magnitude of the slip angle at which |Fy| is largest, averaged over both slip directions.",
+      "Arguments of the two maxima found for peak lateral friction, averaged.", "common practice", ("fy",),
+      lambda m, L, v: 0.5 * (_lateral_peak(m, L, v, 1.0)[1] + _lateral_peak(m, L, v, -1.0)[1]), headline=True),
+    D("slip_angle_at_peak_positive_slip", "Slip angle at peak, positive slip", "deg",
+      "Slip angle at which |Fy| is largest for positive slip angles.", "Argument of the positive-side maximum.",
+      "common practice", ("fy",), lambda m, L, v: _lateral_peak(m, L, v, 1.0)[1]),
+    D("slip_angle_at_peak_negative_slip", "Slip angle at peak, negative slip", "deg",
+      "Magnitude of the slip angle at which |Fy| is largest for negative slip angles.",
+      "Argument of the negative-side maximum.", "common practice", ("fy",),
+      lambda m, L, v: _lateral_peak(m, L, v, -1.0)[1]),
+    D("linear_range", "Linear range", "deg",
+      f"Slip angle up to which Fy stays within {100 * LINEAR_RANGE_FRACTION:.0f} % of Cα·α (measured from the "
+      "zero-slip offset), averaged over both directions.",
+      "First slip angle on each side where |Fy − Fy(0) − Cα·α| exceeds the fraction of |Cα·α| (grid, then Brent's method).",
+      "common practice", ("fy",), _both(_linear_range_side)),
+    D("post_peak_retention", "Post-peak retention", "1",
+      "|Fy| at the largest measured slip angle divided by the peak |Fy|, averaged over both directions.",
+      "Model values at the edges of the measured slip range over the model peaks.", "common practice", ("fy",),
+      _both(_retention_side)),
+    D("aligning_stiffness", "Aligning stiffness", "N·m/deg",
+      "Slope of aligning moment against slip angle at zero slip (positive: restoring).",
+      "Central difference of the fitted Mz0 at zero slip.", "SAE J670; Pacejka 2006 §4.3.2", ("mz",),
+      aligning_stiffness),
+    D("pneumatic_trail", "Pneumatic trail at zero slip", "mm",
+      "t0 = −(dMz/dα)/(dFy/dα) at zero slip angle.",
+      "Ratio of the fitted models' slopes at zero slip.", "Pacejka 2006 §4.3; domain primer §5", ("fy", "mz"),
+      pneumatic_trail_mm, headline=True),
+    D("peak_aligning_moment", "Peak aligning moment", "N·m",
+      "Largest |Mz| within the measured slip range, averaged over both slip directions.",
+      "Maximum of |Mz0| of the fitted model on each side of zero slip.", "common practice", ("mz",),
+      lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[0] + _mz_peak(m, L, v, -1.0)[0])),
+    D("slip_angle_at_peak_aligning_moment", "Slip angle at peak aligning moment", "deg",
+      "Magnitude of the slip angle at which |Mz| is largest, averaged over both directions.",
+      "Arguments of the two Mz0 maxima, averaged.", "common practice", ("mz",),
+      lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[1] + _mz_peak(m, L, v, -1.0)[1])),
+    D("residual_cornering_force", "Residual cornering force", "N",
+      "Lateral force at the slip angle where the aligning moment is zero (ply-steer and conicity together).",
+      "Root of the fitted Mz0 near zero slip, Fy0 there.", "common practice", ("fy", "mz"),
+      residual_cornering_force),
+    D("residual_aligning_moment", "Residual aligning moment", "N·m",
+      "Aligning moment at the slip angle where the lateral force is zero.",
+      "Root of the fitted Fy0 near zero slip, Mz0 there.", "common practice", ("fy", "mz"),
+      residual_aligning_moment),
+    D("camber_stiffness", "Camber stiffness", "N/deg",
+      "Slope of lateral force against inclination angle at zero slip and zero inclination.",
+      "Central difference of the fitted Fy0 in inclination (±0.001°); needs cambered data.",
+      "SAE J670 (camber stiffness); Pacejka 2006 §4.3.2", ("fy",), camber_stiffness, headline=True),
+    D("camber_coefficient", "Camber coefficient", "1/deg",
+      "Camber stiffness divided by the normal load.", "Model camber stiffness over the load.",
+      "SAE J670", ("fy",), lambda m, L, v: None if camber_stiffness(m, L, v) is None else camber_stiffness(m, L, v) / L),
+    D("longitudinal_slip_stiffness", "Longitudinal slip stiffness", "N",
+      "Slope of longitudinal force against slip ratio at zero slip (N per unit slip ratio).",
+      "Central difference of the fitted Fx0 at zero slip ratio (±1e-5).", "SAE J670; Pacejka 2006 §4.3.2",
+      ("fx",), slip_stiffness, headline=True),
+    D("peak_driving_friction", "Peak driving friction", "1",
+      "Largest Fx over the normal load for positive (driving) slip ratios within the measured range.",
+      "Maximum of Fx0 of the fitted model for κ > 0.", "common practice", ("fx",),
+      lambda m, L, v: _fx_peak(m, L, v, 1.0)[0] / L, headline=True),
+    D("slip_ratio_at_peak_driving", "Slip ratio at peak driving force", "1",
+      "Slip ratio at which the driving force is largest.", "Argument of the κ > 0 maximum.", "common practice",
+      ("fx",), lambda m, L, v: _fx_peak(m, L, v, 1.0)[1]),
+    D("peak_braking_friction", "Peak braking friction", "1",
+      "Largest |Fx| over the normal load for negative (braking) slip ratios within the measured range.",
+      "Maximum of |Fx0| of the fitted model for κ < 0.", "common practice", ("fx",),
+      lambda m, L, v: _fx_peak(m, L, v, -1.0)[0] / L, headline=True),
+    D("slip_ratio_at_peak_braking", "Slip ratio at peak braking force", "1",
+      "Magnitude of the slip ratio at which the braking force is largest.", "Argument of the κ < 0 maximum.",
+      "common practice", ("fx",), lambda m, L, v: _fx_peak(m, L, v, -1.0)[1]),
+    D("friction_load_sensitivity", "Friction load sensitivity", "1/kN",
+      "Slope of peak lateral friction against normal load at the nominal load (negative: friction falls with load).",
+      "Central difference of the model's peak lateral friction at Fz0 ± 5 %.", "common practice", ("fy",),
+      friction_load_sensitivity, per_load=False),
+    D("load_at_max_cornering_stiffness", "Load of maximum cornering stiffness", "N",
+      "Normal load at which the cornering stiffness is largest.",
+      "Bounded scalar search of the model cornering stiffness over 0.2-4 Fz0.", "Pacejka 2006 §4.3.2 (pKy2)",
+      ("fy",), load_at_max_cornering_stiffness, per_load=False),
 )}
+del D
 
 
-def metric_values(fit: LateralFit, load_n: float) -> list[MetricValue]:
-    """Return every registered metric of `fit` at `load_n`, with delta-method intervals."""
-    lo, hi = fit.load_range_n
-    extrapolated = not (lo * 0.98 <= load_n <= hi * 1.02)
-    base = fit.values
-    _, _, peak_inside = _peak(fit, load_n, base)
+# --- evaluation ----------------------------------------------------------------------------
+
+def metric_values(models: Models, load_n: float, points: list[OperatingPoint] = (),
+                  crosscheck_threshold_pct: float = 5.0) -> list[MetricValue]:
+    """Return every per-load metric the specimen's models support at `load_n`, with intervals.
+
+    `points` are the specimen's conditioned operating points; where one was measured at this
+    load at the nominal condition, model-free estimates are attached to the cornering stiffness
+    and peak friction, and a difference above `crosscheck_threshold_pct` becomes a finding.
+    """
+    return _evaluate(models, load_n, [m for m in METRICS.values() if m.per_load], points, crosscheck_threshold_pct)
+
+
+def specimen_metrics(models: Models) -> list[MetricValue]:
+    """Return the per-specimen metrics (load sensitivity) at the nominal load."""
+    if models.fy is None:
+        return []
+    return _evaluate(models, models.fy.fz0_n, [m for m in METRICS.values() if not m.per_load], (), 5.0)
+
+
+def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValue]:
+    base: Values = {c: models.get(c).values for c in ("fy", "mz", "fx") if models.get(c) is not None}
+    ref = models.fy or models.fx
     out = []
-    for m in METRICS.values():
-        value = m.compute(fit, load_n, base)
-        sd = _delta_stderr(fit, m.compute, load_n, base)
-        note = ""
-        if m.name in ("peak_lateral_friction", "slip_angle_at_peak") and not peak_inside:
-            note = "peak not reached inside the measured slip range: value is a lower bound"
-            if m.name == "slip_angle_at_peak":
-                sd = None
+    nominal_pts = [p for p in points if p.load_n == load_n and p.camber_deg == 0.0 and p.sweep == "slip_angle"
+                   and p.rolling_direction == "forward" and ref is not None and round(p.pressure_kpa) == round(ref.p0_kpa)]
+    for d in definitions:
+        if any(models.get(c) is None for c in d.channels):
+            continue
+        value = d.compute(models, load_n, base)
+        if value is None:
+            continue
+        fits = [models.get(c) for c in d.channels]
+        lo = max(f.load_range_n[0] for f in fits)
+        hi = min(f.load_range_n[1] for f in fits)
+        at = value if d.name == "load_at_max_cornering_stiffness" else load_n
+        extrapolated = not (lo * 0.98 <= at <= hi * 1.02)
+        sd = _delta_stderr(models, d, load_n, base)
+        notes = []
+        if d.name in ("peak_lateral_friction", "slip_angle_at_peak", "post_peak_retention") or d.name.startswith(
+                ("peak_lateral_friction_", "slip_angle_at_peak_")):
+            reached = [_lateral_peak(models, load_n, base, s)[2] for s in (1.0, -1.0)]
+            if not all(reached):
+                notes.append("peak not reached inside the measured slip range: value is a bound")
+                if d.name.startswith("slip_angle") or d.name == "post_peak_retention":
+                    sd = None
+        if d.name.startswith(("peak_driving", "slip_ratio_at_peak_driving")) and not _fx_peak(models, load_n, base, 1.0)[2]:
+            notes.append("peak not reached inside the measured slip range: value is a bound")
+            sd = None if "slip_ratio" in d.name else sd
+        if d.name.startswith(("peak_braking", "slip_ratio_at_peak_braking")) and not _fx_peak(models, load_n, base, -1.0)[2]:
+            notes.append("peak not reached inside the measured slip range: value is a bound")
+            sd = None if "slip_ratio" in d.name else sd
         if extrapolated:
-            note = (note + "; " if note else "") + "load outside the measured range: extrapolated"
-        ci = None if sd is None else (value - fit.t95 * sd, value + fit.t95 * sd)
-        out.append(MetricValue(m.name, m.unit, fit.specimen, load_n, fit.camber_deg, fit.pressure_kpa,
-                               value, sd, ci, "model", extrapolated, note))
+            notes.append("outside the measured load range: extrapolated")
+        t95 = max(f.t95 for f in fits)
+        ci = None if sd is None else (value - t95 * sd, value + t95 * sd)
+        cc = diff = None
+        finding = ""
+        if nominal_pts and d.name in ("cornering_stiffness", "peak_lateral_friction"):
+            fn = estimates.cornering_stiffness_n_per_deg if d.name == "cornering_stiffness" else estimates.peak_friction
+            vals = [fn(p.curve) for p in nominal_pts]
+            vals = [x for x in vals if x is not None]
+            if vals:
+                cc = float(np.mean(vals))
+                diff = 100.0 * (value / cc - 1.0)
+                if abs(diff) > threshold:
+                    finding = (f"model and data disagree by {diff:+.1f} % (threshold {threshold:g} %): "
+                               "check the fit near zero slip / at the peak")
+        ref_fit = fits[0]
+        out.append(MetricValue(d.name, d.unit, models.specimen, float(load_n), 0.0, ref_fit.p0_kpa, float(value), sd, ci,
+                               "model", extrapolated, "; ".join(notes), cc, diff, finding))
     return out
 
 
-def _delta_stderr(fit: LateralFit, f, load_n: float, base: dict[str, float]) -> float | None:
-    names = fit.fitted_names
-    cov = fit.covariance
-    finite = np.array([np.isfinite(cov[i, i]) for i in range(len(names))], dtype=bool)
-    if not np.any(finite):
-        return None
-    g = np.zeros(len(names))
-    for i, name in enumerate(names):
-        if not finite[i]:
+def _delta_stderr(models: Models, d: MetricDefinition, load_n: float, base: Values) -> float | None:
+    var = 0.0
+    any_finite = False
+    for channel in d.channels:
+        fit = models.get(channel)
+        names = fit.fitted_names
+        cov = fit.covariance
+        finite = np.array([np.isfinite(cov[i, i]) for i in range(len(names))], dtype=bool)
+        if not np.any(finite):
             continue
-        h = max(0.05 * np.sqrt(cov[i, i]), 1e-9 * max(abs(base[name]), 1.0))
-        up = f(fit, load_n, {**base, name: base[name] + h})
-        dn = f(fit, load_n, {**base, name: base[name] - h})
-        g[i] = (up - dn) / (2 * h)
-    sub = np.ix_(finite, finite)
-    var = float(g[finite] @ cov[sub] @ g[finite])
-    return float(np.sqrt(max(var, 0.0)))
+        any_finite = True
+        g = np.zeros(len(names))
+        for i, name in enumerate(names):
+            if not finite[i]:
+                continue
+            cv = base[channel]
+            h = max(0.05 * np.sqrt(cov[i, i]), 1e-9 * max(abs(cv[name]), 1.0))
+            up = d.compute(models, load_n, {**base, channel: {**cv, name: cv[name] + h}})
+            dn = d.compute(models, load_n, {**base, channel: {**cv, name: cv[name] - h}})
+            if up is None or dn is None:
+                return None
+            g[i] = (up - dn) / (2 * h)
+        sub = np.ix_(finite, finite)
+        var += float(g[finite] @ cov[sub] @ g[finite])
+    return float(np.sqrt(max(var, 0.0))) if any_finite else None

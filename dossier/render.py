@@ -28,12 +28,13 @@ from .figures import FigureArtifact
 from .fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME, ChannelFit
 from .manifest import Manifest, RunSpec, Specimen
 from .metrics import METRICS, MetricDefinition, MetricValue
+from .identity import SpecimenIdentity, specimen_identity
 from .offsets import OffsetSplit
 from .theme import STATIC_FILES, Theme
 
 SITE_BASE_URL = "https://dossier.invalid/site/"  # never fetched: the fetcher serves from memory
 
-DECIMALS = {"N/deg": 0, "1/deg": 4, "1": 3, "deg": 2}
+DECIMALS = {"N/deg": 0, "1/deg": 4, "1": 3, "deg": 2, "mm": 1, "N·m/deg": 2, "N·m": 1, "N": 0, "1/kN": 4}
 
 
 @dataclass(frozen=True)
@@ -44,6 +45,23 @@ class SpecimenView:
     fits: tuple[ChannelFit, ...]  # fy, mz, fx as available
     metrics: tuple[MetricValue, ...]
     figures: tuple[FigureArtifact, ...]
+
+    identity: SpecimenIdentity | None = None
+
+    def metric(self, name: str, load_n: float) -> MetricValue | None:
+        return next((m for m in self.metrics if m.metric == name and math.isclose(m.load_n, load_n)), None)
+
+    @property
+    def loads(self) -> list[float]:
+        return sorted({m.load_n for m in self.metrics if METRICS[m.metric].per_load})
+
+    @property
+    def specimen_level(self) -> list[MetricValue]:
+        return [m for m in self.metrics if not METRICS[m.metric].per_load]
+
+    @property
+    def findings(self) -> list[str]:
+        return [f"{METRICS[m.metric].label} at {m.load_n / 1000:.1f} kN: {m.finding}" for m in self.metrics if m.finding]
 
     @property
     def fit(self) -> ChannelFit | None:
@@ -90,10 +108,14 @@ class DossierContext:
     def document(self):
         return self.manifest.document
 
-    def summary_metrics(self, specimen_id: str) -> list[MetricValue]:
-        """Metrics of a specimen at the nominal load, in registry order."""
+    @property
+    def headline(self) -> list[MetricDefinition]:
+        return [m for m in self.metric_definitions if m.headline]
+
+    def summary_metrics(self, specimen_id: str) -> list[MetricValue | None]:
+        """Headline metrics of a specimen at the nominal load, in registry order (None: not measured)."""
         view = next(v for v in self.specimens if v.specimen.id == specimen_id)
-        return [m for m in view.metrics if math.isclose(m.load_n, self.nominal_load_n)]
+        return [view.metric(m.name, self.nominal_load_n) for m in self.headline]
 
 
 def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
@@ -111,6 +133,7 @@ def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, 
             fits=tuple(next((m.channels for m in models if m.specimen == s.id), ())),
             metrics=tuple(m for m in metrics if m.specimen == s.id),
             figures=tuple(specimen_figures.get(s.id, ())),
+            identity=specimen_identity(s, manifest),
         ))
     return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
                           tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n, runs, drift,

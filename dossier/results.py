@@ -64,6 +64,31 @@ def _drift(d: DriftEstimate | None) -> dict | None:
     }
 
 
+def _specimen_record(s, manifest: Manifest) -> dict:
+    from .identity import specimen_identity
+
+    ident = specimen_identity(s, manifest)
+    return {"id": s.id, "role": s.role, "size": s.size, "construction": s.construction,
+            "identity": {
+                "section_width_mm": _num(ident.size.width_mm) if ident.size else None,
+                "aspect_ratio_pct": _num(ident.size.aspect_pct) if ident.size else None,
+                "rim_diameter_in": _num(ident.size.rim_in) if ident.size else None,
+                "overall_diameter_mm": _num(ident.size.overall_diameter_mm) if ident.size else None,
+                "load_index": ident.size.load_index if ident.size else None,
+                "load_index_dual": ident.size.load_index_dual if ident.size else None,
+                "rated_load_kg": ident.size.rated_load_kg if ident.size else None,
+                "rated_load_n": _num(ident.rated_load_n),
+                "rated_load_source": ident.rated_load_source,
+                "speed_symbol": ident.size.speed_symbol if ident.size else None,
+                "max_speed_kmh": ident.size.max_speed_kmh if ident.size else None,
+                "tin": s.tin, "week": ident.date_code.week if ident.date_code else None,
+                "year": ident.date_code.year if ident.date_code else None,
+                "age_years_at_test": _num(ident.age_years),
+                "test_loads": [{"load_n": _num(t.load_n), "pct_of_rated": _num(t.pct_of_rated)}
+                               for t in ident.test_loads],
+                "findings": list(ident.findings)}}
+
+
 def _coefficient_record(c) -> dict:
     return {"name": c.name, "value": _num(c.value), "unit": c.unit, "equation": c.equation,
             "status": c.status, "stderr": _num(c.stderr),
@@ -111,9 +136,7 @@ def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: 
             "title": d.title, "number": d.number, "revision": d.revision, "customer": d.customer,
             "program": d.program, "supplier": d.supplier, "authors": list(d.authors), "date": d.date.isoformat(),
         },
-        "specimens": [
-            {"id": s.id, "role": s.role, "size": s.size, "construction": s.construction} for s in manifest.specimens
-        ],
+        "specimens": [_specimen_record(s, manifest) for s in manifest.specimens],
         "inputs": [
             {"file": c.account.source_file, "sha256": c.account.sha256, "specimen": c.account.specimen,
              "run": c.account.run_index,
@@ -137,14 +160,17 @@ def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: 
         ],
         "metric_definitions": [
             {"metric": m.name, "label": m.label, "unit": m.unit, "definition": m.definition,
-             "computed": m.computed, "source": m.source}
+             "computed": m.computed, "source": m.source, "channels": list(m.channels),
+             "per_load": m.per_load}
             for m in METRICS.values()
         ],
         "metrics": [
             {"metric": v.metric, "unit": v.unit, "specimen": v.specimen, "load_n": _num(v.load_n),
              "camber_deg": _num(v.camber_deg), "pressure_kpa": _num(v.pressure_kpa), "value": _num(v.value),
              "stderr": _num(v.stderr), "ci95": None if v.ci95 is None else [_num(v.ci95[0]), _num(v.ci95[1])],
-             "basis": v.basis, "extrapolated": v.extrapolated, "note": v.note}
+             "basis": v.basis, "extrapolated": v.extrapolated, "note": v.note,
+             "crosscheck": _num(v.crosscheck), "crosscheck_diff_pct": _num(v.crosscheck_diff_pct),
+             "finding": v.finding}
             for v in metrics
         ],
         "fits": [_fit_record(f) for f in fits],

@@ -86,7 +86,7 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     from dossier.condition import SlipCurve
     from dossier.fit import fit_lateral
     from dossier.manifest import FitSettings
-    from dossier.metrics import metric_values
+    from dossier.metrics import Models, metric_values
 
     run, _ = _synthetic(tmp_path)
     points = list(condition_run(run, ConditioningSettings()).points)
@@ -97,8 +97,8 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
         c = p.curve
         shuffled.append(replace(p, curve=SlipCurve(c.sweep, c.x[k], c.fz_n[k], c.fy_n[k], None, None,
                                                    c.samples_per_bin[k])))
-    a = metric_values(fit_lateral(points, FitSettings(), 3000.0), 2000.0)
-    b = metric_values(fit_lateral(shuffled[::-1], FitSettings(), 3000.0), 2000.0)
+    a = metric_values(Models("A", fit_lateral(points, FitSettings(), 3000.0), None, None), 2000.0)
+    b = metric_values(Models("A", fit_lateral(shuffled[::-1], FitSettings(), 3000.0), None, None), 2000.0)
     for x, y in zip(a, b):
         assert x.metric == y.metric
         assert x.value == pytest.approx(y.value, rel=1e-6)

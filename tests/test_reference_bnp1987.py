@@ -11,7 +11,7 @@ import bnp1987
 import projects as P
 from dossier import units
 from dossier.build import check, fit_specimens, nominal_load_n
-from dossier.metrics import metric_values
+from dossier.metrics import Models, metric_values
 
 LOADS_N = [2000, 4000, 6000, 8000]
 
@@ -47,7 +47,7 @@ def test_published_tire_is_recovered_through_the_whole_pipeline(tmp_path, style)
     assert len(points) == 4
     (model,) = fit_specimens(points, manifest, nominal_load_n(manifest))
     fit = model.fy
-    values = {m.metric: m for m in metric_values(fit, 4000.0)}
+    values = {m.metric: m for m in metric_values(Models("REF", fit, None, None), 4000.0)}
     B, C, D, E = bnp1987.coefficients(4.0)
     # SAE 870421 (1987) Tables 2-3: cornering stiffness BCD = 1027.3 N/deg at 4 kN
     assert values["cornering_stiffness"].value == pytest.approx(1027.3, rel=0.02)
