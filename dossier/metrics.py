@@ -62,6 +62,11 @@ class MetricDefinition:
     per_load: bool = True  # False: one value per specimen (load sensitivity)
     headline: bool = False  # shown in the summary and by-load tables
 
+    @property
+    def group(self) -> str:
+        """Which headline table a metric belongs to: "cornering" or "camber_longitudinal"."""
+        return "camber_longitudinal" if ("fx" in self.channels or self.name.startswith("camber")) else "cornering"
+
 
 @dataclass(frozen=True)
 class MetricValue:

@@ -112,10 +112,21 @@ class DossierContext:
     def headline(self) -> list[MetricDefinition]:
         return [m for m in self.metric_definitions if m.headline]
 
-    def summary_metrics(self, specimen_id: str) -> list[MetricValue | None]:
+    @property
+    def headline_groups(self) -> list[tuple[str, list[MetricDefinition]]]:
+        """The headline metrics in two tables, so that each fits a page width."""
+        titles = {"cornering": "Cornering and aligning", "camber_longitudinal": "Camber and longitudinal"}
+        out = []
+        for key, title in titles.items():
+            defs = [m for m in self.headline if m.group == key]
+            if defs:
+                out.append((title, defs))
+        return out
+
+    def summary_metrics(self, specimen_id: str, definitions=None) -> list[MetricValue | None]:
         """Headline metrics of a specimen at the nominal load, in registry order (None: not measured)."""
         view = next(v for v in self.specimens if v.specimen.id == specimen_id)
-        return [view.metric(m.name, self.nominal_load_n) for m in self.headline]
+        return [view.metric(m.name, self.nominal_load_n) for m in (definitions or self.headline)]
 
 
 def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
