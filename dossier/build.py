@@ -15,12 +15,16 @@ from pathlib import Path
 from .condition import UNUSABLE, ConditionedRun, OperatingPoint, condition_run
 from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
-from .figures import (channel_figure, conditions_figure, drift_figure, hysteresis_figure, load_trend_figure,
-                      residual_figure, time_history_figure)
+from .figures import (channel_figure, conditions_figure, difference_figure, drift_figure, gough_figure,
+                      hysteresis_figure, load_trend_figure, overlay_figure, residual_figure, time_history_figure,
+                      yaw_gain_figure)
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .ingest import read_run
 from .manifest import Manifest, load_manifest
-from .metrics import METRICS, Models, MetricValue, metric_values, specimen_metrics
+from .acceptance import verdicts as judge_targets
+from .comparison import compare, recommend
+from .metrics import METRICS, Models, MetricValue, metric_values, single_metric, specimen_metrics
+from .vehicle import AxleFitment, balance
 from .offsets import split_offsets
 from .output import json_bytes, write_dossier
 from .render import make_context, make_environment, render_pdf, render_site
@@ -88,6 +92,9 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     models = fit_specimens(points, manifest, fz0_n, p0_kpa)
     fits = [m.fy for m in models if m.fy is not None]
     metrics = specimen_metric_values(models, points, manifest)
+    judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
+    standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
+    fitments = fitment_matrix(manifest, models)
 
     specimen_figures = {m.specimen: specimen_figures_of(m, points, theme.figure_style) for m in models}
     summary_figures = [load_trend_figure(name, METRICS[name].label, METRICS[name].unit, metrics, theme.figure_style)
@@ -95,13 +102,18 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
                        if any(m.metric == name for m in metrics)]
     quality_figures = {c.account.run_index: _quality_figures(c, fz0_n, theme.figure_style) for c in conditioned}
     drift_figures = [drift_figure(drift, theme.figure_style)] if drift else []
+    comparison_figures = comparison_figures_of(models, points, standings, fitments, manifest, fz0_n, p0_kpa,
+                                               theme.figure_style)
     ctx = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
-                       quality_figures, drift, drift_figures, offset_splits)
+                       quality_figures, drift, drift_figures, offset_splits,
+                       judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
+                       comparison_figures=comparison_figures)
     env = make_environment(theme, manifest.project_dir / "templates")
     site = render_site(ctx, env, theme)
     pdf = render_pdf(ctx, env, site)
     all_fits = [f for m in models for f in m.channels]
-    results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits)
+    results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
+                             recommendation, fitments)
     exports = coefficient_files(manifest, conditioned, models)
 
     # Start writing files now that all data is gathered.
@@ -135,12 +147,44 @@ def specimen_metric_values(models: list[SpecimenModel], points: list[OperatingPo
     for m in models:
         ms = Models(m.specimen, m.fy, m.mz, m.fx)
         ref = m.fy or m.fx
-        loads = set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(manifest.metrics.loads_n)
+        loads = (set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(manifest.metrics.loads_n)
+                 | {t.load_n for t in manifest.targets})
         own = [p for p in points if p.specimen == m.specimen]
         for load in sorted(loads):
             out += metric_values(ms, load, own, manifest.metrics.crosscheck_threshold_pct)
         out += specimen_metrics(ms)
     return out
+
+
+def compare_candidates(manifest: Manifest, metrics, fz0_n, drift, judged):
+    """Every candidate against the baseline at the nominal load, and the recommended candidate."""
+    base = next((s.id for s in manifest.specimens if s.role == "baseline"), None)
+    candidates = [s.id for s in manifest.specimens if s.role == "candidate"]
+    if base is None or not candidates:
+        return [], (None, "no baseline and candidates to compare")
+    standings = compare(base, candidates, metrics, fz0_n, drift, judged)
+    return standings, recommend(standings)
+
+
+def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
+    """Understeer gradient of every front × rear pairing of the fitted specimens (no controls)."""
+    v = manifest.vehicle
+    if v is None:
+        return []
+    by_id = {m.specimen: Models(m.specimen, m.fy, m.mz, m.fx) for m in models if m.fy is not None}
+    ids = [s.id for s in manifest.specimens if s.role != "control" and s.id in by_id]
+
+    def stiffness(sid, load):
+        mv = single_metric(by_id[sid], "cornering_stiffness", load)
+        return mv.value, mv.stderr
+
+    def extrapolated(sid, load):
+        lo, hi = by_id[sid].fy.load_range_n
+        return not (0.98 * lo <= load <= 1.02 * hi)
+
+    return [balance(AxleFitment(f, v.front.tires, v.front.kind), AxleFitment(r, v.rear.tires, v.rear.kind),
+                    v.front_axle_load_n, v.rear_axle_load_n, v.wheelbase_m, stiffness, extrapolated)
+            for f in ids for r in ids]
 
 
 def nominal_pressure_kpa(manifest: Manifest) -> float:
@@ -204,6 +248,21 @@ def specimen_figures_of(model: SpecimenModel, points: list[OperatingPoint], styl
             figs.append(conditions_figure(fit, other, style))
         figs.append(residual_figure(fit, style))
     return figs
+
+
+def comparison_figures_of(models, points, standings, fitments, manifest, fz0_n, p0_kpa, style) -> dict:
+    """Figures of the comparison and vehicle pages, keyed by where they go."""
+    out = {"comparison": [], "vehicle": []}
+    if len(models) > 0:
+        out["comparison"].append(overlay_figure(models, points, "fy", fz0_n, p0_kpa, style))
+        if any(m.mz for m in models):
+            out["comparison"].append(overlay_figure(models, points, "mz", fz0_n, p0_kpa, style))
+            out["comparison"].append(gough_figure(models, fz0_n, style))
+    if standings:
+        out["comparison"].append(difference_figure(standings, style))
+    if fitments and manifest.vehicle:
+        out["vehicle"].append(yaw_gain_figure(fitments, manifest.vehicle, style))
+    return out
 
 
 def _quality_figures(c: ConditionedRun, fz0_n: float, style):

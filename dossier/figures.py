@@ -289,5 +289,137 @@ def drift_figure(d: DriftEstimate, style: Path | None) -> FigureArtifact:
         _render(style, draw))
 
 
+def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, style: Path | None) -> FigureArtifact:
+    """Every specimen's fitted curve (and measured bins) of one channel at the nominal load."""
+    xlabel, ylabel = _AXIS[channel]
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for i, m in enumerate(models):
+            fit = getattr(m, channel)
+            if fit is None:
+                continue
+            c = colors[i % len(colors)]
+            grid = np.linspace(*fit.slip_range, 241)
+            ax.plot(grid, fit.predict(grid, load_n), "-", lw=1.5, color=c, label=m.specimen)
+            for p in points:
+                if (p.specimen == m.specimen and p.load_n == load_n and p.camber_deg == 0.0 and p.sweep == "slip_angle"
+                        and p.rolling_direction == "forward" and round(p.pressure_kpa) == round(p0_kpa)):
+                    ax.plot(p.curve.x, _measured(p, channel), "o", ms=2.5, mfc="none", color=c, rasterized=True)
+        ax.axhline(0, lw=0.5, color="0.5")
+        ax.axvline(0, lw=0.5, color="0.5")
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(ylabel)
+        ax.legend(fontsize="small")
+        ax.set_title(f"All specimens: {_WORD[channel]} at {load_n / 1000:.1f} kN, {p0_kpa:.0f} kPa, camber 0°")
+
+    return FigureArtifact(
+        f"overlay-{channel}.svg", f"All specimens: {_WORD[channel]} at the nominal load",
+        "Lines: each specimen's fitted model; circles: its conditioned bins at this load.",
+        f"Overlay chart of {_WORD[channel]} against slip angle for every specimen at {load_n / 1000:.1f} kN.",
+        _render(style, draw))
+
+
+def gough_figure(models, load_n: float, style: Path | None) -> FigureArtifact:
+    """Aligning moment against lateral force over the slip sweep (a Gough-type plot), per specimen."""
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for i, m in enumerate(models):
+            if m.fy is None or m.mz is None:
+                continue
+            a = np.linspace(*m.fy.slip_range, 241)
+            ax.plot(m.fy.predict(a, load_n), m.mz.predict(a, load_n), "-", lw=1.5, color=colors[i % len(colors)],
+                    label=m.specimen)
+        ax.axhline(0, lw=0.5, color="0.5")
+        ax.axvline(0, lw=0.5, color="0.5")
+        ax.set_xlabel("Lateral force Fy [N]")
+        ax.set_ylabel("Aligning moment Mz [N·m]")
+        ax.legend(fontsize="small")
+        ax.set_title(f"Aligning moment against lateral force at {load_n / 1000:.1f} kN (slip angle as parameter)")
+
+    return FigureArtifact(
+        "gough-mz-fy.svg", "Aligning moment against lateral force",
+        "Fitted models over the measured slip range at the nominal load; the slope near the origin is the pneumatic "
+        "trail, the loop's collapse shows where the trail runs out before the lateral force peaks.",
+        f"Chart of aligning moment against lateral force for every specimen at {load_n / 1000:.1f} kN.",
+        _render(style, draw))
+
+
+def difference_figure(standings, style: Path | None) -> FigureArtifact:
+    """Each candidate's differences from the baseline, normalised, with 95 % intervals.
+
+    Normalised by half the target window where a two-sided target exists at that load,
+    otherwise by twice the rig repeatability of a difference; metrics with neither are left out.
+    The shaded band is ±1: inside it a difference is smaller than the target's half-width.
+    """
+    from .metrics import METRICS
+
+    rows = [(s.candidate, d) for s in standings for d in s.differences if d.normalised is not None]
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        cands = list(dict.fromkeys(c for c, _ in rows))
+        labels = list(dict.fromkeys(METRICS[d.metric].label for _, d in rows))
+        ax.axvspan(-1, 1, color="0.92", lw=0)
+        ax.axvline(0, color="0.3", lw=0.8)
+        for j, c in enumerate(cands):
+            for c2, d in rows:
+                if c2 != c:
+                    continue
+                y = labels.index(METRICS[d.metric].label) + (j - (len(cands) - 1) / 2) * 0.22
+                scale = d.normalised / d.diff if d.diff else 0.0
+                err = None
+                if d.diff_ci95:
+                    err = [[abs(d.normalised - d.diff_ci95[0] * scale)], [abs(d.diff_ci95[1] * scale - d.normalised)]]
+                ax.errorbar([d.normalised], [y], xerr=err, fmt="o" if d.significant else "s", mfc="white" if not d.significant else None,
+                            color=colors[(j + 1) % len(colors)], capsize=3, ms=6,
+                            label=c if d is next(dd for cc, dd in rows if cc == c) else None)
+        ax.set_yticks(range(len(labels)))
+        ax.set_yticklabels(labels, fontsize="small")
+        ax.invert_yaxis()
+        ax.set_xlabel("Candidate − baseline, in target half-widths (or twice the rig repeatability)")
+        ax.legend(fontsize="small", title="filled: a real difference", title_fontsize="x-small")
+        ax.set_title("Differences from the baseline at the nominal load")
+
+    return FigureArtifact(
+        "differences.svg", "Candidates against the baseline",
+        "Each marker is a candidate's difference from the baseline divided by half the target window (or, "
+        "without a two-sided target, by twice the rig repeatability of a difference); bars are 95 % intervals; "
+        "the grey band is ±1. Filled markers: intervals exclude zero and the difference exceeds the rig's repeatability.",
+        "Dot chart of each candidate's normalised metric differences from the baseline with interval bars.",
+        _render(style, draw, size=(7.0, 0.45 * max(4, len({d.metric for _, d in rows})) + 1.6)))
+
+
+def yaw_gain_figure(fitments, vehicle, style: Path | None) -> FigureArtifact:
+    """Yaw-rate gain against speed for every fitment with the same specimen on both axles."""
+    from .vehicle import yaw_rate_gain_per_s
+
+    same = [b for b in fitments if b.front == b.rear]
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        v = np.array(vehicle.speeds_kmh, dtype=float)
+        for b in same:
+            ax.plot(v, [yaw_rate_gain_per_s(x, b.understeer_gradient_deg_per_g, vehicle.wheelbase_m) for x in v],
+                    "-", lw=1.5, label=f"{b.front} all round (K = {b.understeer_gradient_deg_per_g:+.2f} deg/g)")
+        ax.plot(v, (v / 3.6) / vehicle.wheelbase_m, ":", color="0.5", lw=1.0, label="neutral steer")
+        ax.set_xlabel("Speed [km/h]")
+        ax.set_ylabel("Yaw-rate gain r/δ [1/s]")
+        ax.set_ylim(0, None)
+        ax.legend(fontsize="small")
+        ax.set_title(f"{vehicle.name}: steady-state yaw-rate gain")
+
+    return FigureArtifact(
+        "yaw-gain.svg", "Yaw-rate gain against speed",
+        "Linear single-track model with each specimen on both axles at its static tire loads; the dotted line is a "
+        "neutral-steer vehicle of the same wheelbase.",
+        "Chart of steady-state yaw-rate gain against speed for each specimen fitted all round.",
+        _render(style, draw))
+
+
 def _slug(text: str) -> str:
     return "".join(ch.lower() if ch.isalnum() else "-" for ch in text).strip("-")

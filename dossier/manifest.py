@@ -256,6 +256,29 @@ def _suggest(word: str, options) -> str:
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
+def _quantity(quantity: str) -> Table:
+    return Table({"value": Key(Number(minimum=0, exclusive_minimum=True)), "unit": Key(Unit(quantity))})
+
+
+def _axle() -> Table:
+    return Table({"tires": Key(Integer(minimum=1)),
+                  "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single")})
+
+
+@dataclass(frozen=True)
+class MetricName:
+    """The name of a metric in the registry (see dossier.metrics.METRICS)."""
+
+    def __call__(self, value, path, problems):
+        from .metrics import METRICS
+
+        if value not in METRICS:
+            hint = _suggest(value, list(METRICS)) if isinstance(value, str) else ""
+            problems.append(Problem(path, f"unknown metric {_shown(value)}{hint}; metrics are listed in the glossary"))
+            return None
+        return value
+
+
 def _column(quantity: str) -> Table:
     return Table({
         "name": Key(Text(), help="the column's header text in the file"),
@@ -326,6 +349,30 @@ MANIFEST_SCHEMA = Table({
         "loads_n": Key(ListOf(Number(minimum=0, exclusive_minimum=True)), required=False, default=[],
                        help="extra loads to report metrics at, besides the measured ones"),
         "crosscheck_threshold_pct": Key(Number(minimum=0.1, maximum=50), required=False, default=5.0),
+    }), required=False, default=None),
+    "targets": Key(ListOf(Table({
+        "metric": Key(MetricName()),
+        "load_n": Key(Number(minimum=0, exclusive_minimum=True)),
+        "minimum": Key(Number(), required=False),
+        "maximum": Key(Number(), required=False),
+        "nominal": Key(Number(), required=False),
+        "tolerance": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "camber_deg": Key(Number(minimum=-15, maximum=15), required=False, default=0.0),
+        "pressure_kpa": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+        "reference": Key(Text(), help="where the target comes from, e.g. the customer specification's clause"),
+        "specimens": Key(ListOf(Text(), min_items=1), required=False),
+    })), required=False, default=[]),
+    "vehicle": Key(Table({
+        "name": Key(Text()),
+        "wheelbase": Key(_quantity("length")),
+        "mass": Key(_quantity("mass"), required=False),
+        "cg_to_front_axle": Key(_quantity("length"), required=False,
+                                help="distance from the front axle back to the centre of gravity"),
+        "front_axle_load": Key(_quantity("force"), required=False),
+        "rear_axle_load": Key(_quantity("force"), required=False),
+        "front": Key(_axle()),
+        "rear": Key(_axle()),
+        "speeds_kmh": Key(ListOf(Number(minimum=1, maximum=400), min_items=2), required=False),
     }), required=False, default=None),
     "drift": Key(Table({
         "control": Key(Text(), help="id of the control specimen re-tested through the session"),
@@ -416,6 +463,42 @@ class ConditioningSettings:
 
 
 @dataclass(frozen=True)
+class Target:
+    index: int
+    metric: str
+    load_n: float
+    minimum: float | None
+    maximum: float | None
+    camber_deg: float
+    pressure_kpa: float | None
+    reference: str
+    specimens: tuple[str, ...] | None  # None: every specimen that is not a control
+
+    @property
+    def window(self) -> str:
+        if self.minimum is not None and self.maximum is not None:
+            return f"{self.minimum:g} … {self.maximum:g}"
+        return f"≥ {self.minimum:g}" if self.minimum is not None else f"≤ {self.maximum:g}"
+
+
+@dataclass(frozen=True)
+class AxleSpec:
+    tires: int
+    kind: str
+
+
+@dataclass(frozen=True)
+class VehicleSpec:
+    name: str
+    wheelbase_m: float
+    front_axle_load_n: float
+    rear_axle_load_n: float
+    front: AxleSpec
+    rear: AxleSpec
+    speeds_kmh: tuple[float, ...]
+
+
+@dataclass(frozen=True)
 class MetricSettings:
     loads_n: tuple[float, ...] = ()
     crosscheck_threshold_pct: float = 5.0
@@ -446,6 +529,8 @@ class Manifest:
     fit: FitSettings = field(default_factory=FitSettings)
     drift: DriftSettings | None = None
     metrics: MetricSettings = field(default_factory=MetricSettings)
+    targets: tuple[Target, ...] = ()
+    vehicle: VehicleSpec | None = None
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
@@ -532,6 +617,37 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
                 problems.append(Problem(f"runs[{i}].file", f"resolves outside the project folder (symbolic link?): {rel!r}"))
             elif not target.is_file():
                 problems.append(Problem(f"runs[{i}].file", f"file not found: {rel!r} (paths are relative to the manifest's folder)"))
+    for i, t in enumerate(data.get("targets") or []):
+        if not t:
+            continue
+        kinds = [k for k in ("minimum", "maximum") if t.get(k) is not None]
+        nominal = t.get("nominal") is not None or t.get("tolerance") is not None
+        if nominal and kinds:
+            problems.append(Problem(f"targets[{i}]", "give either minimum/maximum or nominal and tolerance, not both"))
+        elif nominal and (t.get("nominal") is None or t.get("tolerance") is None):
+            problems.append(Problem(f"targets[{i}]", "nominal and tolerance go together; one of them is missing"))
+        elif not nominal and not kinds:
+            problems.append(Problem(f"targets[{i}]", "needs a window: minimum, maximum, or nominal and tolerance"))
+        elif t.get("minimum") is not None and t.get("maximum") is not None and t["minimum"] > t["maximum"]:
+            problems.append(Problem(f"targets[{i}].minimum", f"is above the maximum ({t['minimum']!r} > {t['maximum']!r})"))
+        for j, sid in enumerate(t.get("specimens") or []):
+            if sid and ids and sid not in ids:
+                problems.append(Problem(f"targets[{i}].specimens[{j}]", f"no specimen with id {sid!r}{_suggest(sid, ids)}"))
+    v = data.get("vehicle")
+    if v:
+        by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
+        by_load = v.get("front_axle_load") is not None or v.get("rear_axle_load") is not None
+        if by_mass == by_load:
+            problems.append(Problem("vehicle", "give either mass and cg_to_front_axle, or front_axle_load and rear_axle_load"))
+        elif by_mass and (v.get("mass") is None or v.get("cg_to_front_axle") is None):
+            problems.append(Problem("vehicle", "mass and cg_to_front_axle go together; one of them is missing"))
+        elif by_load and (v.get("front_axle_load") is None or v.get("rear_axle_load") is None):
+            problems.append(Problem("vehicle", "front_axle_load and rear_axle_load go together; one of them is missing"))
+        elif by_mass and v.get("wheelbase") and v.get("cg_to_front_axle"):
+            L = _q(v["wheelbase"], "length")
+            b = _q(v["cg_to_front_axle"], "length")
+            if not 0 < b < L:
+                problems.append(Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m"))
     drift = data.get("drift")
     if drift and drift.get("control") and ids:
         ctl = drift["control"]
@@ -579,4 +695,31 @@ def _build(data: dict, project_dir: Path) -> Manifest:
     drift = DriftSettings(**data["drift"]) if data.get("drift") else None
     met = data.get("metrics")
     metrics = MetricSettings(tuple(met["loads_n"] or ()), met["crosscheck_threshold_pct"]) if met else MetricSettings()
-    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics)
+    targets = tuple(_target(i, t) for i, t in enumerate(data.get("targets") or []))
+    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics, targets,
+                    _vehicle(data["vehicle"]) if data.get("vehicle") else None)
+
+
+def _target(i: int, t: dict) -> Target:
+    lo, hi = t["minimum"], t["maximum"]
+    if t["nominal"] is not None:
+        lo, hi = t["nominal"] - t["tolerance"], t["nominal"] + t["tolerance"]
+    return Target(i, t["metric"], t["load_n"], lo, hi, t["camber_deg"], t["pressure_kpa"], t["reference"],
+                  tuple(t["specimens"]) if t["specimens"] else None)
+
+
+def _q(q: dict, quantity: str) -> float:
+    return q["value"] * units.factor_to_internal(quantity, q["unit"])
+
+
+def _vehicle(v: dict) -> VehicleSpec:
+    L = _q(v["wheelbase"], "length")
+    if v["mass"]:
+        weight = _q(v["mass"], "mass") * units.STANDARD_GRAVITY_M_PER_S2
+        b = _q(v["cg_to_front_axle"], "length")
+        front, rear = weight * (L - b) / L, weight * b / L  # static axle loads from the CG position
+    else:
+        front, rear = _q(v["front_axle_load"], "force"), _q(v["rear_axle_load"], "force")
+    speeds = tuple(v["speeds_kmh"]) if v["speeds_kmh"] else tuple(float(x) for x in range(20, 201, 10))
+    return VehicleSpec(v["name"], L, front, rear, AxleSpec(v["front"]["tires"], v["front"]["kind"]),
+                       AxleSpec(v["rear"]["tires"], v["rear"]["kind"]), speeds)

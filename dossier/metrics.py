@@ -433,3 +433,12 @@ def _delta_stderr(models: Models, d: MetricDefinition, load_n: float, base: Valu
         sub = np.ix_(finite, finite)
         var += float(g[finite] @ cov[sub] @ g[finite])
     return float(np.sqrt(max(var, 0.0))) if any_finite else None
+
+
+def single_metric(models: Models, name: str, load_n: float) -> MetricValue | None:
+    """Return one metric at one load (for vehicle balance), or None if the models cannot give it."""
+    d = METRICS[name]
+    if any(models.get(c) is None for c in d.channels):
+        return None
+    found = _evaluate(models, load_n, [d], (), 5.0)
+    return found[0] if found else None

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import mimetypes
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from urllib.parse import urljoin
 
@@ -31,6 +31,7 @@ from .metrics import METRICS, MetricDefinition, MetricValue
 from .identity import SpecimenIdentity, specimen_identity
 from .offsets import OffsetSplit
 from .theme import STATIC_FILES, Theme
+from .vehicle import SIMPLIFICATIONS
 
 SITE_BASE_URL = "https://dossier.invalid/site/"  # never fetched: the fetcher serves from memory
 
@@ -103,6 +104,62 @@ class DossierContext:
     drift_figures: tuple[FigureArtifact, ...] = ()
     offset_splits: tuple[OffsetSplit, ...] = ()
     quality_page: str = "data-quality.html"
+    comparison_page: str = "comparison.html"
+    vehicle_page: str = "vehicle.html"
+    verdicts: tuple = ()
+    standings: tuple = ()
+    recommendation: tuple = (None, "")
+    fitments: tuple = ()
+    comparison_figures: dict = field(default_factory=dict)
+    vehicle_simplifications: tuple[str, ...] = SIMPLIFICATIONS
+
+    @property
+    def vehicle(self):
+        return self.manifest.vehicle
+
+    @property
+    def targets(self):
+        return self.manifest.targets
+
+    def verdict(self, target, specimen_id):
+        return next((v for v in self.verdicts if v.target is target and v.specimen == specimen_id), None)
+
+    @property
+    def judged_specimens(self) -> list[str]:
+        return list(dict.fromkeys(v.specimen for v in self.verdicts))
+
+    def fitment(self, front: str, rear: str):
+        return next((b for b in self.fitments if b.front == front and b.rear == rear), None)
+
+    @property
+    def fitment_ids(self) -> list[str]:
+        return list(dict.fromkeys(b.front for b in self.fitments))
+
+    @property
+    def open_findings(self) -> list[str]:
+        """Everything a reviewer should see before signing, gathered from every stage."""
+        out = []
+        for v in self.verdicts:
+            if v.verdict in ("marginal", "does not meet"):
+                out.append(f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN "
+                           f"{v.verdict} the target {v.target.window} {v.unit} ({v.target.reference}): {v.reason}")
+        for view in self.specimens:
+            if view.identity:
+                out += [f"{view.specimen.id}: {f}" for f in view.identity.findings]
+            out += [f"{view.specimen.id}: {f}" for f in view.findings]
+            warnings = sum(len(f.warnings) for f in view.fits)
+            if warnings:
+                out.append(f"{view.specimen.id}: {warnings} fit warning(s) (poorly determined or correlated coefficients); "
+                           "see the fit reports")
+        for r in self.runs:
+            if r.account.verdict != "sound":
+                out.append(f"run {r.account.run_index} ({r.account.source_file}): {r.account.verdict}")
+        if self.drift:
+            mu = next((m for m in self.drift.metrics if m.metric == "peak_friction"), None)
+            if mu and abs(mu.over_session_pct) > 1.0:
+                out.append(f"the rig's force level drifted {mu.over_session_pct:+.1f} % over the session "
+                           f"({'corrected' if self.drift.corrected else 'not corrected'})")
+        return out
 
     @property
     def document(self):
@@ -131,7 +188,8 @@ class DossierContext:
 
 def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
                  summary_figures, nominal_load_n: float, quality_figures=None, drift=None, drift_figures=(),
-                 offset_splits=()) -> DossierContext:
+                 offset_splits=(), judged=(), standings=(), recommendation=(None, ""), fitments=(),
+                 comparison_figures=None) -> DossierContext:
     accounts = [c.account for c in conditioned]
     quality_figures = quality_figures or {}
     runs = tuple(RunView(c, manifest.runs[c.account.run_index], tuple(quality_figures.get(c.account.run_index, ())))
@@ -148,7 +206,9 @@ def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, 
         ))
     return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
                           tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n, runs, drift,
-                          tuple(drift_figures), tuple(offset_splits))
+                          tuple(drift_figures), tuple(offset_splits), verdicts=tuple(judged),
+                          standings=tuple(standings), recommendation=recommendation, fitments=tuple(fitments),
+                          comparison_figures=dict(comparison_figures or {}))
 
 
 # --- filters ---------------------------------------------------------------------------------
@@ -209,7 +269,11 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme) -> d
     for view in ctx.specimens:
         files[view.page] = _page(env, "specimen.html", ctx, current=view.page, view=view)
     files[ctx.quality_page] = _page(env, "quality.html", ctx, current=ctx.quality_page)
+    files[ctx.comparison_page] = _page(env, "comparison.html", ctx, current=ctx.comparison_page)
+    if ctx.vehicle:
+        files[ctx.vehicle_page] = _page(env, "vehicle.html", ctx, current=ctx.vehicle_page)
     figures = list(ctx.summary_figures) + list(ctx.drift_figures)
+    figures += [f for group in ctx.comparison_figures.values() for f in group]
     figures += [f for v in ctx.specimens for f in v.figures] + [f for r in ctx.runs for f in r.figures]
     for fig in figures:
         files[f"figures/{fig.filename}"] = fig.svg

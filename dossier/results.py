@@ -125,7 +125,8 @@ def _fit_record(f: ChannelFit) -> dict:
 
 def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: list[ChannelFit],
                    metrics: list[MetricValue], drift: DriftEstimate | None = None,
-                   offset_splits: list[OffsetSplit] = ()) -> dict:
+                   offset_splits: list[OffsetSplit] = (), verdicts=(), standings=(), recommendation=(None, ""),
+                   fitments=()) -> dict:
     """Return the ``results.json`` content as plain data."""
     d = manifest.document
     return {
@@ -174,6 +175,35 @@ def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: 
             for v in metrics
         ],
         "fits": [_fit_record(f) for f in fits],
+        "targets": [{"index": t.index, "metric": t.metric, "load_n": _num(t.load_n), "minimum": _num(t.minimum),
+                     "maximum": _num(t.maximum), "camber_deg": _num(t.camber_deg), "pressure_kpa": _num(t.pressure_kpa),
+                     "reference": t.reference} for t in manifest.targets],
+        "verdicts": [{"target": v.target.index, "metric": v.target.metric, "specimen": v.specimen, "verdict": v.verdict,
+                      "value": _num(v.value), "ci95": None if v.ci95 is None else [_num(v.ci95[0]), _num(v.ci95[1])],
+                      "reason": v.reason} for v in verdicts],
+        "comparison": [{"candidate": s.candidate, "meets": s.meets, "marginal": s.marginal, "fails": s.fails,
+                        "summary": s.text,
+                        "differences": [{"metric": d.metric, "unit": d.unit, "load_n": _num(d.load_n),
+                                         "baseline": d.baseline, "diff": _num(d.diff),
+                                         "diff_ci95": None if d.diff_ci95 is None else [_num(d.diff_ci95[0]), _num(d.diff_ci95[1])],
+                                         "diff_pct": _num(d.diff_pct), "repeatability_pct": _num(d.repeatability_pct),
+                                         "significant": d.significant} for d in s.differences]}
+                       for s in standings],
+        "recommendation": {"candidate": recommendation[0], "reason": recommendation[1]},
+        "vehicle": None if manifest.vehicle is None else {
+            "name": manifest.vehicle.name, "wheelbase_m": _num(manifest.vehicle.wheelbase_m),
+            "front_axle_load_n": _num(manifest.vehicle.front_axle_load_n),
+            "rear_axle_load_n": _num(manifest.vehicle.rear_axle_load_n),
+            "fitments": [{"front": b.front, "rear": b.rear, "front_tire_load_n": _num(b.front_tire_load_n),
+                          "rear_tire_load_n": _num(b.rear_tire_load_n),
+                          "front_axle_stiffness_n_per_deg": _num(b.front_axle_stiffness_n_per_deg),
+                          "rear_axle_stiffness_n_per_deg": _num(b.rear_axle_stiffness_n_per_deg),
+                          "understeer_gradient_deg_per_g": _num(b.understeer_gradient_deg_per_g),
+                          "understeer_gradient_ci95": None if b.understeer_gradient_ci95 is None else
+                          [_num(b.understeer_gradient_ci95[0]), _num(b.understeer_gradient_ci95[1])],
+                          "characteristic_speed_kmh": _num(b.characteristic_speed_kmh),
+                          "critical_speed_kmh": _num(b.critical_speed_kmh), "character": b.character,
+                          "extrapolated": b.extrapolated} for b in fitments]},
 
     }
 

@@ -1,7 +1,7 @@
 """Units of the rig channels and their conversion into the internal units.
 
 Internal units: force N, moment N·m, angle deg, pressure kPa, speed km/h, time s,
-slip ratio as a plain fraction. Factors are exact definitions or NIST SP 811 (2008),
+slip ratio as a plain fraction, length m, mass kg. Factors are exact definitions or NIST SP 811 (2008),
 Appendix B.8/B.9.
 """
 
@@ -41,6 +41,8 @@ UNITS: dict[str, tuple[str, dict[str, float]]] = {
     "speed": ("km/h", {"km/h": 1.0, "kph": 1.0, "mph": MILE_IN_KM, "m/s": 3.6}),
     "time": ("s", {"s": 1.0, "ms": 0.001, "min": 60.0}),
     "slip_ratio": ("1", {"1": 1.0, "-": 1.0, "%": 0.01}),
+    "length": ("m", {"m": 1.0, "mm": 0.001, "ft": FOOT_IN_M, "in": INCH_IN_M}),
+    "mass": ("kg", {"kg": 1.0, "t": 1000.0, "lb": 0.45359237}),  # avoirdupois pound, exact (NIST SP 811 B.8)
 }
 
 

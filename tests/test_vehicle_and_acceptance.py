@@ -1,0 +1,105 @@
+"""Vehicle balance against a worked textbook example and a hand-computed truck; verdict edges."""
+
+import math
+
+import pytest
+
+from dossier import units
+from dossier.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
+from dossier.manifest import Target
+from dossier.metrics import MetricValue
+from dossier.vehicle import (AxleFitment, balance, character, characteristic_speed_kmh, critical_speed_kmh,
+                             understeer_gradient_deg_per_g, yaw_rate_gain_per_s)
+
+DEG_PER_RAD = 180.0 / math.pi
+
+
+def test_wong_worked_example_in_us_units():
+    # Wong, Theory of Ground Vehicles, ch. 5 problem, recomputed from its inputs (domain primer §6):
+    # W = 4520 lb, L = 10.5 ft, CG 0.45 L behind the front axle, Cα per tire 8750 lb/rad front, 8600 rear.
+    w_lbf, wheelbase_ft = 4520.0, 10.5
+    wf_lbf, wr_lbf = w_lbf * 0.55, w_lbf * 0.45  # 2486 lb and 2034 lb
+    assert (wf_lbf, wr_lbf) == pytest.approx((2486.0, 2034.0))
+    cf = 2 * 8750.0 / DEG_PER_RAD  # lb/deg per axle
+    cr = 2 * 8600.0 / DEG_PER_RAD
+    k = understeer_gradient_deg_per_g(wf_lbf, wr_lbf, cf, cr)  # the ratio is unit-free: lb/(lb/deg)
+    assert k == pytest.approx(1.364, abs=0.001)  # deg/g
+    assert k / DEG_PER_RAD == pytest.approx(0.02380, abs=0.00001)  # rad/g
+    v = characteristic_speed_kmh(k, wheelbase_ft * units.FOOT_IN_M)
+    assert v == pytest.approx(130.7, abs=0.1)
+    assert v / 3.6 / units.FOOT_IN_M == pytest.approx(119.1, abs=0.1)  # ft/s
+
+
+def test_wong_worked_example_in_si_units_through_a_fitment():
+    lbf, ft = units.LBF_IN_N, units.FOOT_IN_M
+    front_n, rear_n = 4520 * lbf * 0.55, 4520 * lbf * 0.45
+    per_tire = {"F": 8750 * lbf / DEG_PER_RAD, "R": 8600 * lbf / DEG_PER_RAD}  # N/deg
+    b = balance(AxleFitment("F", 2, "single"), AxleFitment("R", 2, "single"), front_n, rear_n, 10.5 * ft,
+                lambda sid, load: (per_tire[sid], None))
+    assert b.understeer_gradient_deg_per_g == pytest.approx(1.364, abs=0.001)
+    assert b.characteristic_speed_kmh == pytest.approx(130.7, abs=0.1)
+    assert b.critical_speed_kmh is None and b.character == "understeer"
+
+
+def test_dual_axle_against_wide_base_single_hand_computed():
+    # A 6×2 tractor's drive axle: 11 500 kg on four duals (2 875 kg each) or two wide-base singles
+    # (5 750 kg each). Front axle 6 500 kg on two singles. Tire stiffness in N/deg at its own load
+    # (invented, linear in load for the check): dual 2 000 + 0.05·Fz, wide-base 3 500 + 0.06·Fz.
+    g = 9.80665
+    front, rear = 6500 * g, 11500 * g
+
+    def stiffness(sid, load):
+        return {"steer": 2500 + 0.06 * load, "dual": 2000 + 0.05 * load, "wide": 3500 + 0.06 * load}[sid], None
+
+    dual = balance(AxleFitment("steer", 2, "single"), AxleFitment("dual", 4, "dual"), front, rear, 3.8, stiffness)
+    wide = balance(AxleFitment("steer", 2, "single"), AxleFitment("wide", 2, "wide-base single"), front, rear, 3.8,
+                   stiffness)
+    # by hand: steer tire 31 871.6 N → 4 412.30 N/deg per tire, 8 824.59 per axle; dual tire 28 194.1 N →
+    # 3 409.71 N/deg, 13 638.82 per axle; K = 63 743.2/8 824.59 − 112 776.5/13 638.82 = −1.0454 deg/g
+    caf = 2 * (2500 + 0.06 * 6500 * g / 2)
+    car_dual = 4 * (2000 + 0.05 * 11500 * g / 4)  # 4 tires at 28 194 N
+    car_wide = 2 * (3500 + 0.06 * 11500 * g / 2)  # 2 tires at 56 388 N
+    assert dual.rear_tire_load_n == pytest.approx(11500 * g / 4)
+    assert dual.rear_axle_stiffness_n_per_deg == pytest.approx(car_dual)
+    assert dual.understeer_gradient_deg_per_g == pytest.approx(front / caf - rear / car_dual)
+    assert wide.understeer_gradient_deg_per_g == pytest.approx(front / caf - rear / car_wide)
+    assert dual.understeer_gradient_deg_per_g == pytest.approx(-1.0454, abs=1e-4)
+    assert dual.character == "oversteer" and wide.understeer_gradient_deg_per_g > dual.understeer_gradient_deg_per_g
+
+
+def test_speeds_and_yaw_gain():
+    # r/δ = (V/L)/(1 + K V²/(57.3 L g)): neutral steer gives V/L; at the characteristic speed the
+    # gain is half the neutral one (Gillespie 1992, ch. 6).
+    L = 2.7
+    assert yaw_rate_gain_per_s(100.0, 0.0, L) == pytest.approx(100 / 3.6 / L)
+    vch = characteristic_speed_kmh(2.0, L)
+    assert yaw_rate_gain_per_s(vch, 2.0, L) == pytest.approx(0.5 * vch / 3.6 / L)
+    assert critical_speed_kmh(-2.0, L) == pytest.approx(vch)
+    assert (character(1.0), character(0.01), character(-0.5)) == ("understeer", "neutral", "oversteer")
+
+
+def _target(minimum=None, maximum=None, camber=0.0, pressure=None):
+    return Target(0, "cornering_stiffness", 4000.0, minimum, maximum, camber, pressure, "spec §1", None)
+
+
+def _value(v, ci, extrapolated=False):
+    return MetricValue("cornering_stiffness", "N/deg", "S", 4000.0, 0.0, 240.0, v, None if ci is None else 1.0, ci,
+                       "model", extrapolated)
+
+
+@pytest.mark.parametrize("target, value, verdict", [
+    (_target(1000, 1200), _value(1100, (1050, 1150)), MEETS),
+    (_target(1000, 1200), _value(1100, (1000, 1200)), MEETS),  # interval touching both limits: inside
+    (_target(1000, 1200), _value(1190, (1150, 1230)), MARGINAL),  # straddles the maximum
+    (_target(1000, 1200), _value(1010, (990, 1030)), MARGINAL),  # straddles the minimum
+    (_target(1000, 1200), _value(1250, (1201, 1299)), FAILS),
+    (_target(minimum=1000), _value(999, (998, 1000)), MARGINAL),  # touches from below: not a bare pass
+    (_target(minimum=1000), _value(1100, None), MARGINAL),  # no interval: never a bare pass
+    (_target(maximum=1000), _value(900, (850, 950)), MEETS),
+    (_target(1000, 1200), None, NOT_MEASURED),  # missing metric
+    (_target(1000, 1200), _value(1100, (1050, 1150), extrapolated=True), NOT_MEASURED),  # outside the load range
+    (_target(1000, 1200, camber=-2.0), _value(1100, (1050, 1150)), NOT_MEASURED),
+    (_target(1000, 1200, pressure=280.0), _value(1100, (1050, 1150)), NOT_MEASURED),
+])
+def test_verdict_edges(target, value, verdict):
+    assert judge(target, value, 240.0)[0] == verdict
