@@ -175,7 +175,8 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
         ax = fig.add_subplot()
         markers = "osD^v<>"
         for i, s in enumerate(specimens):
-            vs = sorted((v for v in values if v.specimen == s and v.metric == metric), key=lambda v: v.load_n)
+            vs = sorted((v for v in values if v.specimen == s and v.metric == metric and not v.extrapolated),
+                        key=lambda v: v.load_n)
             x = np.array([v.load_n / 1000 for v in vs])
             y = np.array([v.value for v in vs])
             err = np.array([[v.value - v.ci95[0], v.ci95[1] - v.value] if v.ci95 else [0.0, 0.0] for v in vs]).T
@@ -188,7 +189,8 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
     return FigureArtifact(
         f"{metric.replace('_', '-')}-load.svg",
         f"{label} against load",
-        "Model values at the nominal loads; bars show 95 % intervals from the fit covariance.",
+        "Model values at the loads each specimen was measured at (no extrapolation); bars show 95 % intervals "
+        "from the fit covariance.",
         f"Chart of {label.lower()} against normal load for specimens {', '.join(specimens)}.",
         _render(style, draw))
 
