@@ -27,7 +27,8 @@ from .metrics import METRICS, Models, MetricValue, metric_values, single_metric,
 from .vehicle import AxleFitment, balance
 from .offsets import split_offsets
 from .output import json_bytes, write_dossier
-from .render import make_context, make_environment, render_pdf, render_site
+from .narrative import read_narrative_texts
+from .render import make_context, make_environment, render_pdf, render_site, with_narrative
 from .results import coefficient_files, results_record
 from .sidewall import parse_size
 from .theme import load_theme
@@ -108,19 +109,20 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
                        quality_figures, drift, drift_figures, offset_splits,
                        judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
                        comparison_figures=comparison_figures)
-    env = make_environment(theme, manifest.project_dir / "templates")
-    site = render_site(ctx, env, theme)
-    pdf = render_pdf(ctx, env, site)
+    ctx = with_narrative(ctx, read_narrative_texts(manifest))
     all_fits = [f for m in models for f in m.channels]
     results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
                              recommendation, fitments)
-    exports = coefficient_files(manifest, conditioned, models)
+    data_files = {RESULTS_NAME: json_bytes(results), **coefficient_files(manifest, conditioned, models),
+                  **conditioned_data_files(conditioned)}
+    env = make_environment(theme, manifest.project_dir / "templates")
+    site = render_site(ctx, env, theme, data_files)
+    pdf = render_pdf(ctx, env, site, attachments=data_files)
 
     # Start writing files now that all data is gathered.
     files = {f"site/{k}": v for k, v in site.items()}
     files[PDF_NAME] = pdf
-    files[RESULTS_NAME] = json_bytes(results)
-    files.update(exports)
+    files.update(data_files)
     write_dossier(out_dir, files)
     return BuildSummary(out_dir, len(files), len(all_fits), len(metrics))
 
@@ -154,6 +156,26 @@ def specimen_metric_values(models: list[SpecimenModel], points: list[OperatingPo
             out += metric_values(ms, load, own, manifest.metrics.crosscheck_threshold_pct)
         out += specimen_metrics(ms)
     return out
+
+
+def conditioned_data_files(conditioned: list[ConditionedRun]) -> dict[str, bytes]:
+    """The steady-state curves of every run as CSV (internal units, ISO 8855), one file per run."""
+    files = {}
+    for c in conditioned:
+        a = c.account
+        lines = [f"# conditioned steady-state curves of {a.source_file} (sha256 {a.sha256}); "
+                 "units N, N·m, deg, kPa; axes ISO 8855; slip is deg (slip angle) or 1 (slip ratio)",
+                 "load_setpoint_n,camber_deg,pressure_kpa,sweep,slip,fz_n,fy_n,mz_nm,fx_n,samples"]
+        for p in c.points:
+            cv = p.curve
+            for i in range(cv.n_points):
+                def col(arr):
+                    return "" if arr is None else repr(float(arr[i]))
+                lines.append(",".join([repr(p.load_n), repr(p.camber_deg), repr(p.pressure_kpa), p.sweep,
+                                       repr(float(cv.x[i])), repr(float(cv.fz_n[i])), col(cv.fy_n), col(cv.mz_nm),
+                                       col(cv.fx_n), str(int(cv.samples_per_bin[i]))]))
+        files[f"conditioned/run-{a.run_index:02d}.csv"] = ("\n".join(lines) + "\n").encode("utf-8")
+    return files
 
 
 def compare_candidates(manifest: Manifest, metrics, fz0_n, drift, judged):

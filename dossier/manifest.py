@@ -20,6 +20,9 @@ from .errors import ManifestError, Problem
 
 MANIFEST_NAME = "dossier.toml"
 ROLES = ("baseline", "candidate", "control")
+STATUSES = ("draft", "in review", "released")
+SIGNOFF_ROLES = ("author", "checker", "approver")
+NARRATIVE_PARTS = ("summary", "test_notes", "conclusions")
 
 # Channels a rig file may carry: channel -> quantity (for its unit).
 CHANNELS: dict[str, str] = {
@@ -350,6 +353,25 @@ MANIFEST_SCHEMA = Table({
                        help="extra loads to report metrics at, besides the measured ones"),
         "crosscheck_threshold_pct": Key(Number(minimum=0.1, maximum=50), required=False, default=5.0),
     }), required=False, default=None),
+    "signoff": Key(Table({
+        "status": Key(Choice(STATUSES)),
+        "people": Key(ListOf(Table({
+            "name": Key(Text()),
+            "role": Key(Choice(SIGNOFF_ROLES)),
+            "organisation": Key(Text(), required=False),
+            "date": Key(Date(), required=False, help="when this person signed; required for the approver of a released revision"),
+        }), min_items=1)),
+    }), required=False, default=None),
+    "revisions": Key(ListOf(Table({
+        "revision": Key(Text()),
+        "date": Key(Date()),
+        "description": Key(Text()),
+    })), required=False, default=[]),
+    "narrative": Key(Table({
+        "summary": Key(RelativePath(), required=False),
+        "test_notes": Key(RelativePath(), required=False),
+        "conclusions": Key(RelativePath(), required=False),
+    }), required=False, default=None),
     "targets": Key(ListOf(Table({
         "metric": Key(MetricName()),
         "load_n": Key(Number(minimum=0, exclusive_minimum=True)),
@@ -499,6 +521,35 @@ class VehicleSpec:
 
 
 @dataclass(frozen=True)
+class Person:
+    name: str
+    role: str
+    organisation: str | None
+    date: dt.date | None
+
+
+@dataclass(frozen=True)
+class SignOff:
+    status: str
+    people: tuple[Person, ...]
+
+    @property
+    def released(self) -> bool:
+        return self.status == "released"
+
+    @property
+    def approver(self) -> Person | None:
+        return next((p for p in self.people if p.role == "approver" and p.date), None)
+
+
+@dataclass(frozen=True)
+class Revision:
+    revision: str
+    date: dt.date
+    description: str
+
+
+@dataclass(frozen=True)
 class MetricSettings:
     loads_n: tuple[float, ...] = ()
     crosscheck_threshold_pct: float = 5.0
@@ -531,6 +582,9 @@ class Manifest:
     metrics: MetricSettings = field(default_factory=MetricSettings)
     targets: tuple[Target, ...] = ()
     vehicle: VehicleSpec | None = None
+    signoff: SignOff = field(default_factory=lambda: SignOff("draft", ()))
+    revisions: tuple[Revision, ...] = ()
+    narrative: dict[str, str] = field(default_factory=dict)  # part -> relative path
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
@@ -633,6 +687,18 @@ def _check_references(data: dict, project_dir: Path, problems: list[Problem]) ->
         for j, sid in enumerate(t.get("specimens") or []):
             if sid and ids and sid not in ids:
                 problems.append(Problem(f"targets[{i}].specimens[{j}]", f"no specimen with id {sid!r}{_suggest(sid, ids)}"))
+    so = data.get("signoff")
+    if so and so.get("status") == "released":
+        approvers = [p for p in (so.get("people") or []) if p and p.get("role") == "approver" and p.get("date")]
+        if not approvers:
+            problems.append(Problem("signoff.people", "a released revision needs an approver with a date"))
+    revs = [r.get("revision") for r in (data.get("revisions") or []) if r]
+    doc = data.get("document") or {}
+    if revs and doc.get("revision") and doc["revision"] not in revs:
+        problems.append(Problem("revisions", f"has no entry for the document's revision {doc['revision']!r}"))
+    for part, rel in (data.get("narrative") or {}).items():
+        if rel and not (project_dir / rel).is_file():
+            problems.append(Problem(f"narrative.{part}", f"file not found: {rel!r} (paths are relative to the manifest's folder)"))
     v = data.get("vehicle")
     if v:
         by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
@@ -696,8 +762,13 @@ def _build(data: dict, project_dir: Path) -> Manifest:
     met = data.get("metrics")
     metrics = MetricSettings(tuple(met["loads_n"] or ()), met["crosscheck_threshold_pct"]) if met else MetricSettings()
     targets = tuple(_target(i, t) for i, t in enumerate(data.get("targets") or []))
+    so = data.get("signoff")
+    signoff = SignOff(so["status"], tuple(Person(p["name"], p["role"], p["organisation"], p["date"])
+                                         for p in so["people"])) if so else SignOff("draft", ())
+    revisions = tuple(Revision(r["revision"], r["date"], r["description"]) for r in data.get("revisions") or [])
+    narrative = {k: v for k, v in (data.get("narrative") or {}).items() if v}
     return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics, targets,
-                    _vehicle(data["vehicle"]) if data.get("vehicle") else None)
+                    _vehicle(data["vehicle"]) if data.get("vehicle") else None, signoff, revisions, narrative)
 
 
 def _target(i: int, t: dict) -> Target:

@@ -9,13 +9,18 @@ from the network or the disk.
 
 from __future__ import annotations
 
+import io
 import math
 import mimetypes
 from dataclasses import dataclass, field
 from pathlib import Path
 from urllib.parse import urljoin
 
+import datetime as dt
+import hashlib
+
 import jinja2
+from markupsafe import Markup
 import weasyprint
 from weasyprint.urls import URLFetcher, URLFetcherResponse
 
@@ -112,6 +117,16 @@ class DossierContext:
     fitments: tuple = ()
     comparison_figures: dict = field(default_factory=dict)
     vehicle_simplifications: tuple[str, ...] = SIMPLIFICATIONS
+    narrative: dict = field(default_factory=dict)  # part -> rendered HTML (Markup)
+    downloads_page: str = "downloads.html"
+
+    @property
+    def signoff(self):
+        return self.manifest.signoff
+
+    @property
+    def status_label(self) -> str:
+        return {"draft": "DRAFT", "in review": "IN REVIEW", "released": "RELEASED"}[self.signoff.status]
 
     @property
     def vehicle(self):
@@ -184,6 +199,16 @@ class DossierContext:
         """Headline metrics of a specimen at the nominal load, in registry order (None: not measured)."""
         view = next(v for v in self.specimens if v.specimen.id == specimen_id)
         return [view.metric(m.name, self.nominal_load_n) for m in (definitions or self.headline)]
+
+
+def with_narrative(ctx: DossierContext, texts: dict[str, tuple[str, str]]) -> DossierContext:
+    """Return `ctx` with the narrative parts rendered (sandboxed template, then Markdown)."""
+    from dataclasses import replace
+
+    from .narrative import render_narrative
+
+    rendered = {part: Markup(render_narrative(rel, text, ctx)) for part, (rel, text) in texts.items()}
+    return replace(ctx, narrative=rendered)
 
 
 def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
@@ -262,8 +287,13 @@ def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Env
     return env
 
 
-def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme) -> dict[str, bytes]:
-    """Return the site's files, keyed by path relative to the site folder."""
+def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
+                data_files: dict[str, bytes] | None = None) -> dict[str, bytes]:
+    """Return the site's files, keyed by path relative to the site folder.
+
+    `data_files` are the machine-readable outputs written beside the site; the downloads page
+    lists them with their SHA-256.
+    """
     files: dict[str, bytes] = {}
     files["index.html"] = _page(env, "index.html", ctx, current="index.html")
     for view in ctx.specimens:
@@ -272,29 +302,47 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme) -> d
     files[ctx.comparison_page] = _page(env, "comparison.html", ctx, current=ctx.comparison_page)
     if ctx.vehicle:
         files[ctx.vehicle_page] = _page(env, "vehicle.html", ctx, current=ctx.vehicle_page)
+    files[ctx.downloads_page] = _page(env, "downloads.html", ctx, current=ctx.downloads_page,
+                                      downloads=_downloads(data_files or {}))
     figures = list(ctx.summary_figures) + list(ctx.drift_figures)
     figures += [f for group in ctx.comparison_figures.values() for f in group]
     figures += [f for v in ctx.specimens for f in v.figures] + [f for r in ctx.runs for f in r.figures]
     for fig in figures:
         files[f"figures/{fig.filename}"] = fig.svg
     for name in STATIC_FILES:
-        path = theme.find(name)
-        if path is not None:
-            files[f"static/{name}"] = path.read_bytes()
+        # A child theme's stylesheet adds to its parent's: parent rules first, the child's after.
+        parts = [f / name for f in reversed(theme.folders) if (f / name).is_file()]
+        if parts:
+            files[f"static/{name}"] = b"\n".join(p.read_bytes() for p in parts)
     _require_cautions(files)
     return files
 
 
-def render_pdf(ctx: DossierContext, env: jinja2.Environment, site_files: dict[str, bytes]) -> bytes:
-    """Render the whole dossier as one PDF from the print template and the site's files."""
-    html = _page(env, "print.html", ctx, current="print.html")
+def render_pdf(ctx: DossierContext, env: jinja2.Environment, site_files: dict[str, bytes],
+               attachments: dict[str, bytes] | None = None) -> bytes:
+    """Render the whole dossier as one PDF/A-3u from the print template, with the data attached.
+
+    Attachments carry the document date as their creation and modification date, so that the
+    same inputs give the same bytes.
+    """
+    html = _page(env, "print.html", ctx, current="print.html", downloads=_downloads(attachments or {}))
     _require_cautions({"print.html": html})
     fetcher = _BuildFetcher(site_files)
     document = weasyprint.HTML(string=html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
-    pdf = document.write_pdf(pdf_identifier=ctx.document.number.encode("utf-8"), uncompressed_pdf=False)
+    stamp = dt.datetime.combine(ctx.document.date, dt.time(12, 0), tzinfo=dt.timezone.utc)
+    files = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=name.replace("/", "_"),
+                                   description=f"{name} of {ctx.document.number} rev. {ctx.document.revision}",
+                                   created=stamp, modified=stamp, relationship="Data")
+             for name, data in sorted((attachments or {}).items())]
+    pdf = document.write_pdf(pdf_identifier=ctx.document.number.encode("utf-8"), pdf_variant="pdf/a-3u",
+                             attachments=files, uncompressed_pdf=False)
     if fetcher.refused:
         raise StageError("the PDF asked for resources outside this build, refused: " + ", ".join(sorted(fetcher.refused)))
     return pdf
+
+
+def _downloads(files: dict[str, bytes]) -> list[tuple[str, int, str]]:
+    return [(name, len(data), hashlib.sha256(data).hexdigest()) for name, data in sorted(files.items())]
 
 
 def _page(env, template: str, ctx: DossierContext, **extra) -> bytes:

@@ -1,0 +1,143 @@
+"""The dossier as a document: reproducible bytes, PDF/A with attachments, narrative, themes, sign-off."""
+
+import re
+import shutil
+
+import numpy as np
+import pytest
+from pypdf import PdfReader
+
+import projects as P
+from dossier.build import build
+from dossier.errors import StageError, UserError
+from dossier.narrative import NarrativeError, render_markdown
+
+LOADS = [2000, 4000, 6000]
+
+
+def tire(scale=1.0):
+    def fy(slip_deg, fz_n):
+        return scale * -1.0 * fz_n * np.sin(1.4 * np.arctan(0.25 * np.asarray(slip_deg)))
+    return fy
+
+
+def make_project(root, scale=1.0, narrative="Stiffness {{ value('A', 'cornering_stiffness') }}.\n", extra=""):
+    t, a, fz, fy = P.sweep_samples(LOADS, tire(scale), noise_n=10.0, seed=4)
+    P.write_csv(root / "rig/a.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz, -fy])
+    (root / "notes").mkdir(parents=True, exist_ok=True)
+    (root / "notes/summary.md").write_text(narrative, encoding="utf-8")
+    text = (P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", LOADS)
+            + '\n[narrative]\nsummary = "notes/summary.md"\n[fit]\nnominal_load_n = 4000\nleave_one_load_out = false\n'
+            + extra)
+    (root / "dossier.toml").write_text(text, encoding="utf-8")
+    return root
+
+
+@pytest.fixture(scope="module")
+def small(tmp_path_factory):
+    root = make_project(tmp_path_factory.mktemp("small") / "proj")
+    out = root.parent / "out"
+    build(root, out)
+    return root, out
+
+
+def _all_files(folder):
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+
+
+def test_two_builds_are_byte_identical(small, tmp_path):
+    root, out = small
+    again = tmp_path / "again"
+    build(root, again)
+    first, second = _all_files(out), _all_files(again)
+    assert first.keys() == second.keys()
+    for name in first:
+        assert first[name] == second[name], name
+    assert any(n.endswith(".svg") for n in first) and "dossier.pdf" in first
+
+
+def test_pdf_is_pdf_a_3u_with_the_data_attached(small):
+    _, out = small
+    reader = PdfReader(out / "dossier.pdf")
+    xmp = reader.trailer["/Root"]["/Metadata"].get_object().get_data().decode("utf-8")
+    assert re.search(r'pdfaid:part(="|>)3', xmp) and re.search(r'pdfaid:conformance(="|>)U', xmp)
+    names = set(reader.attachments)
+    assert {"results.json", "coefficients_a.json", "coefficients_a.csv", "conditioned_run-00.csv"} <= names
+    attached = reader.attachments["results.json"][0]
+    assert attached == (out / "results.json").read_bytes()
+    assert reader.metadata["/Title"].startswith("Test dossier")
+    assert reader.metadata["/CreationDate"].startswith("D:20261120")  # the manifest's date, not the clock
+
+
+def test_narrative_follows_the_data(small, tmp_path):
+    _, out = small
+    html = (out / "site/index.html").read_text(encoding="utf-8")
+    value = re.search(r"Stiffness ([\d\u2009]+) N/deg", html).group(1)
+    root2 = make_project(tmp_path / "p2", scale=1.1)
+    build(root2, tmp_path / "o2")
+    html2 = (tmp_path / "o2/site/index.html").read_text(encoding="utf-8")
+    value2 = re.search(r"Stiffness ([\d\u2009]+) N/deg", html2).group(1)
+    as_int = lambda s: int(s.replace("\u2009", ""))  # noqa: E731
+    assert as_int(value2) == pytest.approx(1.1 * as_int(value), rel=0.01)
+    # the same number appears in the tables
+    assert f">{value}<br>" in html.replace("\n", "") or f">{value}<" in html
+
+
+def test_unknown_reference_names_file_and_line(tmp_path):
+    root = make_project(tmp_path / "p", narrative="First line.\n\nSee {{ value('A', 'cornering_stiffnes') }}.\n")
+    with pytest.raises(NarrativeError, match=r"notes/summary.md, line 3: unknown metric 'cornering_stiffnes'"):
+        build(root, tmp_path / "o")
+    root = make_project(tmp_path / "q", narrative="{{ nonsense }}\n")
+    with pytest.raises(NarrativeError, match=r"notes/summary.md, line 1: 'nonsense' is undefined"):
+        build(root, tmp_path / "o2")
+    assert not (tmp_path / "o").exists() and not (tmp_path / "o2").exists()
+
+
+def test_narrative_cannot_reach_python_internals(tmp_path):
+    root = make_project(tmp_path / "p", narrative="{{ value.__globals__ }}\n")
+    with pytest.raises(NarrativeError):
+        build(root, tmp_path / "o")
+
+
+def test_markdown_keeps_html_as_text_and_refuses_script_links():
+    html = render_markdown("<script>alert(1)</script>\n\n[x](javascript:alert(1))\n")
+    assert "<script>" not in html and "&lt;script&gt;" in html
+    assert 'href="javascript:' not in html
+
+
+def test_project_override_without_cautions_fails(tmp_path):
+    root = make_project(tmp_path / "p")
+    (root / "templates").mkdir()
+    (root / "templates/_cautions.html").write_text("<p>no cautions here</p>\n", encoding="utf-8")
+    with pytest.raises(StageError, match="lacks the safety cautions block"):
+        build(root, tmp_path / "o")
+
+
+def test_plain_theme_inherits_from_default(small, tmp_path):
+    root, _ = small
+    build(root, tmp_path / "plain", theme_name="plain")
+    css = (tmp_path / "plain/site/static/screen.css").read_text(encoding="utf-8")
+    assert css.index("dossier default theme") < css.index("plain theme")  # parent rules first
+    assert "Evaluation dossier (monochrome)" in (tmp_path / "plain/site/index.html").read_text(encoding="utf-8")
+    with pytest.raises(UserError, match="theme 'nope' not found"):
+        build(root, tmp_path / "x", theme_name="nope")
+
+
+def test_draft_mark_and_released_signoff(tmp_path):
+    draft = make_project(tmp_path / "d")
+    build(draft, tmp_path / "od")
+    assert "DRAFT: not released" in (tmp_path / "od/site/index.html").read_text(encoding="utf-8")
+    released = make_project(tmp_path / "r", extra='''
+[signoff]
+status = "released"
+[[signoff.people]]
+name = "A. Approver"
+role = "approver"
+date = 2026-11-25
+''')
+    build(released, tmp_path / "or")
+    html = (tmp_path / "or/site/index.html").read_text(encoding="utf-8")
+    assert "not released" not in html and "Approved by A. Approver" in html and "2026-11-25" in html
+    unsigned = make_project(tmp_path / "u", extra='\n[signoff]\nstatus = "released"\n[[signoff.people]]\nname = "X"\nrole = "approver"\n')
+    with pytest.raises(UserError, match="a released revision needs an approver with a date"):
+        build(unsigned, tmp_path / "ou")
