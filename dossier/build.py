@@ -19,7 +19,10 @@ from .figures import (channel_figure, conditions_figure, difference_figure, drif
                       hysteresis_figure, load_trend_figure, overlay_figure, residual_figure, time_history_figure,
                       yaw_gain_figure)
 from .fit import ChannelFit, fit_channel, leave_one_load_out
-from .ingest import read_run
+from .archive import INPUTS
+from .ingest import read_project_files, read_run
+from .integrity import tag_files
+from .provenance import provenance_bytes, provenance_record
 from .manifest import Manifest, load_manifest
 from .acceptance import verdicts as judge_targets
 from .comparison import compare, recommend
@@ -35,6 +38,7 @@ from .theme import load_theme
 
 PDF_NAME = "dossier.pdf"
 RESULTS_NAME = "results.json"
+PROVENANCE_NAME = "provenance.json"
 
 
 @dataclass(frozen=True)
@@ -113,16 +117,21 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     all_fits = [f for m in models for f in m.channels]
     results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
                              recommendation, fitments)
-    data_files = {RESULTS_NAME: json_bytes(results), **coefficient_files(manifest, conditioned, models),
-                  **conditioned_data_files(conditioned)}
+    provenance = provenance_bytes(provenance_record(manifest, manifest.sha256, conditioned, models, metrics))
+    data_files = {RESULTS_NAME: json_bytes(results), PROVENANCE_NAME: provenance,
+                  **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
     env = make_environment(theme, manifest.project_dir / "templates")
     site = render_site(ctx, env, theme, data_files)
     pdf = render_pdf(ctx, env, site, attachments=data_files)
+
+    archived = {f"{INPUTS}/{k}": v for k, v in read_project_files(manifest).items()}
 
     # Start writing files now that all data is gathered.
     files = {f"site/{k}": v for k, v in site.items()}
     files[PDF_NAME] = pdf
     files.update(data_files)
+    files.update(archived)
+    files.update(tag_files(files, manifest.document.number, manifest.document.revision))
     write_dossier(out_dir, files)
     return BuildSummary(out_dir, len(files), len(all_fits), len(metrics))
 

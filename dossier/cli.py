@@ -2,7 +2,8 @@
 
 Exit codes (documented in the README): 0 success; 2 bad command line; 3 manifest or rig data
 rejected; 4 a stage could not produce a result it stands behind, or the output folder is not
-ours to replace; 70 internal error (a bug). User errors print without a traceback.
+ours to replace; 5 verification failed (or a dossier that fails it was to be sealed);
+70 internal error (a bug). User errors print without a traceback.
 """
 
 from __future__ import annotations
@@ -51,6 +52,66 @@ def check(project: Path) -> None:
         for reason in a.verdict_reasons:
             click.echo(f"    {reason}")
     click.echo(f"{project}: manifest and {len(conditioned)} rig file(s) OK")
+
+
+@cli.command()
+@click.argument("out", type=click.Path(path_type=Path))
+@click.option("--public-key", type=click.Path(path_type=Path), default=None,
+              help="PEM file of the Ed25519 public key the seal must have been made with.")
+@click.option("--rebuild", is_flag=True, help="Also rebuild from the archived inputs and compare the results.")
+def verify(out: Path, public_key: Path | None, rebuild: bool) -> None:
+    """Check a built dossier OUT: every file against its integrity manifest, and its seal."""
+    from .archive import VerifyError, rebuild_and_compare
+    from .archive import verify as run_verify
+
+    report = run_verify(out, public_key)
+    for line in report.lines():
+        click.echo(line)
+    differing = []
+    if rebuild:
+        differing = rebuild_and_compare(out)
+        for name in differing:
+            click.echo(f"not reproduced: {name}")
+        click.echo("rebuild: " + ("results reproduced byte for byte" if not differing else
+                                  f"{len(differing)} file(s) differ"))
+    if not report.ok or differing:
+        raise VerifyError(f"{out}: verification failed")
+    click.echo(f"{out}: all files match the integrity manifest")
+
+
+@cli.command()
+@click.argument("out", type=click.Path(path_type=Path))
+@click.option("--private-key", type=click.Path(path_type=Path), required=True, help="PEM file of the Ed25519 private key.")
+def seal(out: Path, private_key: Path) -> None:
+    """Sign the integrity manifest of a released dossier OUT (the key is never written into OUT)."""
+    from .archive import seal as run_seal
+
+    key_id = run_seal(out, private_key)
+    click.echo(f"{out}: sealed with key {key_id}")
+
+
+@cli.command()
+@click.argument("private_key", type=click.Path(path_type=Path))
+@click.argument("public_key", type=click.Path(path_type=Path))
+def keygen(private_key: Path, public_key: Path) -> None:
+    """Create an Ed25519 key pair for sealing (PEM files; never overwrites)."""
+    from .archive import keygen as run_keygen
+
+    run_keygen(private_key, public_key)
+    click.echo(f"private key: {private_key} (keep it out of any dossier folder)\npublic key: {public_key}")
+
+
+@cli.command()
+@click.argument("old", type=click.Path(path_type=Path))
+@click.argument("new", type=click.Path(path_type=Path))
+def diff(old: Path, new: Path) -> None:
+    """Report what changed between two built revisions: inputs, coefficients, metrics, verdicts."""
+    from .archive import diff as run_diff
+
+    changes = run_diff(old, new)
+    for c in changes:
+        click.echo(f"{c.kind}: {c.key}: {c.old} -> {c.new}")
+    click.echo(f"{len(changes)} change(s)")
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -135,3 +135,18 @@ def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: R
     if span is not None and span < 1.0 and spec.columns["slip_angle"].unit == "deg" and spec.sweep == "slip_angle":
         raise RigDataError(shown, f"slip angle spans only {span:.3f} deg; the column is probably in radians "
                            f"(manifest {spec.location}.columns.slip_angle.unit)")
+
+
+def read_project_files(manifest) -> dict[str, bytes]:
+    """The project's own files a rebuild needs (manifest, rig files, narrative, template overrides).
+
+    Returned as relative path → bytes, to be archived inside the output under ``inputs/``.
+    """
+    from .manifest import MANIFEST_NAME
+
+    root = Path(manifest.project_dir)
+    names = {MANIFEST_NAME, *(r.file for r in manifest.runs), *manifest.narrative.values()}
+    templates = root / "templates"
+    if templates.is_dir():
+        names |= {p.relative_to(root).as_posix() for p in templates.rglob("*") if p.is_file()}
+    return {name: (root / name).read_bytes() for name in sorted(names)}

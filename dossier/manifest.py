@@ -585,6 +585,7 @@ class Manifest:
     signoff: SignOff = field(default_factory=lambda: SignOff("draft", ()))
     revisions: tuple[Revision, ...] = ()
     narrative: dict[str, str] = field(default_factory=dict)  # part -> relative path
+    sha256: str = ""  # of the manifest file as read
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
@@ -600,12 +601,16 @@ def load_manifest(project_dir: Path) -> Manifest:
     if not path.is_file():
         raise ManifestError(shown, [Problem(MANIFEST_NAME, f"not found in {project_dir}; a project folder needs one")])
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+        raw_bytes = path.read_bytes()
+        raw = tomllib.loads(raw_bytes.decode("utf-8-sig"))
     except UnicodeDecodeError as exc:
         raise ManifestError(shown, [Problem("file", f"is not UTF-8 text ({exc.reason} at byte {exc.start})")]) from None
     except tomllib.TOMLDecodeError as exc:
         raise ManifestError(shown, [Problem("TOML syntax", str(exc))]) from None
-    return parse_manifest(raw, project_dir, shown)
+    import hashlib
+    from dataclasses import replace
+
+    return replace(parse_manifest(raw, project_dir, shown), sha256=hashlib.sha256(raw_bytes).hexdigest())
 
 
 def parse_manifest(raw: dict, project_dir: Path, shown: str = MANIFEST_NAME) -> Manifest:

@@ -16,6 +16,7 @@ from pathlib import Path
 from .errors import OutputError
 
 MARKER = ".dossier-output"
+SEALED = "seal-ed25519.json"  # see dossier.integrity
 
 
 def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
@@ -27,6 +28,9 @@ def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
         if any(out_dir.iterdir()) and not (out_dir / MARKER).is_file():
             raise OutputError(f"{out_dir}: folder exists, is not empty and was not made by dossier "
                               f"(no {MARKER} file); choose another --out. Nothing was changed.")
+        if (out_dir / SEALED).is_file():
+            raise OutputError(f"{out_dir}: holds a sealed, released revision, which is frozen; build a new revision "
+                              "into another folder. Nothing was changed.")
     parent = out_dir.parent
     parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))

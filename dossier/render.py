@@ -302,6 +302,7 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
     files[ctx.comparison_page] = _page(env, "comparison.html", ctx, current=ctx.comparison_page)
     if ctx.vehicle:
         files[ctx.vehicle_page] = _page(env, "vehicle.html", ctx, current=ctx.vehicle_page)
+    files["provenance.html"] = _page(env, "provenance.html", ctx, current="provenance.html")
     files[ctx.downloads_page] = _page(env, "downloads.html", ctx, current=ctx.downloads_page,
                                       downloads=_downloads(data_files or {}))
     figures = list(ctx.summary_figures) + list(ctx.drift_figures)

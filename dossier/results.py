@@ -136,6 +136,7 @@ def results_record(manifest: Manifest, conditioned: list[ConditionedRun], fits: 
         "document": {
             "title": d.title, "number": d.number, "revision": d.revision, "customer": d.customer,
             "program": d.program, "supplier": d.supplier, "authors": list(d.authors), "date": d.date.isoformat(),
+            "status": manifest.signoff.status,
         },
         "specimens": [_specimen_record(s, manifest) for s in manifest.specimens],
         "inputs": [
