@@ -29,7 +29,7 @@ def read_folder(folder: Path) -> dict[str, bytes]:
         raise UserError(f"{folder}: not a folder")
     out = {}
     for p in sorted(folder.rglob("*")):
-        if p.is_file() and not p.is_symlink() and p.name != ".dossier-output":
+        if p.is_file() and not p.is_symlink() and p.name not in (".dossier-output", ".dossier-build-key"):
             out[p.relative_to(folder).as_posix()] = p.read_bytes()
     return out
 
@@ -123,7 +123,7 @@ def rebuild_and_compare(folder: Path, theme: str = "default") -> list[str]:
         raise VerifyError(f"{folder}: no archived inputs ({INPUTS}/dossier.toml); cannot rebuild")
     with tempfile.TemporaryDirectory() as tmp:
         out = Path(tmp) / "rebuilt"
-        build(inputs, out, theme)
+        build(inputs, out, theme, use_cache=False)  # never write a cache into the archive
         old, new = read_folder(folder), read_folder(out)
     skip = set(integrity.TAG_FILES)
     names = sorted((set(old) | set(new)) - skip)

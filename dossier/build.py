@@ -8,6 +8,7 @@ Each step is one call into its own module; only ``load_manifest``/``read_run`` r
 
 from __future__ import annotations
 
+import os
 import statistics
 from dataclasses import dataclass
 from pathlib import Path
@@ -15,11 +16,10 @@ from pathlib import Path
 from .condition import UNUSABLE, ConditionedRun, OperatingPoint, condition_run
 from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
-from .figures import (channel_figure, conditions_figure, difference_figure, drift_figure, gough_figure,
-                      hysteresis_figure, load_trend_figure, overlay_figure, residual_figure, time_history_figure,
-                      yaw_gain_figure)
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .archive import INPUTS
+from .cache import CACHE_DIR, Cache, digest
+from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
 from .ingest import read_project_files, read_run
 from .integrity import tag_files
 from .provenance import provenance_bytes, provenance_record
@@ -29,7 +29,7 @@ from .comparison import compare, recommend
 from .metrics import METRICS, Models, MetricValue, metric_values, single_metric, specimen_metrics
 from .vehicle import AxleFitment, balance
 from .offsets import split_offsets
-from .output import json_bytes, write_dossier
+from .output import json_bytes, refuse_sealed, write_dossier
 from .narrative import read_narrative_texts
 from .render import make_context, make_environment, render_pdf, render_site, with_narrative
 from .results import coefficient_files, results_record
@@ -61,6 +61,9 @@ class BuildSummary:
     n_files: int
     n_fits: int
     n_metrics: int
+    reused: bool = False  # nothing changed: the output was left as it was
+    cache_hits: int = 0
+    cache_misses: int = 0
 
 
 def check(project_dir: Path) -> tuple[Manifest, list[ConditionedRun]]:
@@ -78,12 +81,27 @@ def check(project_dir: Path) -> tuple[Manifest, list[ConditionedRun]]:
     return manifest, conditioned
 
 
-def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "default") -> BuildSummary:
-    """Build the dossier of the project in `project_dir` into `out_dir`."""
-    manifest, conditioned = check(project_dir)
-    out_dir = Path(out_dir) if out_dir else manifest.project_dir / "dossier-out"
-    theme = load_theme(theme_name)
+def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "default", *,
+          use_cache: bool = True, workers: int | None = None) -> BuildSummary:
+    """Build the dossier of the project in `project_dir` into `out_dir`.
 
+    With `use_cache`, results of unchanged stages come from ``PROJECT/.dossier-cache`` and a
+    rebuild whose every input, theme file and code file is unchanged leaves the output as it is.
+    `workers` processes render figures and fit specimens in parallel (default: one per CPU);
+    the output does not depend on it.
+    """
+    manifest = load_manifest(project_dir)
+    out_dir = Path(out_dir) if out_dir else manifest.project_dir / "dossier-out"
+    refuse_sealed(out_dir)
+    theme = load_theme(theme_name)
+    project_files = read_project_files(manifest)
+    key = build_key(project_files, theme, theme_name)
+    if use_cache and output_is_current(out_dir, key):
+        return BuildSummary(out_dir, -1, -1, -1, reused=True)
+    cache = Cache(manifest.project_dir / CACHE_DIR if use_cache else None)
+    workers = workers or os.cpu_count() or 1
+
+    manifest, conditioned = check(project_dir)
     measured = [p for c in conditioned for p in c.points]
     fz0_n = nominal_load_n(manifest)
     drift: DriftEstimate | None = None
@@ -94,21 +112,22 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
         points, drift = correct_points(measured, drift)
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
-    models = fit_specimens(points, manifest, fz0_n, p0_kpa)
-    fits = [m.fy for m in models if m.fy is not None]
-    metrics = specimen_metric_values(models, points, manifest)
+    models = fit_specimens(points, manifest, fz0_n, p0_kpa, cache=cache, workers=workers)
+    metrics = cache.get_or_compute(
+        digest("metrics", models, points, manifest.metrics, manifest.targets),
+        lambda: specimen_metric_values(models, points, manifest))
     judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
     standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
     fitments = fitment_matrix(manifest, models)
 
-    specimen_figures = {m.specimen: specimen_figures_of(m, points, theme.figure_style) for m in models}
-    summary_figures = [load_trend_figure(name, METRICS[name].label, METRICS[name].unit, metrics, theme.figure_style)
-                       for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail")
-                       if any(m.metric == name for m in metrics)]
-    quality_figures = {c.account.run_index: _quality_figures(c, fz0_n, theme.figure_style) for c in conditioned}
-    drift_figures = [drift_figure(drift, theme.figure_style)] if drift else []
-    comparison_figures = comparison_figures_of(models, points, standings, fitments, manifest, fz0_n, p0_kpa,
-                                               theme.figure_style)
+    style = theme.figure_style
+    tasks = figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa,
+                         style)
+    style_bytes = style.read_bytes() if style else b""
+    rendered = cache.get_or_compute(digest("figures", [(place, name, args[:-1]) for place, name, args in tasks],
+                                           style_bytes),
+                                    lambda: run_figure_tasks(tasks, workers))
+    specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(tasks, rendered)
     ctx = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
                        quality_figures, drift, drift_figures, offset_splits,
                        judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
@@ -122,9 +141,9 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
                   **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
     env = make_environment(theme, manifest.project_dir / "templates")
     site = render_site(ctx, env, theme, data_files)
-    pdf = render_pdf(ctx, env, site, attachments=data_files)
-
-    archived = {f"{INPUTS}/{k}": v for k, v in read_project_files(manifest).items()}
+    pdf = cache.get_or_compute(digest("pdf", site, data_files, theme_files(theme), project_files),
+                               lambda: render_pdf(ctx, env, site, attachments=data_files))
+    archived = {f"{INPUTS}/{k}": v for k, v in project_files.items()}
 
     # Start writing files now that all data is gathered.
     files = {f"site/{k}": v for k, v in site.items()}
@@ -132,8 +151,9 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     files.update(data_files)
     files.update(archived)
     files.update(tag_files(files, manifest.document.number, manifest.document.revision))
-    write_dossier(out_dir, files)
-    return BuildSummary(out_dir, len(files), len(all_fits), len(metrics))
+    write_dossier(out_dir, files, extra={BUILD_KEY: (key + "\n").encode()})
+    return BuildSummary(out_dir, len(files), len(all_fits), len(metrics), cache_hits=cache.hits,
+                        cache_misses=cache.misses)
 
 
 def nominal_load_n(manifest: Manifest) -> float:
@@ -241,68 +261,131 @@ def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
 
 
 def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float,
-                  p0_kpa: float | None = None) -> list[SpecimenModel]:
-    """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen, from its forward runs."""
+                  p0_kpa: float | None = None, cache: Cache | None = None, workers: int = 1) -> list[SpecimenModel]:
+    """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen, from its forward runs.
+
+    Each specimen is one job keyed by its own data and settings: a change to one run refits only
+    that run's specimen. Jobs missing from the cache run in `workers` processes.
+    """
     p0 = p0_kpa if p0_kpa is not None else nominal_pressure_kpa(manifest)
-    settings = manifest.fit
-    models = []
+    cache = cache or Cache(None)
+    jobs = []
     for s in manifest.specimens:
-        own = [p for p in points if p.specimen == s.id and p.rolling_direction == "forward"]
-        lateral = [p for p in own if p.sweep == "slip_angle" and p.curve.fy_n is not None]
-        longitudinal = [p for p in own if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
-        fy = mz = fx = None
-        r0 = None
-        if lateral:
-            fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
-            with_mz = [p for p in lateral if p.curve.mz_nm is not None]
-            if with_mz:
-                r0 = unloaded_radius_m(manifest, s.id)
-                mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
-        if longitudinal:
-            fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
-        if fy or fx:
-            models.append(SpecimenModel(s.id, fy, mz, fx))
-    return models
+        own = tuple(p for p in points if p.specimen == s.id and p.rolling_direction == "forward")
+        has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in own)
+        r0 = unloaded_radius_m(manifest, s.id) if has_mz else None
+        jobs.append((s.id, own, manifest.fit, fz0_n, p0, r0))
+    keys = [digest("specimen-fit", *job) for job in jobs]
+    results: dict[str, SpecimenModel | None] = {}
+    todo = []
+    for key, job in zip(keys, jobs):
+        found = cache.get_or_compute(key, lambda: _MISSING) if cache.folder else _MISSING
+        if found is _MISSING:
+            todo.append((key, job))
+        else:
+            results[key] = found
+    for key, model in zip([k for k, _ in todo], _parallel(_fit_one_specimen, [j for _, j in todo], workers)):
+        results[key] = model
+        if cache.folder:
+            cache._store(key, model)
+    return [results[k] for k in keys if results[k] is not None]
+
+
+_MISSING = "__missing__"
+
+
+def _fit_one_specimen(job) -> SpecimenModel | None:
+    sid, own, settings, fz0_n, p0, r0 = job
+    lateral = [p for p in own if p.sweep == "slip_angle" and p.curve.fy_n is not None]
+    longitudinal = [p for p in own if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
+    fy = mz = fx = None
+    if lateral:
+        fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
+        with_mz = [p for p in lateral if p.curve.mz_nm is not None]
+        if with_mz:
+            mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
+    if longitudinal:
+        fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
+    return SpecimenModel(sid, fy, mz, fx) if (fy or fx) else None
+
+
+def _parallel(fn, items: list, workers: int) -> list:
+    """Map `fn` over `items`, in processes when there is more than one item and worker; order kept."""
+    if workers <= 1 or len(items) <= 1:
+        return [fn(x) for x in items]
+    from concurrent.futures import ProcessPoolExecutor
+    import multiprocessing
+
+    with ProcessPoolExecutor(max_workers=min(workers, len(items)),
+                             mp_context=multiprocessing.get_context("spawn")) as pool:
+        return list(pool.map(fn, items))
 
 
 def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:
     return leave_one_load_out(fit, points, settings) if settings.leave_one_load_out else fit
 
 
-def specimen_figures_of(model: SpecimenModel, points: list[OperatingPoint], style) -> list:
-    figs = []
-    for fit in model.channels:
-        own = _points_of(fit, points)
-        figs.append(channel_figure(fit, own, style))
-        other = [p for p in own if p.camber_deg != 0.0 or round(p.pressure_kpa) != round(fit.p0_kpa)]
-        if other:
-            figs.append(conditions_figure(fit, other, style))
-        figs.append(residual_figure(fit, style))
-    return figs
-
-
-def comparison_figures_of(models, points, standings, fitments, manifest, fz0_n, p0_kpa, style) -> dict:
-    """Figures of the comparison and vehicle pages, keyed by where they go."""
-    out = {"comparison": [], "vehicle": []}
-    if len(models) > 0:
-        out["comparison"].append(overlay_figure(models, points, "fy", fz0_n, p0_kpa, style))
+def figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa, style):
+    """Every figure of the dossier as (place, function name, arguments): independent jobs."""
+    tasks = []
+    for m in models:
+        for fit in m.channels:
+            own = _points_of(fit, points)
+            tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
+            other = [p for p in own if p.camber_deg != 0.0 or round(p.pressure_kpa) != round(fit.p0_kpa)]
+            if other:
+                tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
+            tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
+    for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail"):
+        if any(m.metric == name for m in metrics):
+            tasks.append((("summary",), "load_trend_figure",
+                          (name, METRICS[name].label, METRICS[name].unit, [m for m in metrics if m.metric == name], style)))
+    for c in conditioned:
+        tasks.append((("quality", c.account.run_index), "time_history_figure", (c, style)))
+        lateral = [p for p in c.points if p.rising is not None and p.falling is not None]
+        if lateral:
+            nearest = min(lateral, key=lambda p: (abs(p.load_n - fz0_n), p.camber_deg != 0.0))
+            tasks.append((("quality", c.account.run_index), "hysteresis_figure", (nearest, style)))
+    if drift:
+        tasks.append((("drift",), "drift_figure", (drift, style)))
+    if models:
+        tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "fy", fz0_n, p0_kpa, style)))
         if any(m.mz for m in models):
-            out["comparison"].append(overlay_figure(models, points, "mz", fz0_n, p0_kpa, style))
-            out["comparison"].append(gough_figure(models, fz0_n, style))
+            tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "mz", fz0_n, p0_kpa, style)))
+            tasks.append((("comparison", "comparison"), "gough_figure", (models, fz0_n, style)))
     if standings:
-        out["comparison"].append(difference_figure(standings, style))
+        tasks.append((("comparison", "comparison"), "difference_figure", (standings, style)))
     if fitments and manifest.vehicle:
-        out["vehicle"].append(yaw_gain_figure(fitments, manifest.vehicle, style))
-    return out
+        tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (fitments, manifest.vehicle, style)))
+    return tasks
 
 
-def _quality_figures(c: ConditionedRun, fz0_n: float, style):
-    figs = [time_history_figure(c, style)]
-    lateral = [p for p in c.points if p.rising is not None and p.falling is not None]
-    if lateral:
-        nearest = min(lateral, key=lambda p: (abs(p.load_n - fz0_n), p.camber_deg != 0.0))
-        figs.append(hysteresis_figure(nearest, style))
-    return figs
+def _render_task(task):
+    from . import figures
+
+    _, name, args = task
+    return getattr(figures, name)(*args)
+
+
+def run_figure_tasks(tasks, workers: int) -> list:
+    """Render every figure; in `workers` processes (the SVG bytes do not depend on it)."""
+    return _parallel(_render_task, tasks, workers)
+
+
+def place_figures(tasks, rendered):
+    specimen, summary, quality, drift, comparison = {}, [], {}, [], {"comparison": [], "vehicle": []}
+    for (place, _, _), fig in zip(tasks, rendered):
+        if place[0] == "specimen":
+            specimen.setdefault(place[1], []).append(fig)
+        elif place[0] == "summary":
+            summary.append(fig)
+        elif place[0] == "quality":
+            quality.setdefault(place[1], []).append(fig)
+        elif place[0] == "drift":
+            drift.append(fig)
+        else:
+            comparison[place[1]].append(fig)
+    return specimen, summary, quality, drift, comparison
 
 
 def _points_of(fit: ChannelFit, points: list[OperatingPoint]) -> list[OperatingPoint]:

@@ -29,13 +29,27 @@ def cli() -> None:
 @click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
               help="Output folder (default: PROJECT/dossier-out). Replaced only if made by dossier.")
 @click.option("--theme", default="default", show_default=True, help="Theme name.")
-def build(project: Path, out_dir: Path | None, theme: str) -> None:
+@click.option("--no-cache", is_flag=True, help="Recompute every stage (ignore PROJECT/.dossier-cache).")
+@click.option("--workers", type=click.IntRange(1, 64), default=None,
+              help="Processes for fits and figures (default: one per CPU); the output does not depend on it.")
+def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, workers: int | None) -> None:
     """Build the dossier of PROJECT (a folder with dossier.toml)."""
+    if not no_cache:
+        from .freshness import up_to_date
+
+        current = up_to_date(project, out_dir, theme)
+        if current is not None:
+            click.echo(f"{current}: up to date (inputs, theme and software unchanged; output verified)")
+            return
     from .build import build as run_build
 
-    summary = run_build(project, out_dir, theme)
+    summary = run_build(project, out_dir, theme, use_cache=not no_cache, workers=workers)
+    if summary.reused:
+        click.echo(f"{summary.out_dir}: up to date (inputs, theme and software unchanged; output verified)")
+        return
     click.echo(f"dossier written to {summary.out_dir}: {summary.n_fits} fitted channel(s), {summary.n_metrics} metric "
-               f"values, {summary.n_files} files (site/index.html, dossier.pdf, results.json)")
+               f"values, {summary.n_files} files (site/index.html, dossier.pdf, results.json); "
+               f"cache: {summary.cache_hits} reused, {summary.cache_misses} computed")
 
 
 @cli.command()

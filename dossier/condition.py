@@ -209,7 +209,6 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
     t, fz = ch["time"], ch["fz"]
     sweep = spec.sweep
     x = ch[sweep]
-    main_name = "fy" if sweep == "slip_angle" else "fx"
     incl = ch.get("inclination", np.zeros(n))
     bin_width = settings.slip_bin_deg if sweep == "slip_angle" else settings.slip_ratio_bin
     dropped = dict.fromkeys(REASONS, 0)

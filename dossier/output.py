@@ -19,8 +19,18 @@ MARKER = ".dossier-output"
 SEALED = "seal-ed25519.json"  # see dossier.integrity
 
 
-def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
-    """Write `files` (relative path -> bytes) as the folder `out_dir`, atomically."""
+def refuse_sealed(out_dir: Path) -> None:
+    """Refuse early to build into a folder that holds a sealed, released revision."""
+    if (Path(out_dir) / SEALED).is_file():
+        raise OutputError(f"{out_dir}: holds a sealed, released revision, which is frozen; build a new revision "
+                          "into another folder. Nothing was changed.")
+
+
+def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes] | None = None) -> None:
+    """Write `files` (relative path -> bytes) as the folder `out_dir`, atomically.
+
+    `extra` are hidden bookkeeping files beside the marker (not part of the dossier's payload).
+    """
     out_dir = Path(out_dir)
     if out_dir.exists():
         if not out_dir.is_dir():
@@ -28,9 +38,7 @@ def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
         if any(out_dir.iterdir()) and not (out_dir / MARKER).is_file():
             raise OutputError(f"{out_dir}: folder exists, is not empty and was not made by dossier "
                               f"(no {MARKER} file); choose another --out. Nothing was changed.")
-        if (out_dir / SEALED).is_file():
-            raise OutputError(f"{out_dir}: holds a sealed, released revision, which is frozen; build a new revision "
-                              "into another folder. Nothing was changed.")
+        refuse_sealed(out_dir)
     parent = out_dir.parent
     parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))
@@ -40,6 +48,8 @@ def write_dossier(out_dir: Path, files: dict[str, bytes]) -> None:
             target.parent.mkdir(parents=True, exist_ok=True)
             target.write_bytes(data)
         (tmp / MARKER).write_text("Made by dossier. This folder is replaced by the next build.\n", encoding="utf-8")
+        for rel, data in (extra or {}).items():
+            (tmp / rel).write_bytes(data)
         _swap(tmp, out_dir)
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)

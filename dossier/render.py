@@ -14,7 +14,6 @@ import math
 import mimetypes
 from dataclasses import dataclass, field
 from pathlib import Path
-from urllib.parse import urljoin
 
 import datetime as dt
 import hashlib

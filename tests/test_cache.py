@@ -1,0 +1,66 @@
+"""The build cache: unchanged work is reused, changed work is never served stale."""
+
+import json
+import shutil
+
+import pytest
+
+from dossier.build import build
+from dossier.freshness import up_to_date
+from test_document import make_project
+
+
+def _results(out):
+    return json.loads((out / "results.json").read_text(encoding="utf-8"))
+
+
+def test_nothing_changed_reuses_the_output(tmp_path):
+    root = make_project(tmp_path / "p")
+    first = build(root, tmp_path / "o", workers=1)
+    assert not first.reused and first.cache_misses > 0
+    assert up_to_date(root, tmp_path / "o", "default") == tmp_path / "o"
+    again = build(root, tmp_path / "o", workers=1)
+    assert again.reused
+
+
+def test_a_changed_rig_file_is_refitted_never_served_stale(tmp_path):
+    root = make_project(tmp_path / "p")
+    build(root, tmp_path / "o", workers=1)
+    before = _results(tmp_path / "o")
+    # change the data (10 % stiffer tire) but keep the manifest: the cache must not reuse the fit
+    fresh = make_project(tmp_path / "fresh", scale=1.1)
+    shutil.copy(fresh / "rig/a.csv", root / "rig/a.csv")
+    summary = build(root, tmp_path / "o", workers=1)
+    after = _results(tmp_path / "o")
+    assert not summary.reused and summary.cache_misses >= 3  # fit, metrics, figures, PDF
+    cs = lambda r: next(m["value"] for m in r["metrics"] if m["metric"] == "cornering_stiffness" and m["load_n"] == 4000)  # noqa: E731
+    assert cs(after) == pytest.approx(1.1 * cs(before), rel=0.01)
+    # and it equals a build without any cache
+    build(root, tmp_path / "nocache", use_cache=False, workers=1)
+    assert _results(tmp_path / "nocache") == after
+
+
+def test_narrative_change_refits_nothing_and_shows_the_new_text(tmp_path):
+    root = make_project(tmp_path / "p")
+    build(root, tmp_path / "o", workers=1)
+    (root / "notes/summary.md").write_text("New words, {{ value('A', 'cornering_stiffness') }}.\n", encoding="utf-8")
+    summary = build(root, tmp_path / "o", workers=1)
+    assert summary.cache_hits >= 3 and summary.cache_misses == 1  # only the PDF is made again
+    assert "New words," in (tmp_path / "o/site/index.html").read_text(encoding="utf-8")
+
+
+def test_a_tampered_output_is_rebuilt_not_trusted(tmp_path):
+    root = make_project(tmp_path / "p")
+    build(root, tmp_path / "o", workers=1)
+    (tmp_path / "o/results.json").write_text("{}", encoding="utf-8")
+    summary = build(root, tmp_path / "o", workers=1)
+    assert not summary.reused and _results(tmp_path / "o")["metrics"]
+
+
+def test_output_does_not_depend_on_the_number_of_workers(tmp_path):
+    root = make_project(tmp_path / "p")
+    build(root, tmp_path / "one", use_cache=False, workers=1)
+    build(root, tmp_path / "two", use_cache=False, workers=2)
+    for p in sorted((tmp_path / "one").rglob("*")):
+        if p.is_file():
+            assert p.read_bytes() == (tmp_path / "two" / p.relative_to(tmp_path / "one")).read_bytes(), p
