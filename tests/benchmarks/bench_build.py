@@ -1,0 +1,123 @@
+"""Benchmark: ingest, build, rebuild and memory, with plain alternatives measured in the same run.
+
+Run: python tests/benchmarks/bench_build.py [--large]
+Prints: rows per second of `read_run` on a generated 1 million-row, 12-channel rig file next to
+`numpy.loadtxt` on the same file; conditioning time of that run; the demo's cold build (no
+cache), warm rebuild (nothing changed) and narrative-only rebuild, each in a fresh process with
+its peak memory. `--large` also builds a generated project of 8 specimens × 1 million rows.
+Not a test: nothing is asserted.
+"""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT / "tests"))
+import projects as P  # noqa: E402
+from dossier.condition import condition_run  # noqa: E402
+from dossier.ingest import read_run  # noqa: E402
+from dossier.manifest import load_manifest  # noqa: E402
+
+N_ROWS = 1_000_000
+CHANNELS = ["TIME", "SLIP_ANGLE", "FZ", "FY", "MZ", "FX", "MX", "MY", "INCL", "SR", "P", "V"]
+
+
+def big_project(root: Path, n_specimens: int = 1) -> Path:
+    rng = np.random.default_rng(0)
+    t = np.arange(N_ROWS) / 100.0
+    loads = np.repeat([2000.0, 4000.0, 6000.0, 8000.0], N_ROWS // 4)
+    phase = (t % 24.0) / 24.0
+    slip = 12.0 * np.where(phase < 0.25, 4 * phase, np.where(phase < 0.75, 2 - 4 * phase, 4 * phase - 4))
+    for k in range(n_specimens):
+        fz = loads * (1 + 0.004 * rng.standard_normal(N_ROWS))
+        fy = -fz * np.tanh(slip / 5.0) * (1 + 0.02 * k) + 15 * rng.standard_normal(N_ROWS)
+        cols = [t, -slip, -fz, -fy, 0.03 * fz * np.tanh(slip / 3.0), rng.standard_normal(N_ROWS),
+                rng.standard_normal(N_ROWS), rng.standard_normal(N_ROWS), 0.01 * rng.standard_normal(N_ROWS),
+                0.001 * rng.standard_normal(N_ROWS), 240 + 0.1 * rng.standard_normal(N_ROWS),
+                30 + 0.01 * rng.standard_normal(N_ROWS)]
+        (root / "rig").mkdir(parents=True, exist_ok=True)
+        path = root / f"rig/s{k}.csv"
+        with open(path, "w", encoding="utf-8") as fh:
+            fh.write(",".join(CHANNELS) + "\n")
+            np.savetxt(fh, np.column_stack(cols), delimiter=",", fmt="%.6g")
+    specimens = "".join(P.specimen_block(f"S{k}", "baseline" if k == 0 else "candidate") for k in range(n_specimens))
+    runs = "".join(P.run_block(f"S{k}", f"rig/s{k}.csv", [2000, 4000, 6000, 8000]) for k in range(n_specimens))
+    (root / "dossier.toml").write_text(P.MANIFEST_HEAD + specimens + runs + "\n[fit]\nnominal_load_n = 4000\n",
+                                       encoding="utf-8")
+    return root
+
+
+def in_fresh_process(code: str) -> tuple[float, float, str]:
+    """Run `code` in a new Python; return (wall seconds, peak RSS in MB, its output)."""
+    wrapper = textwrap.dedent(f"""
+        import time, sys
+        t0 = time.perf_counter()
+        {textwrap.indent(textwrap.dedent(code), '        ').strip()}
+        dt = time.perf_counter() - t0
+        hwm = [l for l in open("/proc/self/status") if l.startswith("VmHWM")][0].split()[1]
+        print("__T", dt, int(hwm) / 1024.0)
+    """)
+    out = subprocess.run([sys.executable, "-c", wrapper], capture_output=True, text=True, cwd=ROOT)
+    if out.returncode != 0:
+        raise RuntimeError(out.stderr)
+    line = [x for x in out.stdout.splitlines() if x.startswith("__T")][-1].split()
+    return float(line[1]), float(line[2]), out.stdout
+
+
+def main() -> None:
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp = Path(tmp)
+        proj = big_project(tmp / "big")
+        m = load_manifest(proj)
+        t0 = time.perf_counter()
+        run = read_run(proj, m.runs[0])
+        t_ingest = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        condition_run(run, m.conditioning)
+        t_cond = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        np.loadtxt(proj / "rig/s0.csv", delimiter=",", skiprows=1)
+        t_np = time.perf_counter() - t0
+        import pandas
+
+        t0 = time.perf_counter()
+        pandas.read_csv(proj / "rig/s0.csv")
+        t_pd = time.perf_counter() - t0
+        print(f"ingest 1M rows × 12 channels: {N_ROWS / t_ingest:,.0f} rows/s ({t_ingest:.2f} s); "
+              f"numpy.loadtxt on the same file {N_ROWS / t_np:,.0f} rows/s ({t_np:.2f} s, ratio {t_np / t_ingest:.2f}); "
+              f"pandas.read_csv of every column {N_ROWS / t_pd:,.0f} rows/s ({t_pd:.2f} s, ratio {t_pd / t_ingest:.2f})")
+        print(f"conditioning that run: {t_cond:.2f} s; ingest + conditioning {t_ingest + t_cond:.2f} s")
+
+        demo = tmp / "demo"
+        shutil.copytree(ROOT / "demo_project", demo, ignore=shutil.ignore_patterns(".dossier-cache", "dossier-out"))
+        build = f"from dossier.cli import main; main(['build', r'{demo}', '--out', r'{tmp / 'out'}'])"
+        cold, mem_cold, _ = in_fresh_process(
+            f"from dossier.cli import main; main(['build', r'{demo}', '--out', r'{tmp / 'out'}', '--no-cache'])")
+        # fill the cache once, then measure the warm and narrative-only rebuilds
+        in_fresh_process(build.replace(str(tmp / "out"), str(tmp / "out2")))
+        warm, mem_warm, _ = in_fresh_process(build.replace(str(tmp / "out"), str(tmp / "out2")))
+        notes = demo / "narrative/test_notes.md"
+        notes.write_text(notes.read_text(encoding="utf-8") + "\nOne more sentence.\n", encoding="utf-8")
+        narr, mem_narr, _ = in_fresh_process(build.replace(str(tmp / "out"), str(tmp / "out2")))
+        print(f"demo cold build (no cache): {cold:.1f} s, peak {mem_cold:.0f} MB")
+        print(f"demo rebuild, nothing changed: {warm:.2f} s, peak {mem_warm:.0f} MB")
+        print(f"demo rebuild, narrative changed: {narr:.1f} s, peak {mem_narr:.0f} MB")
+
+        if "--large" in sys.argv:
+            large = big_project(tmp / "large", n_specimens=8)
+            t, mem, _ = in_fresh_process(
+                f"from dossier.cli import main; main(['build', r'{large}', '--out', r'{tmp / 'lo'}', '--no-cache'])")
+            print(f"large project (8 specimens × 1M rows) cold build: {t:.1f} s, peak {mem:.0f} MB")
+
+
+if __name__ == "__main__":
+    main()
