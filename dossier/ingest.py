@@ -66,6 +66,8 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
 
     `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text.
     """
+    if not text.strip():
+        raise RigDataError(shown, f"the file is empty; expected a header on line {spec.header_line} and data rows")
     head = text.split("\n", spec.header_line)[: spec.header_line]
     if len(head) < spec.header_line or (len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1):
         raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(head)} line(s)")
@@ -192,6 +194,18 @@ def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: R
         bad = int(np.argmax(np.diff(t) < 0)) + 1
         raise RigDataError(shown, "time goes backwards; rows must be in recording order",
                            line=int(lines[bad]), column=spec.columns["time"].name)
+    if spec.sweep == "slip_angle" and "fy" in channels:
+        a, fy = channels["slip_angle"], channels["fy"]
+        near = np.abs(a) <= 4.0
+        if np.count_nonzero(near) >= 20 and np.ptp(a[near]) > 1.0:
+            slope = np.polyfit(a[near], fy[near], 1)[0]
+            typical = np.median(np.abs(channels["fz"])) * 0.02  # a tire gives at least ~0.02 Fz per degree
+            if slope > typical:
+                raise RigDataError(shown, f"lateral force rises with slip angle after converting from "
+                                   f"{spec.axis_convention} ({slope:+.0f} N/deg); in SAE J670 and ISO 8855 alike a "
+                                   "positive slip angle gives a negative lateral force. The Fy or slip-angle column "
+                                   "probably has the opposite sign (check the lab's convention and "
+                                   f"manifest {spec.location}.axis_convention)")
     span = float(np.ptp(channels["slip_angle"])) if "slip_angle" in channels else None
     if span is not None and span < 1.0 and spec.columns["slip_angle"].unit == "deg" and spec.sweep == "slip_angle":
         raise RigDataError(shown, f"slip angle spans only {span:.3f} deg; the column is probably in radians "

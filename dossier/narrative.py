@@ -40,8 +40,9 @@ class _Unknown(Exception):
 
 
 def render_markdown(text: str) -> str:
-    """Markdown → HTML with raw HTML off (CommonMark plus tables)."""
+    """Markdown → HTML with raw HTML off and images off (CommonMark plus tables)."""
     md = MarkdownIt("commonmark", {"html": False, "linkify": False, "typographer": False}).enable("table")
+    md.disable("image")  # figures come from the build, not from paths in the text (no files pulled in)
     return md.render(text)
 
 

@@ -41,7 +41,9 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
         refuse_sealed(out_dir)
     parent = out_dir.parent
     parent.mkdir(parents=True, exist_ok=True)
+    _remove_stale_builds(parent, out_dir.name)
     tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))
+    (tmp / MARKER).write_text("Made by dossier (a build in progress).\n", encoding="utf-8")
     try:
         for rel, data in sorted(files.items()):
             target = tmp / rel
@@ -54,6 +56,13 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+
+
+def _remove_stale_builds(parent: Path, name: str) -> None:
+    """Remove half-written build folders that a killed build left behind (ours: they carry the marker)."""
+    for stale in parent.glob(f".{name}.building-*"):
+        if stale.is_dir() and (stale / MARKER).is_file():
+            shutil.rmtree(stale, ignore_errors=True)
 
 
 def _swap(new: Path, target: Path) -> None:
