@@ -230,17 +230,7 @@ def mz0(alpha_rad, fz_n, q: dict[str, float], p_fy: dict[str, float], fz0_n: flo
     g = np.asarray(gamma_rad, float)
     dpi = np.asarray(dpi, float)
     fy, dfz, shy, svy, kya, by, cy = _fy0_parts(alpha, fz, c, fz0_n, g, dpi)
-    sht = cq["qHz1"] + cq["qHz2"] * dfz + (cq["qHz3"] + cq["qHz4"] * dfz) * g  # 4.E35
-    alpha_t = alpha + sht  # 4.E34
-    bt = ((cq["qBz1"] + cq["qBz2"] * dfz + cq["qBz3"] * dfz**2)  # 4.E40
-          * (1.0 + cq["qBz4"] * g + cq["qBz5"] * np.abs(g)))
-    ct = cq["qCz1"]  # 4.E41
-    dt = (fz * (cq["qDz1"] + cq["qDz2"] * dfz) * (1.0 + cq["ppz1"] * dpi)  # 4.E42, BSP2010
-          * (1.0 + cq["qDz3"] * g + cq["qDz4"] * g**2) * r0_m / fz0_n)
-    et = ((cq["qEz1"] + cq["qEz2"] * dfz + cq["qEz3"] * dfz**2)  # 4.E43
-          * (1.0 + (cq["qEz4"] + cq["qEz5"] * g) * (2.0 / np.pi) * np.arctan(bt * ct * alpha_t)))
-    et = np.minimum(et, 1.0)
-    t = cosine_form(alpha_t, bt, ct, dt, et) * np.cos(alpha)  # 4.E33
+    t = pneumatic_trail_m(alpha, fz, cq, fz0_n, r0_m, g, dpi)  # 4.E33
     alpha_r = alpha + shy + svy / _nonzero(kya)  # 4.E37
     br = cq["qBz9"] + cq["qBz10"] * by * cy  # 4.E45
     dr = fz * ((cq["qDz6"] + cq["qDz7"] * dfz) + (cq["qDz8"] + cq["qDz9"] * dfz) * g) * r0_m  # 4.E47
@@ -248,19 +238,22 @@ def mz0(alpha_rad, fz_n, q: dict[str, float], p_fy: dict[str, float], fz0_n: flo
     return -t * fy + mzr  # 4.E31
 
 
-def pneumatic_trail_m(alpha_rad, fz_n, q: dict[str, float], p_fy: dict[str, float], fz0_n: float, r0_m: float,
-                      gamma_rad=0.0, dpi=0.0):
-    """Return the trail t of eq. 4.E33 in m (the Mz0 model's pneumatic trail)."""
+def pneumatic_trail_m(alpha_rad, fz_n, q: dict[str, float], fz0_n: float, r0_m: float, gamma_rad=0.0, dpi=0.0):
+    """Return the pneumatic trail t of the Mz0 model in m (Pacejka 2006, eqs. 4.E33-4.E43).
+
+    t = Dt cos[Ct arctan{Bt αt − Et(Bt αt − arctan Bt αt)}] cos α, with αt = α + SHt (4.E34-35),
+    Bt (4.E40), Ct (4.E41), Dt (4.E42, with the pressure term of BSP2010) and Et ≤ 1 (4.E43).
+    """
     cq = {**defaults("mz"), **q}
     alpha = np.asarray(alpha_rad, float)
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
     dfz = (fz - fz0_n) / fz0_n
-    sht = cq["qHz1"] + cq["qHz2"] * dfz + (cq["qHz3"] + cq["qHz4"] * dfz) * g
-    alpha_t = alpha + sht
-    bt = (cq["qBz1"] + cq["qBz2"] * dfz + cq["qBz3"] * dfz**2) * (1.0 + cq["qBz4"] * g + cq["qBz5"] * np.abs(g))
+    sht = cq["qHz1"] + cq["qHz2"] * dfz + (cq["qHz3"] + cq["qHz4"] * dfz) * g  # 4.E35
+    alpha_t = alpha + sht  # 4.E34
+    bt = (cq["qBz1"] + cq["qBz2"] * dfz + cq["qBz3"] * dfz**2) * (1.0 + cq["qBz4"] * g + cq["qBz5"] * np.abs(g))  # 4.E40
     ct = cq["qCz1"]
-    dt = (fz * (cq["qDz1"] + cq["qDz2"] * dfz) * (1.0 + cq["ppz1"] * dpi)
+    dt = (fz * (cq["qDz1"] + cq["qDz2"] * dfz) * (1.0 + cq["ppz1"] * dpi)  # 4.E42, BSP2010
           * (1.0 + cq["qDz3"] * g + cq["qDz4"] * g**2) * r0_m / fz0_n)
     et = np.minimum((cq["qEz1"] + cq["qEz2"] * dfz + cq["qEz3"] * dfz**2)
                     * (1.0 + (cq["qEz4"] + cq["qEz5"] * g) * (2.0 / np.pi) * np.arctan(bt * ct * alpha_t)), 1.0)

@@ -13,6 +13,14 @@ from dossier.errors import StageError, UserError
 from dossier.narrative import NarrativeError, render_markdown
 
 LOADS = [2000, 4000, 6000]
+RELEASED = '''
+[signoff]
+status = "released"
+[[signoff.people]]
+name = "A. Approver"
+role = "approver"
+date = 2026-11-25
+'''
 
 
 def tire(scale=1.0):
@@ -127,14 +135,7 @@ def test_draft_mark_and_released_signoff(tmp_path):
     draft = make_project(tmp_path / "d")
     build(draft, tmp_path / "od")
     assert "DRAFT: not released" in (tmp_path / "od/site/index.html").read_text(encoding="utf-8")
-    released = make_project(tmp_path / "r", extra='''
-[signoff]
-status = "released"
-[[signoff.people]]
-name = "A. Approver"
-role = "approver"
-date = 2026-11-25
-''')
+    released = make_project(tmp_path / "r", extra=RELEASED)
     build(released, tmp_path / "or")
     html = (tmp_path / "or/site/index.html").read_text(encoding="utf-8")
     assert "not released" not in html and "Approved by A. Approver" in html and "2026-11-25" in html

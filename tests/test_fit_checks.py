@@ -147,7 +147,7 @@ def test_magic_formula_properties_of_the_channel_equations():
     kslope = (mf.fx0(h, fz, px, FZ0) - mf.fx0(-h, fz, px, FZ0)) / (2 * h)
     assert kslope == pytest.approx(fz * (20.0 + 1.0 * 0.25), rel=1e-6)
     q = {"qBz1": 9.0, "qCz1": 1.2, "qDz1": 0.1, "qEz1": -1.5}
-    t0 = mf.pneumatic_trail_m(0.0, fz, q, p, FZ0, 0.31)
+    t0 = mf.pneumatic_trail_m(0.0, fz, q, FZ0, 0.31)
     assert t0 == pytest.approx(fz * 0.1 * 0.31 / FZ0, rel=1e-12)
     dmz = (mf.mz0(h, fz, q, p, FZ0, 0.31) - mf.mz0(-h, fz, q, p, FZ0, 0.31)) / (2 * h)
     assert -dmz / slope == pytest.approx(t0, rel=1e-5)  # Mz0 = −t·Fy0 near zero slip

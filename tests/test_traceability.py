@@ -10,16 +10,7 @@ from dossier import archive
 from dossier.build import build
 from dossier.cli import main
 from dossier.errors import OutputError
-from test_document import make_project
-
-RELEASED = '''
-[signoff]
-status = "released"
-[[signoff.people]]
-name = "A. Approver"
-role = "approver"
-date = 2026-11-25
-'''
+from test_document import RELEASED, make_project
 
 
 @pytest.fixture(scope="module")
