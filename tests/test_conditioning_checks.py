@@ -1,6 +1,5 @@
 """Conditioning against synthetic runs whose lag, offsets, spikes, drift and coverage are known."""
 
-import datetime as dt
 
 import numpy as np
 import pytest
@@ -112,7 +111,7 @@ def test_control_tire_drift_is_estimated_and_corrected(tmp_path):
 
 def _move_tested_at(runs: str) -> str:
     """Put each 'tested_at = ...' line into its [[runs]] table (before its [runs.columns])."""
-    out, pending = [], None
+    out = []
     blocks = runs.split("\n[[runs]]\n")
     for block in blocks:
         if not block.strip():

@@ -1,7 +1,6 @@
 """The dossier as a document: reproducible bytes, PDF/A with attachments, narrative, themes, sign-off."""
 
 import re
-import shutil
 
 import numpy as np
 import pytest
