@@ -313,12 +313,18 @@ def _parallel(fn, items: list, workers: int) -> list:
     """Map `fn` over `items`, in processes when there is more than one item and worker; order kept."""
     if workers <= 1 or len(items) <= 1:
         return [fn(x) for x in items]
-    from concurrent.futures import ProcessPoolExecutor
     import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+    from concurrent.futures.process import BrokenProcessPool
 
-    with ProcessPoolExecutor(max_workers=min(workers, len(items)),
-                             mp_context=multiprocessing.get_context("spawn")) as pool:
-        return list(pool.map(fn, items))
+    try:
+        with ProcessPoolExecutor(max_workers=min(workers, len(items)),
+                                 mp_context=multiprocessing.get_context("spawn")) as pool:
+            return list(pool.map(fn, items))
+    except (BrokenProcessPool, OSError):
+        # Worker processes cannot start everywhere (e.g. a caller whose main module cannot be
+        # re-imported, such as a script read from standard input): do the same work here.
+        return [fn(x) for x in items]
 
 
 def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:

@@ -64,3 +64,16 @@ def test_output_does_not_depend_on_the_number_of_workers(tmp_path):
     for p in sorted((tmp_path / "one").rglob("*")):
         if p.is_file():
             assert p.read_bytes() == (tmp_path / "two" / p.relative_to(tmp_path / "one")).read_bytes(), p
+
+
+def test_parallel_build_from_a_script_on_standard_input(tmp_path):
+    # A main module that worker processes cannot re-import (a script read from stdin) must not
+    # break the build: the work falls back to this process.
+    import subprocess
+    import sys
+
+    root = make_project(tmp_path / "p")
+    script = f"from dossier.build import build\nbuild(r'{root}', r'{tmp_path / 'o'}', use_cache=False, workers=2)\n"
+    done = subprocess.run([sys.executable, "-"], input=script, text=True, capture_output=True)
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert (tmp_path / "o/dossier.pdf").is_file()
