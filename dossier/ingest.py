@@ -71,7 +71,10 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
     head = text.split("\n", spec.header_line)[: spec.header_line]
     if len(head) < spec.header_line or (len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1):
         raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(head)} line(s)")
-    header = [h.strip() for h in next(csv.reader([head[-1]], delimiter=spec.delimiter), [])]
+    try:
+        header = [h.strip() for h in next(csv.reader([head[-1].rstrip("\r")], delimiter=spec.delimiter), [])]
+    except csv.Error as exc:
+        raise RigDataError(shown, f"the header cannot be read as delimited text ({exc})", line=spec.header_line) from None
     index: dict[str, int] = {}
     for channel, col in spec.columns.items():
         matches = [i for i, h in enumerate(header) if h == col.name]
@@ -91,7 +94,10 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
         channels = _to_internal(fast[0], spec)
         _check_plausible(channels, fast[1], spec, shown)
         return channels, fast[1]
-    rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
+    try:
+        rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
+    except csv.Error as exc:
+        raise RigDataError(shown, f"cannot be read as delimited text ({exc}); is it a text export of the rig data?") from None
     values = {ch: [] for ch in index}
     lines: list[int] = []
     for row_i in range(first, len(rows)):

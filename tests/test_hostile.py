@@ -31,7 +31,7 @@ def _manifest(root, body, **kw):
 
 # --- the rig-file reader: any bytes load or fail with one clear message -------------------------
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(max_examples=150, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(body=st.one_of(
     st.binary(max_size=400),
     st.lists(st.lists(st.one_of(st.floats(allow_nan=True, allow_infinity=True).map(repr), st.text(max_size=6),

@@ -6,7 +6,7 @@ import bnp1987
 from dossier import magic_formula as mf
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=60, deadline=None, derandomize=True)
 @given(B=st.floats(0.02, 2.0), C=st.floats(1.05, 2.0), D=st.floats(100, 10000), E=st.floats(-3.0, 0.9))
 def test_sine_form_properties(B, C, D, E):
     # Pacejka 2006 §4.3.1: slope at the origin is BCD; for C > 1 the peak value is D.
