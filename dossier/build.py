@@ -18,7 +18,7 @@ from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .archive import INPUTS
-from .cache import CACHE_DIR, Cache, digest
+from .cache import CACHE_DIR, MISSING, Cache, digest
 from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
 from .ingest import read_project_files, read_run
 from .integrity import tag_files
@@ -279,19 +279,15 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     results: dict[str, SpecimenModel | None] = {}
     todo = []
     for key, job in zip(keys, jobs):
-        found = cache.get_or_compute(key, lambda: _MISSING) if cache.folder else _MISSING
-        if found is _MISSING:
+        found = cache.get(key)
+        if found is MISSING:
             todo.append((key, job))
         else:
             results[key] = found
     for key, model in zip([k for k, _ in todo], _parallel(_fit_one_specimen, [j for _, j in todo], workers)):
         results[key] = model
-        if cache.folder:
-            cache._store(key, model)
+        cache.put(key, model)
     return [results[k] for k in keys if results[k] is not None]
-
-
-_MISSING = "__missing__"
 
 
 def _fit_one_specimen(job) -> SpecimenModel | None:

@@ -25,6 +25,14 @@ import numpy as np
 CACHE_DIR = ".dossier-cache"
 
 
+class _Missing:
+    def __repr__(self) -> str:
+        return "MISSING"
+
+
+MISSING = _Missing()
+
+
 @lru_cache(maxsize=1)
 def code_version() -> str:
     """SHA-256 over the package's source files: any code change invalidates every entry."""
@@ -88,7 +96,8 @@ class Cache:
         self.hits = 0
         self.misses = 0
 
-    def get_or_compute(self, key: str, compute: Callable[[], Any]) -> Any:
+    def get(self, key: str) -> Any:
+        """Return the stored value, or MISSING (a damaged entry counts as missing, never trusted)."""
         if self.folder is not None:
             path = self.folder / key[:2] / f"{key}.pkl"
             if path.is_file():
@@ -96,13 +105,21 @@ class Cache:
                     value = pickle.loads(path.read_bytes())
                     self.hits += 1
                     return value
-                except Exception:  # noqa: BLE001 - a damaged entry is recomputed, never trusted
+                except Exception:  # noqa: BLE001
                     pass
         self.misses += 1
-        value = compute()
+        return MISSING
+
+    def get_or_compute(self, key: str, compute: Callable[[], Any]) -> Any:
+        value = self.get(key)
+        if value is MISSING:
+            value = compute()
+            self.put(key, value)
+        return value
+
+    def put(self, key: str, value: Any) -> None:
         if self.folder is not None:
             self._store(key, value)
-        return value
 
     def _store(self, key: str, value: Any) -> None:
         target = self.folder / key[:2] / f"{key}.pkl"
