@@ -20,7 +20,7 @@ DEMO = ROOT / "demo_project"
 @pytest.fixture(scope="module")
 def demo_out(tmp_path_factory):
     out = tmp_path_factory.mktemp("e2e") / "out"
-    build(DEMO, out)
+    build(DEMO, out, use_cache=False)  # leave no cache in the source tree
     return out
 
 
@@ -93,7 +93,7 @@ def test_rebuild_replaces_own_output_but_never_a_users_folder(demo_out, tmp_path
     users.mkdir()
     (users / "mine.txt").write_text("keep me", encoding="utf-8")
     with pytest.raises(OutputError, match="was not made by dossier"):
-        build(DEMO, users)
+        build(DEMO, users, use_cache=False)
     assert (users / "mine.txt").read_text(encoding="utf-8") == "keep me"
 
 
