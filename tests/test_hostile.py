@@ -6,6 +6,8 @@ import subprocess
 import sys
 import time
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
@@ -171,19 +173,26 @@ def test_an_absurdly_large_file_is_refused_before_reading(tmp_path, monkeypatch)
 
 
 def test_a_killed_build_leaves_the_previous_output_intact(tmp_path):
+    import shutil
+
     root = make_project(tmp_path / "p")
     out = tmp_path / "o"
     build(root, out, use_cache=False, workers=1)
     before = {p.relative_to(out): p.read_bytes() for p in out.rglob("*") if p.is_file()}
-    (root / "notes/summary.md").write_text("Changed.\n", encoding="utf-8")
-    code = f"from dossier.cli import main; main(['build', r'{root}', '--out', r'{out}', '--no-cache', '--workers', '1'])"
+    # A build long enough to be killed mid-way for sure: the demo project (tens of seconds).
+    demo = tmp_path / "demo"
+    shutil.copytree(Path(__file__).resolve().parents[1] / "demo_project", demo,
+                    ignore=shutil.ignore_patterns(".dossier-cache", "dossier-out"))
+    code = f"from dossier.cli import main; main(['build', r'{demo}', '--out', r'{out}', '--no-cache', '--workers', '1'])"
     proc = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    time.sleep(4.0)  # mid-way: past ingest, inside fitting or rendering
+    time.sleep(6.0)  # past ingest, inside fitting or rendering
+    assert proc.poll() is None, "the build finished before it could be killed"
     proc.send_signal(signal.SIGKILL)
     proc.wait()
     after = {p.relative_to(out): p.read_bytes() for p in out.rglob("*") if p.is_file()}
     assert after == before
-    # the next build clears what the killed one left and completes
+    # the next build clears anything the killed one left and completes
+    (root / "notes/summary.md").write_text("Changed.\n", encoding="utf-8")
     build(root, out, use_cache=False, workers=1)
     assert not list(tmp_path.glob(".o.building-*"))
     assert "Changed." in (out / "site/index.html").read_text(encoding="utf-8")
