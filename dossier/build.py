@@ -334,7 +334,7 @@ def figure_tasks(models, points, conditioned, metrics, drift, standings, fitment
         for fit in m.channels:
             own = _points_of(fit, points)
             tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
-            other = [p for p in own if p.camber_deg != 0.0 or round(p.pressure_kpa) != round(fit.p0_kpa)]
+            other = [p for p in own if not p.at_nominal(fit.p0_kpa)]
             if other:
                 tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
             tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
@@ -398,7 +398,7 @@ def _points_of(fit: ChannelFit, points: list[OperatingPoint]) -> list[OperatingP
 def _fitted_loads(fit: ChannelFit, points: list[OperatingPoint]) -> list[float]:
     """Loads measured at the nominal condition (zero camber, nominal pressure)."""
     return sorted({p.load_n for p in _points_of(fit, points)
-                   if p.camber_deg == 0.0 and round(p.pressure_kpa) == round(fit.p0_kpa)})
+                   if p.at_nominal(fit.p0_kpa)})
 
 
 def _dropped_text(dropped: dict[str, int]) -> str:

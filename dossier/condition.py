@@ -151,6 +151,10 @@ class OperatingPoint:
     def key(self) -> tuple[int, float, float, float]:
         return (self.run_index, self.load_n, self.camber_deg, self.pressure_kpa)
 
+    def at_nominal(self, p0_kpa: float) -> bool:
+        """True at the nominal condition the metrics are made at: zero camber, pressure p0 (to 1 kPa)."""
+        return self.camber_deg == 0.0 and round(self.pressure_kpa) == round(p0_kpa)
+
     @property
     def raw_slip_angle_deg(self) -> np.ndarray:
         return self.raw_x
@@ -518,12 +522,6 @@ def _bin_curve(sweep, x, data, width, min_count) -> tuple[SlipCurve, int]:
                       mean(data["fx"]) if "fx" in data else None,
                       _frozen(counts[ok]), uniq[ok])
     return curve, sparse
-
-
-def _at_zero(x, y) -> float | None:
-    if y is None or x.size < 2 or not (x.min() < 0 < x.max()):
-        return None
-    return float(np.interp(0.0, x, y))
 
 
 def _line_near_zero(c: SlipCurve, y: np.ndarray | None) -> tuple[float, float] | None:

@@ -65,7 +65,7 @@ def _measured(p: OperatingPoint, channel: str):
 
 def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path | None) -> FigureArtifact:
     """Measured and fitted curves at the nominal condition (zero camber, nominal pressure), per load."""
-    nominal = sorted((p for p in points if p.camber_deg == 0.0 and round(p.pressure_kpa) == round(fit.p0_kpa)),
+    nominal = sorted((p for p in points if p.at_nominal(fit.p0_kpa)),
                      key=lambda q: (q.load_n, q.run_index))
     shown = nominal or sorted(points, key=lambda q: q.load_n)
     xlabel, ylabel = _AXIS[fit.channel]
@@ -87,10 +87,7 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path | 
         for load in loads:
             c = colors[loads.index(load) % len(colors)]
             ax.plot(grid, fit.predict(grid, load), "-", lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
-        ax.axhline(0, lw=0.5, color="0.5")
-        ax.axvline(0, lw=0.5, color="0.5")
-        ax.set_xlabel(xlabel)
-        ax.set_ylabel(ylabel)
+        _origin_axes(ax, xlabel, ylabel)
         ax.legend(title="Nominal load", fontsize="small", title_fontsize="small")
         ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}, {fit.p0_kpa:.0f} kPa, camber 0°")
 
@@ -121,10 +118,7 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: Path
             ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c, rasterized=True)
             ax.plot(grid, fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa), "-", lw=1.2, color=c,
                     label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa")
-        ax.axhline(0, lw=0.5, color="0.5")
-        ax.axvline(0, lw=0.5, color="0.5")
-        ax.set_xlabel(xlabel)
-        ax.set_ylabel(ylabel)
+        _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="x-small")
         ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]} at other cambers and pressures")
 
@@ -306,13 +300,10 @@ def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, s
             grid = np.linspace(*fit.slip_range, 241)
             ax.plot(grid, fit.predict(grid, load_n), "-", lw=1.5, color=c, label=m.specimen)
             for p in points:
-                if (p.specimen == m.specimen and p.load_n == load_n and p.camber_deg == 0.0 and p.sweep == "slip_angle"
-                        and p.rolling_direction == "forward" and round(p.pressure_kpa) == round(p0_kpa)):
+                if (p.specimen == m.specimen and p.load_n == load_n and p.sweep == "slip_angle"
+                        and p.rolling_direction == "forward" and p.at_nominal(p0_kpa)):
                     ax.plot(p.curve.x, _measured(p, channel), "o", ms=2.5, mfc="none", color=c, rasterized=True)
-        ax.axhline(0, lw=0.5, color="0.5")
-        ax.axvline(0, lw=0.5, color="0.5")
-        ax.set_xlabel(xlabel)
-        ax.set_ylabel(ylabel)
+        _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="small")
         ax.set_title(f"All specimens: {_WORD[channel]} at {load_n / 1000:.1f} kN, {p0_kpa:.0f} kPa, camber 0°")
 
@@ -421,6 +412,14 @@ def yaw_gain_figure(fitments, vehicle, style: Path | None) -> FigureArtifact:
         "neutral-steer vehicle of the same wheelbase.",
         "Chart of steady-state yaw-rate gain against speed for each specimen fitted all round.",
         _render(style, draw))
+
+
+def _origin_axes(ax, xlabel: str, ylabel: str) -> None:
+    """Thin zero lines through the origin and the axis labels (slip plots)."""
+    ax.axhline(0, lw=0.5, color="0.5")
+    ax.axvline(0, lw=0.5, color="0.5")
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
 
 
 def _slug(text: str) -> str:

@@ -336,6 +336,17 @@ del D
 
 # --- evaluation ----------------------------------------------------------------------------
 
+# Metrics whose value is a bound when the sweep does not pass the peak: channel and sides checked.
+_BOTH = (1.0, -1.0)
+PEAK_BOUND: dict[str, tuple[str, tuple[float, ...]]] = {
+    **{n: ("fy", _BOTH) for n in ("peak_lateral_friction", "peak_lateral_friction_positive_slip",
+                                  "peak_lateral_friction_negative_slip", "slip_angle_at_peak",
+                                  "slip_angle_at_peak_positive_slip", "slip_angle_at_peak_negative_slip",
+                                  "post_peak_retention")},
+    "peak_driving_friction": ("fx", (1.0,)), "slip_ratio_at_peak_driving": ("fx", (1.0,)),
+    "peak_braking_friction": ("fx", (-1.0,)), "slip_ratio_at_peak_braking": ("fx", (-1.0,)),
+}
+
 def metric_values(models: Models, load_n: float, points: list[OperatingPoint] = (),
                   crosscheck_threshold_pct: float = 5.0) -> list[MetricValue]:
     """Return every per-load metric the specimen's models support at `load_n`, with intervals.
@@ -358,8 +369,17 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
     base: Values = {c: models.get(c).values for c in ("fy", "mz", "fx") if models.get(c) is not None}
     ref = models.fy or models.fx
     out = []
-    nominal_pts = [p for p in points if p.load_n == load_n and p.camber_deg == 0.0 and p.sweep == "slip_angle"
-                   and p.rolling_direction == "forward" and ref is not None and round(p.pressure_kpa) == round(ref.p0_kpa)]
+    found: dict[tuple[str, float], bool] = {}
+
+    def reached(kind: str, sign: float) -> bool:
+        """Whether the model's peak lies inside the measured range on that side (computed once)."""
+        if (kind, sign) not in found:
+            side = _lateral_peak if kind == "fy" else _fx_peak
+            found[(kind, sign)] = side(models, load_n, base, sign)[2]
+        return found[(kind, sign)]
+
+    nominal_pts = [p for p in points if p.load_n == load_n and p.sweep == "slip_angle"
+                   and p.rolling_direction == "forward" and ref is not None and p.at_nominal(ref.p0_kpa)]
     for d in definitions:
         if any(models.get(c) is None for c in d.channels):
             continue
@@ -373,19 +393,12 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
         extrapolated = not (lo * 0.98 <= at <= hi * 1.02)
         sd = _delta_stderr(models, d, load_n, base)
         notes = []
-        if d.name in ("peak_lateral_friction", "slip_angle_at_peak", "post_peak_retention") or d.name.startswith(
-                ("peak_lateral_friction_", "slip_angle_at_peak_")):
-            reached = [_lateral_peak(models, load_n, base, s)[2] for s in (1.0, -1.0)]
-            if not all(reached):
+        if d.name in PEAK_BOUND:
+            kind, signs = PEAK_BOUND[d.name]
+            if not all(reached(kind, sgn) for sgn in signs):
                 notes.append("peak not reached inside the measured slip range: value is a bound")
-                if d.name.startswith("slip_angle") or d.name == "post_peak_retention":
-                    sd = None
-        if d.name.startswith(("peak_driving", "slip_ratio_at_peak_driving")) and not _fx_peak(models, load_n, base, 1.0)[2]:
-            notes.append("peak not reached inside the measured slip range: value is a bound")
-            sd = None if "slip_ratio" in d.name else sd
-        if d.name.startswith(("peak_braking", "slip_ratio_at_peak_braking")) and not _fx_peak(models, load_n, base, -1.0)[2]:
-            notes.append("peak not reached inside the measured slip range: value is a bound")
-            sd = None if "slip_ratio" in d.name else sd
+                if d.name.startswith(("slip_angle", "slip_ratio")) or d.name == "post_peak_retention":
+                    sd = None  # the location of a peak that was not reached has no interval
         if extrapolated:
             notes.append("outside the measured load range: extrapolated")
         t95 = max(f.t95 for f in fits)

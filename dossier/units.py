@@ -57,8 +57,3 @@ def factor_to_internal(quantity: str, unit: str) -> float:
     Raises KeyError for an unknown unit; the manifest validates units before this is called.
     """
     return UNITS[quantity][1][unit]
-
-
-def internal_unit(quantity: str) -> str:
-    """Return the internal unit of a quantity."""
-    return UNITS[quantity][0]
