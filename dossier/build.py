@@ -19,7 +19,7 @@ from .errors import StageError
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .archive import INPUTS
 from .cache import CACHE_DIR, MISSING, Cache, digest
-from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
+from .freshness import BUILD_KEY, build_key, output_is_current
 from .ingest import read_project_files, read_run
 from .integrity import tag_files
 from .provenance import provenance_bytes, provenance_record
@@ -28,15 +28,16 @@ from .acceptance import verdicts as judge_targets
 from .comparison import compare, recommend
 from .metrics import METRICS, Models, MetricValue, metric_values, single_metric, specimen_metrics
 from .vehicle import AxleFitment, balance
+from .workers import WorkerPool
 from .offsets import split_offsets
 from .output import json_bytes, refuse_sealed, write_dossier
 from .narrative import read_narrative_texts
-from .render import make_context, make_environment, render_pdf, render_site, with_narrative
+from .render import (ANNEXES, REPORT, PdfJob, make_context, make_environment, pdf_job, render_pdf,
+                     render_site, with_narrative)
 from .results import coefficient_files, results_record
 from .sidewall import parse_size
 from .theme import load_theme
 
-PDF_NAME = "dossier.pdf"
 RESULTS_NAME = "results.json"
 PROVENANCE_NAME = "provenance.json"
 
@@ -66,12 +67,26 @@ class BuildSummary:
     cache_misses: int = 0
 
 
-def check(project_dir: Path) -> tuple[Manifest, list[ConditionedRun]]:
-    """Validate the manifest and read and condition every rig file, without fitting or writing."""
+def check(project_dir: Path, cache: Cache | None = None,
+          project_files: dict[str, bytes] | None = None) -> tuple[Manifest, list[ConditionedRun]]:
+    """Validate the manifest and read and condition every rig file, without fitting or writing.
+
+    With a `cache` and the `project_files` as read, a run whose file bytes, run entry, conditioning
+    settings and rated load are unchanged is taken from the cache instead of read again.
+    """
     manifest = load_manifest(project_dir)
-    runs = [read_run(manifest.project_dir, spec) for spec in manifest.runs]
-    conditioned = [condition_run(run, manifest.conditioning, rated_load_n(manifest.specimen(run.spec.specimen)))
-                   for run in runs]
+    cache = cache or Cache(None)
+
+    def conditioned_run(spec) -> ConditionedRun:
+        rated = rated_load_n(manifest.specimen(spec.specimen))
+        raw = (project_files or {}).get(spec.file)
+        if raw is None:
+            return condition_run(read_run(manifest.project_dir, spec), manifest.conditioning, rated)
+        return cache.get_or_compute(
+            digest("conditioned", spec, manifest.conditioning, rated, raw),
+            lambda: condition_run(read_run(manifest.project_dir, spec), manifest.conditioning, rated))
+
+    conditioned = [conditioned_run(spec) for spec in manifest.runs]
     for c in conditioned:
         if c.account.verdict == UNUSABLE:
             a = c.account
@@ -87,7 +102,8 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
 
     With `use_cache`, results of unchanged stages come from ``PROJECT/.dossier-cache`` and a
     rebuild whose every input, theme file and code file is unchanged leaves the output as it is.
-    `workers` processes render figures and fit specimens in parallel (default: one per CPU);
+    `workers` processes fit specimens, render figures and render the PDF volumes in parallel
+    (default: one per CPU);
     the output does not depend on it.
     """
     manifest = load_manifest(project_dir)
@@ -99,9 +115,13 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     if use_cache and output_is_current(out_dir, key):
         return BuildSummary(out_dir, -1, -1, -1, reused=True)
     cache = Cache(manifest.project_dir / CACHE_DIR if use_cache else None)
-    workers = workers or os.cpu_count() or 1
+    with WorkerPool(workers or os.cpu_count() or 1) as pool:
+        pool.warm_up()
+        return _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool)
 
-    manifest, conditioned = check(project_dir)
+
+def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool) -> BuildSummary:
+    manifest, conditioned = check(project_dir, cache, project_files)
     measured = [p for c in conditioned for p in c.points]
     fz0_n = nominal_load_n(manifest)
     drift: DriftEstimate | None = None
@@ -112,10 +132,7 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
         points, drift = correct_points(measured, drift)
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
-    models = fit_specimens(points, manifest, fz0_n, p0_kpa, cache=cache, workers=workers)
-    metrics = cache.get_or_compute(
-        digest("metrics", models, points, manifest.metrics, manifest.targets),
-        lambda: specimen_metric_values(models, points, manifest))
+    models, metrics = fit_specimens(points, manifest, fz0_n, p0_kpa, cache=cache, pool=pool)
     judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
     standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
     fitments = fitment_matrix(manifest, models)
@@ -126,7 +143,7 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     style_bytes = style.read_bytes() if style else b""
     rendered = cache.get_or_compute(digest("figures", [(place, name, args[:-1]) for place, name, args in tasks],
                                            style_bytes),
-                                    lambda: run_figure_tasks(tasks, workers))
+                                    lambda: run_figure_tasks(tasks, pool))
     specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(tasks, rendered)
     ctx = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
                        quality_figures, drift, drift_figures, offset_splits,
@@ -141,13 +158,14 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
                   **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
     env = make_environment(theme, manifest.project_dir / "templates")
     site = render_site(ctx, env, theme, data_files)
-    pdf = cache.get_or_compute(digest("pdf", site, data_files, theme_files(theme), project_files),
-                               lambda: render_pdf(ctx, env, site, attachments=data_files))
+    annexes = render_volumes([pdf_job(ctx, env, v, site) for v in ANNEXES], cache, pool)
+    report = render_volumes([pdf_job(ctx, env, REPORT, site, {**data_files, **annexes})], cache, pool)
     archived = {f"{INPUTS}/{k}": v for k, v in project_files.items()}
 
     # Start writing files now that all data is gathered.
     files = {f"site/{k}": v for k, v in site.items()}
-    files[PDF_NAME] = pdf
+    files.update(report)
+    files.update(annexes)
     files.update(data_files)
     files.update(archived)
     files.update(tag_files(files, manifest.document.number, manifest.document.revision))
@@ -171,20 +189,17 @@ def rated_load_n(specimen) -> float | None:
     return None if size is None else size.rated_load_n
 
 
-def specimen_metric_values(models: list[SpecimenModel], points: list[OperatingPoint],
-                           manifest: Manifest) -> list[MetricValue]:
-    """Metrics at every load measured at the nominal condition, the nominal load and any asked-for load."""
+def specimen_metric_values(model: SpecimenModel, points: list[OperatingPoint], settings, extra_loads_n) -> list[MetricValue]:
+    """One specimen's metrics at every load measured at the nominal condition, the nominal load and
+    any asked-for load (`extra_loads_n`: the manifest's metric loads and target loads)."""
+    ms = Models(model.specimen, model.fy, model.mz, model.fx)
+    ref = model.fy or model.fx
+    loads = set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(extra_loads_n)
+    own = [p for p in points if p.specimen == model.specimen]
     out = []
-    for m in models:
-        ms = Models(m.specimen, m.fy, m.mz, m.fx)
-        ref = m.fy or m.fx
-        loads = (set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(manifest.metrics.loads_n)
-                 | {t.load_n for t in manifest.targets})
-        own = [p for p in points if p.specimen == m.specimen]
-        for load in sorted(loads):
-            out += metric_values(ms, load, own, manifest.metrics.crosscheck_threshold_pct)
-        out += specimen_metrics(ms)
-    return out
+    for load in sorted(loads):
+        out += metric_values(ms, load, own, settings.crosscheck_threshold_pct)
+    return out + specimen_metrics(ms)
 
 
 def conditioned_data_files(conditioned: list[ConditionedRun]) -> dict[str, bytes]:
@@ -260,40 +275,40 @@ def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
     return size.unloaded_radius_m
 
 
-def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float,
-                  p0_kpa: float | None = None, cache: Cache | None = None, workers: int = 1) -> list[SpecimenModel]:
-    """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen, from its forward runs.
+def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float, p0_kpa: float | None = None,
+                  cache: Cache | None = None, pool: WorkerPool | None = None
+                  ) -> tuple[list[SpecimenModel], list[MetricValue]]:
+    """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen from its forward runs,
+    and evaluate its metrics.
 
     Each specimen is one job keyed by its own data and settings: a change to one run refits only
-    that run's specimen. Jobs missing from the cache run in `workers` processes.
+    that run's specimen. Jobs missing from the cache run in the pool's workers.
     """
     p0 = p0_kpa if p0_kpa is not None else nominal_pressure_kpa(manifest)
     cache = cache or Cache(None)
+    extra_loads = tuple(sorted(set(manifest.metrics.loads_n) | {t.load_n for t in manifest.targets}))
     jobs = []
     for s in manifest.specimens:
-        own = tuple(p for p in points if p.specimen == s.id and p.rolling_direction == "forward")
+        own = tuple(p for p in points if p.specimen == s.id)
         has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in own)
         r0 = unloaded_radius_m(manifest, s.id) if has_mz else None
-        jobs.append((s.id, own, manifest.fit, fz0_n, p0, r0))
-    keys = [digest("specimen-fit", *job) for job in jobs]
-    results: dict[str, SpecimenModel | None] = {}
-    todo = []
-    for key, job in zip(keys, jobs):
-        found = cache.get(key)
-        if found is MISSING:
-            todo.append((key, job))
-        else:
-            results[key] = found
-    for key, model in zip([k for k, _ in todo], _parallel(_fit_one_specimen, [j for _, j in todo], workers)):
-        results[key] = model
-        cache.put(key, model)
-    return [results[k] for k in keys if results[k] is not None]
+        jobs.append((s.id, own, manifest.fit, fz0_n, p0, r0, manifest.metrics, extra_loads))
+    keys = [digest("specimen", *job) for job in jobs]
+    results = {key: cache.get(key) for key in keys}
+    todo = [(key, job) for key, job in zip(keys, jobs) if results[key] is MISSING]
+    done = (pool or WorkerPool(1)).map(_fit_one_specimen, [job for _, job in todo])
+    for (key, _), result in zip(todo, done):
+        results[key] = result
+        cache.put(key, result)
+    found = [results[k] for k in keys if results[k] is not None]
+    return [model for model, _ in found], [m for _, values in found for m in values]
 
 
-def _fit_one_specimen(job) -> SpecimenModel | None:
-    sid, own, settings, fz0_n, p0, r0 = job
-    lateral = [p for p in own if p.sweep == "slip_angle" and p.curve.fy_n is not None]
-    longitudinal = [p for p in own if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
+def _fit_one_specimen(job) -> tuple[SpecimenModel, list[MetricValue]] | None:
+    sid, own, settings, fz0_n, p0, r0, metric_settings, extra_loads = job
+    forward = [p for p in own if p.rolling_direction == "forward"]
+    lateral = [p for p in forward if p.sweep == "slip_angle" and p.curve.fy_n is not None]
+    longitudinal = [p for p in forward if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
     fy = mz = fx = None
     if lateral:
         fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
@@ -302,25 +317,21 @@ def _fit_one_specimen(job) -> SpecimenModel | None:
             mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
-    return SpecimenModel(sid, fy, mz, fx) if (fy or fx) else None
+    if not (fy or fx):
+        return None
+    model = SpecimenModel(sid, fy, mz, fx)
+    return model, specimen_metric_values(model, list(own), metric_settings, extra_loads)
 
 
-def _parallel(fn, items: list, workers: int) -> list:
-    """Map `fn` over `items`, in processes when there is more than one item and worker; order kept."""
-    if workers <= 1 or len(items) <= 1:
-        return [fn(x) for x in items]
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
-    from concurrent.futures.process import BrokenProcessPool
-
-    try:
-        with ProcessPoolExecutor(max_workers=min(workers, len(items)),
-                                 mp_context=multiprocessing.get_context("spawn")) as pool:
-            return list(pool.map(fn, items))
-    except (BrokenProcessPool, OSError):
-        # Worker processes cannot start everywhere (e.g. a caller whose main module cannot be
-        # re-imported, such as a script read from standard input): do the same work here.
-        return [fn(x) for x in items]
+def render_volumes(jobs: list[PdfJob], cache: Cache, pool: WorkerPool) -> dict[str, bytes]:
+    """Render PDF volumes (each cached under its own page, resources and attachments); file name -> bytes."""
+    keys = [digest("pdf", job) for job in jobs]
+    out = {job.volume.filename: cache.get(key) for job, key in zip(jobs, keys)}
+    todo = [(job, key) for job, key in zip(jobs, keys) if out[job.volume.filename] is MISSING]
+    for (job, key), pdf in zip(todo, pool.map(render_pdf, [job for job, _ in todo])):
+        cache.put(key, pdf)
+        out[job.volume.filename] = pdf
+    return out
 
 
 def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:
@@ -369,9 +380,9 @@ def _render_task(task):
     return getattr(figures, name)(*args)
 
 
-def run_figure_tasks(tasks, workers: int) -> list:
-    """Render every figure; in `workers` processes (the SVG bytes do not depend on it)."""
-    return _parallel(_render_task, tasks, workers)
+def run_figure_tasks(tasks, pool: WorkerPool) -> list:
+    """Render every figure in the pool's workers (the SVG bytes do not depend on their number)."""
+    return pool.map(_render_task, tasks)
 
 
 def place_figures(tasks, rendered):

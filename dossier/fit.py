@@ -20,7 +20,6 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import optimize, stats
 
 from . import magic_formula as mf
 from .condition import OperatingPoint
@@ -246,6 +245,8 @@ def fit_point(x: np.ndarray, y: np.ndarray, load_n: float, angle: bool = True) -
 
     `x` is the slip angle in deg (`angle`) or the slip ratio; the fitted B is per rad or per unit slip.
     """
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     xr = np.asarray(x) * (mf.DEG if angle else 1.0)
     y = np.asarray(y)
     half = 1.5 * mf.DEG if angle else 0.02
@@ -299,6 +300,8 @@ def fit_channel(points: list[OperatingPoint], channel: str, settings: FitSetting
 
 def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings, fz0_n, p0_kpa, r0_m, fy_values,
            start_values: dict | None = None, max_restarts: int = 3, prune: bool = True) -> ChannelFit:
+    from scipy import optimize, stats  # imported here: not needed when results come from the cache
+
     free = [s for s in setting_list if not s.held]
     names = tuple(s.name for s in free)
     fixed = {s.name: s.start for s in setting_list if s.held}
@@ -536,6 +539,8 @@ def _settings(channel, data: FitData, point_fits, fz0_n, r0_m, fy_values) -> lis
 
 
 def _stiffness_start(fz, K, fz0_n):
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     if fz.size < 2 or np.ptp(fz) == 0:
         return float(np.mean(K) / (fz0_n * np.sin(2 * np.arctan(np.mean(fz) / (2.0 * fz0_n))))), 2.0
 

@@ -18,7 +18,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy import optimize
 
 from . import estimates
 from .condition import OperatingPoint
@@ -109,6 +108,8 @@ def _slope(f, h):
 
 def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, bool]:
     """Return (|y|max, |x| at it, reached inside the range) of f on one side of zero, up to `edge`."""
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     grid = np.arange(0.0, edge + step / 2, step)
     y = np.abs(f(sign * grid))
     i = int(np.argmax(y))
@@ -119,19 +120,37 @@ def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, 
     return float(-res.fun), float(res.x), True
 
 
+_PEAK_MEMO: dict = {}
+
+
+def _memo_peak(channel: str, m: Models, load, v: Values, sign: float, step: float):
+    """One side's peak of a channel, remembered for the evaluation under way.
+
+    Several metrics read the same peak (friction, where it occurs, retention), and the interval
+    of each perturbs the same coefficients by the same steps: the search runs once per distinct
+    set of coefficient values. The memo holds the fit it was computed for (so that its id cannot be
+    reused) and is emptied at the start of every evaluation.
+    """
+    fit = m.get(channel)
+    key = (channel, id(fit), float(load), sign, tuple(v[channel].values()))
+    hit = _PEAK_MEMO.get(key)
+    if hit is None:
+        lo, hi = fit.slip_range
+        hit = (fit, _side_peak(lambda x: fit.predict(x, load, values=v[channel]), hi if sign > 0 else -lo, sign, step))
+        _PEAK_MEMO[key] = hit
+    return hit[1]
+
+
 def _lateral_peak(m, load, v, sign):
-    lo, hi = m.fy.slip_range
-    return _side_peak(lambda a: _fy(m, a, load, v), hi if sign > 0 else -lo, sign, GRID_DEG)
+    return _memo_peak("fy", m, load, v, sign, GRID_DEG)
 
 
 def _mz_peak(m, load, v, sign):
-    lo, hi = m.mz.slip_range
-    return _side_peak(lambda a: _mz(m, a, load, v), hi if sign > 0 else -lo, sign, GRID_DEG)
+    return _memo_peak("mz", m, load, v, sign, GRID_DEG)
 
 
 def _fx_peak(m, load, v, sign):
-    lo, hi = m.fx.slip_range
-    return _side_peak(lambda k: _fx(m, k, load, v), hi if sign > 0 else -lo, sign, GRID_RATIO)
+    return _memo_peak("fx", m, load, v, sign, GRID_RATIO)
 
 
 def cornering_stiffness(m, load, v):
@@ -139,6 +158,8 @@ def cornering_stiffness(m, load, v):
 
 
 def _linear_range_side(m, load, v, sign):
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     k = -cornering_stiffness(m, load, v)  # dFy/dα, N/deg (negative in ISO 8855)
     f0 = float(_fy(m, 0.0, load, v))
     lo, hi = m.fy.slip_range
@@ -183,6 +204,8 @@ def pneumatic_trail_mm(m, load, v):
 
 
 def _root_near_zero(f, half=3.0):
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     grid = np.linspace(-half, half, 121)
     y = np.asarray(f(grid), dtype=float)
     s = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
@@ -224,6 +247,8 @@ def friction_load_sensitivity(m, load, v):
 
 
 def load_at_max_cornering_stiffness(m, load, v):
+    from scipy import optimize  # imported here: not needed when results come from the cache
+
     fz0 = m.fy.fz0_n
     res = optimize.minimize_scalar(lambda fz: -cornering_stiffness(m, fz, v), bounds=(0.2 * fz0, 4.0 * fz0),
                                    method="bounded", options={"xatol": 0.1})
@@ -366,6 +391,7 @@ def specimen_metrics(models: Models) -> list[MetricValue]:
 
 
 def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValue]:
+    _PEAK_MEMO.clear()
     base: Values = {c: models.get(c).values for c in ("fy", "mz", "fx") if models.get(c) is not None}
     ref = models.fy or models.fx
     out = []

@@ -12,6 +12,7 @@ from __future__ import annotations
 import io
 import math
 import mimetypes
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -20,7 +21,6 @@ import hashlib
 
 import jinja2
 from markupsafe import Markup
-import weasyprint
 from weasyprint.urls import URLFetcher, URLFetcherResponse
 
 from . import __version__, axes
@@ -28,7 +28,7 @@ from .cautions import CAUTIONS, CAUTIONS_ID
 from .condition import ConditionedRun, ConditioningAccount
 from .drift import DriftEstimate
 from .errors import StageError
-from .figures import FigureArtifact
+from .artifacts import FigureArtifact
 from .fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME, ChannelFit
 from .manifest import Manifest, RunSpec, Specimen
 from .metrics import METRICS, MetricDefinition, MetricValue
@@ -282,7 +282,7 @@ def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Env
     env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, fixed=_fmt_fixed,
                        metric_label=_metric_label)
     env.globals.update(options=theme.options, channel_label=CHANNEL_LABEL, channel_unit=CHANNEL_UNIT,
-                       model_name=MODEL_NAME)
+                       model_name=MODEL_NAME, volume=None, annexes=ANNEXES, volumes=VOLUMES)
     return env
 
 
@@ -318,26 +318,81 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
     return files
 
 
-def render_pdf(ctx: DossierContext, env: jinja2.Environment, site_files: dict[str, bytes],
-               attachments: dict[str, bytes] | None = None) -> bytes:
-    """Render the whole dossier as one PDF/A-3u from the print template, with the data attached.
+@dataclass(frozen=True)
+class Volume:
+    """One PDF of the dossier, rendered and cached on its own.
+
+    The report holds what a reviewer reads and signs (summary, narrative, comparison, vehicle,
+    sign-off) and attaches the annexes and the data; the annexes hold the evidence. A change to
+    the narrative therefore re-renders only the report.
+    """
+
+    key: str
+    filename: str
+    template: str
+    label: str
+    title: str
+    scope: str = ""
+    letter: str = ""
+
+
+REPORT = Volume("report", "dossier.pdf", "print.html", "Report", "Report")
+ANNEXES = (
+    Volume("annex-a", "annex-a-specimens.pdf", "print-specimens.html", "Annex A", "Specimens and fit reports",
+           "Identity from the sidewall, rig files, metrics by load and the fit report of every channel", "A"),
+    Volume("annex-b", "annex-b-rig-runs.pdf", "print-rig-runs.html", "Annex B", "Rig runs and conditioning",
+           "Every run's operating points, dropped data, hysteresis, offsets, drift and coverage", "B"),
+    Volume("annex-c", "annex-c-provenance.pdf", "print-provenance.html", "Annex C", "Method, definitions and provenance",
+           "How the numbers were made, what each metric means and the source lines behind every fit", "C"),
+)
+VOLUMES = (REPORT, *ANNEXES)
+
+
+@dataclass(frozen=True)
+class PdfJob:
+    """Everything WeasyPrint needs for one volume: plain data, so that it can run in another process."""
+
+    volume: Volume
+    html: bytes
+    resources: dict  # site path -> bytes: the stylesheets and figures the page refers to
+    attachments: dict  # file name -> bytes
+    identifier: str  # the document number
+    revision: str
+    date: dt.date
+
+
+def pdf_job(ctx: DossierContext, env: jinja2.Environment, volume: Volume, site_files: dict[str, bytes],
+            attachments: dict[str, bytes] | None = None) -> PdfJob:
+    """The print page of `volume` with the files it refers to (pure: no rendering yet)."""
+    attachments = dict(attachments or {})
+    html = _page(env, volume.template, ctx, current=volume.template, volume=volume,
+                 downloads=_downloads(attachments))
+    _require_cautions({volume.template: html}, print_pages=(volume.template,))
+    referenced = set(re.findall(rb'(?:src|href)="((?:figures|static)/[^"#?]+)"', html))
+    resources = {name: data for name, data in site_files.items() if name.encode() in referenced}
+    return PdfJob(volume, html, resources, attachments, ctx.document.number, ctx.document.revision, ctx.document.date)
+
+
+def render_pdf(job: PdfJob) -> bytes:
+    """Render one volume as a PDF/A-3u with its attachments.
 
     Attachments carry the document date as their creation and modification date, so that the
     same inputs give the same bytes.
     """
-    html = _page(env, "print.html", ctx, current="print.html", downloads=_downloads(attachments or {}))
-    _require_cautions({"print.html": html})
-    fetcher = _BuildFetcher(site_files)
-    document = weasyprint.HTML(string=html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
-    stamp = dt.datetime.combine(ctx.document.date, dt.time(12, 0), tzinfo=dt.timezone.utc)
+    import weasyprint
+
+    fetcher = _BuildFetcher(job.resources)
+    document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
+    stamp = dt.datetime.combine(job.date, dt.time(12, 0), tzinfo=dt.timezone.utc)
     files = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=name.replace("/", "_"),
-                                   description=f"{name} of {ctx.document.number} rev. {ctx.document.revision}",
+                                   description=f"{name} of {job.identifier} rev. {job.revision}",
                                    created=stamp, modified=stamp, relationship="Data")
-             for name, data in sorted((attachments or {}).items())]
-    pdf = document.write_pdf(pdf_identifier=ctx.document.number.encode("utf-8"), pdf_variant="pdf/a-3u",
-                             attachments=files, uncompressed_pdf=False)
+             for name, data in sorted(job.attachments.items())]
+    pdf = document.write_pdf(pdf_identifier=f"{job.identifier} {job.volume.key}".encode("utf-8"),
+                             pdf_variant="pdf/a-3u", attachments=files, uncompressed_pdf=False)
     if fetcher.refused:
-        raise StageError("the PDF asked for resources outside this build, refused: " + ", ".join(sorted(fetcher.refused)))
+        raise StageError(f"the PDF {job.volume.filename} asked for resources outside this build, refused: "
+                         + ", ".join(sorted(fetcher.refused)))
     return pdf
 
 
@@ -354,10 +409,10 @@ def _page(env, template: str, ctx: DossierContext, **extra) -> bytes:
         raise StageError(f"template {where}{f', line {line}' if line else ''}: {exc}") from None
 
 
-def _require_cautions(files: dict[str, bytes]) -> None:
+def _require_cautions(files: dict[str, bytes], print_pages: tuple[str, ...] = ()) -> None:
     marker = f'id="{CAUTIONS_ID}"'.encode()
     pages = [name for name in files if name.endswith(".html")]
-    missing = [name for name in pages if marker not in files[name] and name in ("index.html", "print.html")]
+    missing = [name for name in pages if marker not in files[name] and name in ("index.html", *print_pages)]
     if missing:
         raise StageError(f"the theme's {', '.join(missing)} lacks the safety cautions block (id '{CAUTIONS_ID}'); "
                          "every dossier must carry it")

@@ -43,10 +43,16 @@ def test_a_changed_rig_file_is_refitted_never_served_stale(tmp_path):
 def test_narrative_change_refits_nothing_and_shows_the_new_text(tmp_path):
     root = make_project(tmp_path / "p")
     build(root, tmp_path / "o", workers=1)
+    pdfs = lambda: {p.name: p.read_bytes() for p in (tmp_path / "o").glob("*.pdf")}  # noqa: E731
+    before = pdfs()
     (root / "notes/summary.md").write_text("New words, {{ value('A', 'cornering_stiffness') }}.\n", encoding="utf-8")
     summary = build(root, tmp_path / "o", workers=1)
-    assert summary.cache_hits >= 3 and summary.cache_misses == 1  # only the PDF is made again
+    assert summary.cache_hits >= 3 and summary.cache_misses == 1  # only the report's PDF is made again
     assert "New words," in (tmp_path / "o/site/index.html").read_text(encoding="utf-8")
+    after = pdfs()
+    assert after.keys() == before.keys() and len(after) == 4
+    assert after["dossier.pdf"] != before["dossier.pdf"]
+    assert all(after[name] == before[name] for name in after if name != "dossier.pdf")  # the annexes: untouched
 
 
 def test_a_tampered_output_is_rebuilt_not_trusted(tmp_path):

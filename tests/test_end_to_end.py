@@ -39,20 +39,33 @@ def test_site_pages_work_from_disk(demo_out):
         assert title in index
 
 
-def test_pdf_has_sections_cautions_and_page_numbers(demo_out):
-    reader = PdfReader(demo_out / "dossier.pdf")
-    assert 20 <= len(reader.pages) <= 130
-    text = "\n".join(page.extract_text() for page in reader.pages)
-    for heading in ("Contents", "Findings at the nominal load", "Specimen PRD-A", "Specimen CND-C",
-                    "Soundness of the rig data", "Drift seen on the control tire CTL-1", "Ply-steer and conicity",
-                    "How the numbers were made", "Metric definitions", "Safety cautions"):
-        assert heading in text
-    n = len(reader.pages)
-    assert f"Page 2 of {n}" in reader.pages[1].extract_text()
-    assert f"Page {n} of {n}" in reader.pages[-1].extract_text()
-    assert "NTW-EVD-2026-031" in text
-    titles = [o["/Title"] for o in reader.outline if isinstance(o, dict)]
-    assert "Safety cautions" in titles
+def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
+    expected = {
+        "dossier.pdf": ("Contents", "Executive summary", "Findings at the nominal load", "Candidates against the baseline",
+                        "What it means for the vehicle", "Testing in brief", "Sign-off and revisions", "Annex A"),
+        "annex-a-specimens.pdf": ("Specimen PRD-A", "Specimen CND-C", "Fit report: lateral force Fy0"),
+        "annex-b-rig-runs.pdf": ("Soundness of the rig data", "Drift seen on the control tire CTL-1",
+                                 "Ply-steer and conicity"),
+        "annex-c-provenance.pdf": ("How the numbers were made", "Metric definitions", "Where every number came from"),
+    }
+    report = PdfReader(demo_out / "dossier.pdf")
+    for name, headings in expected.items():
+        reader = PdfReader(demo_out / name)
+        text = "\n".join(page.extract_text() for page in reader.pages)
+        for heading in (*headings, "Safety cautions", "NTW-EVD-2026-031"):  # every volume carries the cautions
+            assert heading in text, (name, heading)
+        n = len(reader.pages)
+        assert f"Page 2 of {n}" in reader.pages[1].extract_text()
+        assert f"Page {n} of {n}" in reader.pages[-1].extract_text()
+        titles = [o["/Title"] for o in reader.outline if isinstance(o, dict)]
+        assert "Safety cautions" in titles
+        if name != "dossier.pdf":
+            # the report carries every annex, byte for byte as written beside it
+            assert report.attachments[name][0] == (demo_out / name).read_bytes()
+    # the test notes (narrative) are in the report only, so that a narrative edit re-renders the report only
+    assert "Test notes" in report.pages[0].extract_text() or any("Test notes" in p.extract_text() for p in report.pages)
+    annex_b = "\n".join(p.extract_text() for p in PdfReader(demo_out / "annex-b-rig-runs.pdf").pages)
+    assert "Test notes" not in annex_b
 
 
 def test_results_json_follows_its_schema(demo_out):

@@ -45,7 +45,7 @@ def test_published_tire_is_recovered_through_the_whole_pipeline(tmp_path, style)
     manifest, conditioned = check(_project(tmp_path, style))
     points = [p for c in conditioned for p in c.points]
     assert len(points) == 4
-    (model,) = fit_specimens(points, manifest, nominal_load_n(manifest))
+    (model,), _ = fit_specimens(points, manifest, nominal_load_n(manifest))
     fit = model.fy
     values = {m.metric: m for m in metric_values(Models("REF", fit, None, None), 4000.0)}
     B, C, D, E = bnp1987.coefficients(4.0)
