@@ -18,8 +18,8 @@ from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
 from .fit import ChannelFit, fit_channel, leave_one_load_out
 from .archive import INPUTS
-from .cache import CACHE_DIR, MISSING, Cache, digest
-from .freshness import BUILD_KEY, build_key, output_is_current
+from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
+from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
 from .ingest import read_project_files, read_run
 from .integrity import tag_files
 from .provenance import provenance_bytes, provenance_record
@@ -32,7 +32,7 @@ from .workers import WorkerPool
 from .offsets import split_offsets
 from .output import json_bytes, refuse_sealed, write_dossier
 from .narrative import read_narrative_texts
-from .render import (ANNEXES, REPORT, PdfJob, make_context, make_environment, pdf_job, render_pdf,
+from .render import (ANNEXES, REPORT, make_context, make_environment, pdf_job, render_pdf,
                      render_site, with_narrative)
 from .results import coefficient_files, results_record
 from .sidewall import parse_size
@@ -82,9 +82,10 @@ def check(project_dir: Path, cache: Cache | None = None,
         raw = (project_files or {}).get(spec.file)
         if raw is None:
             return condition_run(read_run(manifest.project_dir, spec), manifest.conditioning, rated)
-        return cache.get_or_compute(
-            digest("conditioned", spec, manifest.conditioning, rated, raw),
-            lambda: condition_run(read_run(manifest.project_dir, spec), manifest.conditioning, rated))
+        key = digest("conditioned", spec, manifest.conditioning, rated, raw)
+        run = cache.get_or_compute(key, lambda: condition_run(read_run(manifest.project_dir, spec),
+                                                             manifest.conditioning, rated))
+        return with_content_key(run, key)
 
     conditioned = [conditioned_run(spec) for spec in manifest.runs]
     for c in conditioned:
@@ -116,7 +117,8 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
         return BuildSummary(out_dir, -1, -1, -1, reused=True)
     cache = Cache(manifest.project_dir / CACHE_DIR if use_cache else None)
     with WorkerPool(workers or os.cpu_count() or 1) as pool:
-        pool.warm_up()
+        if cache.folder is None or not cache.folder.is_dir():
+            pool.warm_up()  # nothing cached: every stage has work for the workers
         return _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool)
 
 
@@ -149,17 +151,20 @@ def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, poo
                        quality_figures, drift, drift_figures, offset_splits,
                        judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
                        comparison_figures=comparison_figures)
-    ctx = with_narrative(ctx, read_narrative_texts(manifest))
+    facts = ctx  # the context without the narrative: what the annexes are rendered from
+    ctx = with_narrative(facts, read_narrative_texts(manifest))
     all_fits = [f for m in models for f in m.channels]
     results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
                              recommendation, fitments)
     provenance = provenance_bytes(provenance_record(manifest, manifest.sha256, conditioned, models, metrics))
     data_files = {RESULTS_NAME: json_bytes(results), PROVENANCE_NAME: provenance,
                   **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
-    env = make_environment(theme, manifest.project_dir / "templates")
+    env = make_environment(theme, manifest.project_dir / "templates",
+                           cache.folder / "templates" if cache.folder else None)
     site = render_site(ctx, env, theme, data_files)
-    annexes = render_volumes([pdf_job(ctx, env, v, site) for v in ANNEXES], cache, pool)
-    report = render_volumes([pdf_job(ctx, env, REPORT, site, {**data_files, **annexes})], cache, pool)
+    templates = {**theme_files(theme), **{k: v for k, v in project_files.items() if k.startswith("templates/")}}
+    annexes = render_volumes(ANNEXES, facts, env, site, templates, cache, pool)
+    report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool, {**data_files, **annexes})
     archived = {f"{INPUTS}/{k}": v for k, v in project_files.items()}
 
     # Start writing files now that all data is gathered.
@@ -296,10 +301,17 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     keys = [digest("specimen", *job) for job in jobs]
     results = {key: cache.get(key) for key in keys}
     todo = [(key, job) for key, job in zip(keys, jobs) if results[key] is MISSING]
-    done = (pool or WorkerPool(1)).map(_fit_one_specimen, [job for _, job in todo])
+    pool = pool or WorkerPool(1)
+    if todo:
+        pool.warm_up()  # new fits mean new figures and PDF volumes: the workers will be needed
+    done = pool.map(_fit_one_specimen, [job for _, job in todo])
     for (key, _), result in zip(todo, done):
         results[key] = result
         cache.put(key, result)
+    for key in keys:
+        if results[key] is not None:  # each fit is fully determined by its job's key
+            for fit in results[key][0].channels:
+                with_content_key(fit, f"{key}:{fit.channel}")
     found = [results[k] for k in keys if results[k] is not None]
     return [model for model, _ in found], [m for _, values in found for m in values]
 
@@ -323,13 +335,20 @@ def _fit_one_specimen(job) -> tuple[SpecimenModel, list[MetricValue]] | None:
     return model, specimen_metric_values(model, list(own), metric_settings, extra_loads)
 
 
-def render_volumes(jobs: list[PdfJob], cache: Cache, pool: WorkerPool) -> dict[str, bytes]:
-    """Render PDF volumes (each cached under its own page, resources and attachments); file name -> bytes."""
-    keys = [digest("pdf", job) for job in jobs]
-    out = {job.volume.filename: cache.get(key) for job, key in zip(jobs, keys)}
-    todo = [(job, key) for job, key in zip(jobs, keys) if out[job.volume.filename] is MISSING]
-    for (job, key), pdf in zip(todo, pool.map(render_pdf, [job for job, _ in todo])):
-        cache.put(key, pdf)
+def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[str, bytes], cache: Cache,
+                   pool: WorkerPool, attachments: dict[str, bytes] | None = None) -> dict[str, bytes]:
+    """Render PDF volumes from `ctx`; file name -> bytes.
+
+    Each volume is cached under everything it is made from: the volume, the context (whose
+    figures carry their bytes), the template and stylesheet files and the attachments. Only
+    volumes missing from the cache have their pages rendered, in the pool's workers.
+    """
+    made_from = digest("pdf", ctx, templates, attachments or {})
+    keys = {v.filename: digest("pdf", v, made_from) for v in volumes}
+    out = {name: cache.get(key) for name, key in keys.items()}
+    todo = [pdf_job(ctx, env, v, site, attachments) for v in volumes if out[v.filename] is MISSING]
+    for job, pdf in zip(todo, pool.map(render_pdf, todo)):
+        cache.put(keys[job.volume.filename], pdf)
         out[job.volume.filename] = pdf
     return out
 

@@ -44,14 +44,32 @@ def code_version() -> str:
 
 
 def digest(*parts: Any) -> str:
-    """A stable SHA-256 of nested values: dataclasses, arrays, dicts, sequences, scalars, bytes."""
+    """A stable SHA-256 of nested values: dataclasses, arrays, dicts, sequences, scalars, bytes.
+
+    A dataclass instance met several times (the same fit in three figure jobs) is hashed once.
+    """
     h = hashlib.sha256(code_version().encode())
+    memo: dict[int, bytes] = {}
     for part in parts:
-        _feed(h, part)
+        _feed(h, part, memo)
     return h.hexdigest()
 
 
-def _feed(h, x) -> None:
+CONTENT_KEY = "_dossier_content_key"
+
+
+def with_content_key(value: Any, key: str) -> Any:
+    """Remember on `value` the key it was computed (or cached) under.
+
+    The key digests everything the value was computed from, so digesting it stands for digesting
+    the value itself: later keys that include the value hash 64 characters instead of its arrays.
+    """
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        object.__setattr__(value, CONTENT_KEY, key)
+    return value
+
+
+def _feed(h, x, memo: dict[int, bytes]) -> None:
     if x is None or isinstance(x, (bool, int, float, str)):
         h.update(f"{type(x).__name__}:{x!r};".encode())
     elif isinstance(x, bytes):
@@ -60,23 +78,29 @@ def _feed(h, x) -> None:
         h.update(f"nd:{x.dtype}:{x.shape};".encode())
         h.update(np.ascontiguousarray(x).tobytes())
     elif isinstance(x, np.generic):
-        _feed(h, x.item())
+        _feed(h, x.item(), memo)
     elif dataclasses.is_dataclass(x) and not isinstance(x, type):
-        h.update(f"dc:{type(x).__qualname__}(".encode())
-        for f in dataclasses.fields(x):
-            h.update(f.name.encode())
-            _feed(h, getattr(x, f.name))
-        h.update(b")")
+        if id(x) not in memo:  # the object stays alive during the digest, so its id is its own
+            key = getattr(x, CONTENT_KEY, None)
+            if key is not None:
+                memo[id(x)] = f"key:{key};".encode()
+            else:
+                sub = hashlib.sha256(f"dc:{type(x).__qualname__}(".encode())
+                for f in dataclasses.fields(x):
+                    sub.update(f.name.encode())
+                    _feed(sub, getattr(x, f.name), memo)
+                memo[id(x)] = sub.digest()
+        h.update(memo[id(x)])
     elif isinstance(x, dict):
         h.update(b"{")
         for k in sorted(x, key=repr):
-            _feed(h, k)
-            _feed(h, x[k])
+            _feed(h, k, memo)
+            _feed(h, x[k], memo)
         h.update(b"}")
     elif isinstance(x, (list, tuple)):
         h.update(b"[")
         for v in x:
-            _feed(h, v)
+            _feed(h, v, memo)
         h.update(b"]")
     elif isinstance(x, (dt.date, dt.datetime)):
         h.update(f"date:{x.isoformat()};".encode())
@@ -84,6 +108,9 @@ def _feed(h, x) -> None:
         h.update(f"path:{x.as_posix()};".encode())
     elif isinstance(x, enum.Enum):
         h.update(f"enum:{x!r};".encode())
+    elif callable(x) and hasattr(x, "__qualname__"):
+        # functions held in data (a metric's computation): their code is in the code version
+        h.update(f"fn:{x.__module__}.{x.__qualname__};".encode())
     else:
         raise TypeError(f"cannot digest a {type(x).__name__}")
 

@@ -269,11 +269,22 @@ def _metric_label(name: str) -> str:
     return METRICS[name].label
 
 
-def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Environment:
+def make_environment(theme: Theme, project_templates: Path | None,
+                     compiled_dir: Path | None = None) -> jinja2.Environment:
+    """The template environment; with `compiled_dir`, compiled templates are kept there between
+    builds (Jinja2's bytecode cache, keyed by each template's source)."""
     search = ([str(project_templates)] if project_templates and project_templates.is_dir() else [])
     search += [str(f) for f in theme.folders]
+    compiled = None
+    if compiled_dir is not None:
+        try:
+            compiled_dir.mkdir(parents=True, exist_ok=True)
+            compiled = jinja2.FileSystemBytecodeCache(str(compiled_dir))
+        except OSError:
+            compiled = None  # a cache that cannot be written only costs time
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(search),
+        bytecode_cache=compiled,
         autoescape=True,  # every manifest string is escaped
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
@@ -282,7 +293,8 @@ def make_environment(theme: Theme, project_templates: Path | None) -> jinja2.Env
     env.filters.update(metric=_fmt_metric, ci=_fmt_ci, sig=_fmt_sig, kn=_fmt_kn, fixed=_fmt_fixed,
                        metric_label=_metric_label)
     env.globals.update(options=theme.options, channel_label=CHANNEL_LABEL, channel_unit=CHANNEL_UNIT,
-                       model_name=MODEL_NAME, volume=None, annexes=ANNEXES, volumes=VOLUMES)
+                       model_name=MODEL_NAME, volume=None, annexes=ANNEXES, volumes=VOLUMES,
+                       volume_by_key={v.key: v for v in VOLUMES})
     return env
 
 
@@ -322,9 +334,10 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
 class Volume:
     """One PDF of the dossier, rendered and cached on its own.
 
-    The report holds what a reviewer reads and signs (summary, narrative, comparison, vehicle,
-    sign-off) and attaches the annexes and the data; the annexes hold the evidence. A change to
-    the narrative therefore re-renders only the report.
+    The report is short: what a reviewer reads and signs (executive summary with the verdicts
+    and the recommendation, conclusions, test notes, sign-off, cautions). It attaches the annexes
+    and the data; the annexes hold the results in detail and the evidence. Only the report holds
+    the narrative, so a change to it re-renders the report alone.
     """
 
     key: str
@@ -338,12 +351,16 @@ class Volume:
 
 REPORT = Volume("report", "dossier.pdf", "print.html", "Report", "Report")
 ANNEXES = (
-    Volume("annex-a", "annex-a-specimens.pdf", "print-specimens.html", "Annex A", "Specimens and fit reports",
-           "Identity from the sidewall, rig files, metrics by load and the fit report of every channel", "A"),
-    Volume("annex-b", "annex-b-rig-runs.pdf", "print-rig-runs.html", "Annex B", "Rig runs and conditioning",
-           "Every run's operating points, dropped data, hysteresis, offsets, drift and coverage", "B"),
-    Volume("annex-c", "annex-c-provenance.pdf", "print-provenance.html", "Annex C", "Method, definitions and provenance",
-           "How the numbers were made, what each metric means and the source lines behind every fit", "C"),
+    Volume("results", "annex-a-results.pdf", "print-results.html", "Annex A", "Results in detail",
+           "Findings at the nominal load, every candidate against the baseline, and what the differences mean "
+           "for vehicle balance", "A"),
+    Volume("specimens", "annex-b-specimens.pdf", "print-specimens.html", "Annex B", "Specimens and fit reports",
+           "Identity from the sidewall, rig files, metrics by load and the fit report of every channel", "B"),
+    Volume("rig-runs", "annex-c-rig-runs.pdf", "print-rig-runs.html", "Annex C", "Rig runs and conditioning",
+           "The verdict of every run; its operating points, dropped data, hysteresis, offsets, drift and coverage", "C"),
+    Volume("provenance", "annex-d-provenance.pdf", "print-provenance.html", "Annex D",
+           "Method, definitions and provenance",
+           "How the numbers were made, what each metric means and the source lines behind every fit", "D"),
 )
 VOLUMES = (REPORT, *ANNEXES)
 

@@ -1,17 +1,20 @@
 """Worker processes shared by every parallel stage of one build (fits, figures, PDF volumes).
 
-On Linux (and wherever the platform offers it) workers are forked from a server process that has
-already imported the heavy libraries (SciPy, matplotlib, WeasyPrint), so a worker costs nothing
-to start; the server is started at the beginning of the build and imports them while the main
-process reads and conditions the rig data. Elsewhere workers are spawned. Where workers cannot
-start at all (e.g. a caller whose main module cannot be re-imported), the same work is done in
-the calling process. Results never depend on the number of workers: every job is a pure function
-of its arguments and results come back in order.
+`WorkerPool(n)` does the work of ``n`` processes: the calling process itself and ``n - 1``
+workers. The calling process starts on the first job at once, while the workers are still
+starting, and every process takes the next job as soon as it is free. On Linux (and wherever
+the platform offers it) workers are forked from a server process that has already imported the
+heavy libraries (SciPy, matplotlib, WeasyPrint); the server is started early in the build and
+imports them while the calling process works. Elsewhere workers are spawned. Where workers
+cannot start at all (e.g. a caller whose main module cannot be re-imported), the calling
+process does all the jobs. Results never depend on the number of workers: every job is a pure
+function of its arguments and results come back in order.
 """
 
 from __future__ import annotations
 
 import multiprocessing
+import threading
 from concurrent.futures import ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 from typing import Callable, Iterable
@@ -28,12 +31,14 @@ def _context():
 
 
 class WorkerPool:
-    """`workers` processes, started on first use and kept for the build; use as a context manager."""
+    """The calling process plus `workers - 1` processes, started on first use and kept for the
+    build; use as a context manager."""
 
     def __init__(self, workers: int):
         self.workers = max(1, int(workers))
         self._pool: ProcessPoolExecutor | None = None
         self._failed = False
+        self._lock = threading.Lock()
 
     def __enter__(self) -> "WorkerPool":
         return self
@@ -43,7 +48,7 @@ class WorkerPool:
 
     def warm_up(self) -> None:
         """Start the process that workers are forked from, so that its imports overlap our work."""
-        if self.workers > 1:
+        if self.workers > 1 and not self._failed:
             ctx = _context()
             if ctx.get_start_method() == "forkserver":
                 from multiprocessing import forkserver
@@ -53,21 +58,64 @@ class WorkerPool:
                 except OSError:
                     self._failed = True
 
+    def _executor(self) -> ProcessPoolExecutor:
+        with self._lock:
+            if self._pool is None:
+                self._pool = ProcessPoolExecutor(max_workers=self.workers - 1, mp_context=_context())
+            return self._pool
+
     def map(self, fn: Callable, items: Iterable) -> list:
-        """``[fn(x) for x in items]``, in the workers when there is more than one item and worker."""
+        """``[fn(x) for x in items]``, shared between this process and the workers."""
         items = list(items)
         if self.workers <= 1 or len(items) <= 1 or self._failed:
             return [fn(x) for x in items]
+        results: list = [None] * len(items)
+        errors: list[tuple[int, BaseException]] = []
+        returned: list[int] = []  # jobs a worker could not run (it could not start): done here
+        lock = threading.Lock()
+        order = iter(range(len(items)))
+
+        def take() -> int | None:
+            with lock:
+                return None if errors else next(order, None)
+
+        def relay() -> None:
+            """Hand jobs to one worker process, one at a time, until none are left."""
+            i = None
+            try:
+                pool = self._executor()
+                while (i := take()) is not None:
+                    results[i] = pool.submit(fn, items[i]).result()
+            except (BrokenProcessPool, OSError):
+                self._failed = True
+                if i is not None:
+                    with lock:
+                        returned.append(i)
+            except BaseException as exc:  # noqa: BLE001 - the job's own error, raised below
+                with lock:
+                    errors.append((i, exc))
+
+        relays = [threading.Thread(target=relay, daemon=True) for _ in range(self.workers - 1)]
+        for t in relays:
+            t.start()
         try:
-            if self._pool is None:
-                self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=_context())
-            return list(self._pool.map(fn, items))
-        except (BrokenProcessPool, OSError):
-            self._failed = True
+            while (i := take()) is not None:
+                results[i] = fn(items[i])
+        except BaseException as exc:  # noqa: BLE001
+            with lock:
+                errors.append((i, exc))
+        for t in relays:
+            t.join()
+        if errors:
+            raise min(errors, key=lambda e: e[0])[1]
+        for i in sorted(returned):
+            results[i] = fn(items[i])
+        if self._failed:
             self.close()
-            return [fn(x) for x in items]
+        return results
 
     def close(self) -> None:
-        if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
-            self._pool = None
+        with self._lock:
+            if self._pool is not None:
+                self._pool.shutdown(wait=True, cancel_futures=True)
+                self._pool = None

@@ -50,7 +50,7 @@ def test_narrative_change_refits_nothing_and_shows_the_new_text(tmp_path):
     assert summary.cache_hits >= 3 and summary.cache_misses == 1  # only the report's PDF is made again
     assert "New words," in (tmp_path / "o/site/index.html").read_text(encoding="utf-8")
     after = pdfs()
-    assert after.keys() == before.keys() and len(after) == 4
+    assert after.keys() == before.keys() and len(after) == 5
     assert after["dossier.pdf"] != before["dossier.pdf"]
     assert all(after[name] == before[name] for name in after if name != "dossier.pdf")  # the annexes: untouched
 

@@ -74,7 +74,7 @@ def test_pdf_is_pdf_a_3u_with_the_data_attached(small):
     assert attached == (out / "results.json").read_bytes()
     assert reader.metadata["/Title"].startswith("Test dossier")
     assert reader.metadata["/CreationDate"].startswith("D:20261120")  # the manifest's date, not the clock
-    for annex in ("annex-a-specimens.pdf", "annex-b-rig-runs.pdf", "annex-c-provenance.pdf"):
+    for annex in ("annex-a-results.pdf", "annex-b-specimens.pdf", "annex-c-rig-runs.pdf", "annex-d-provenance.pdf"):
         part = PdfReader(out / annex)
         xmp = part.trailer["/Root"]["/Metadata"].get_object().get_data().decode("utf-8")
         assert re.search(r'pdfaid:part(="|>)3', xmp) and re.search(r'pdfaid:conformance(="|>)U', xmp), annex
