@@ -194,17 +194,21 @@ def rated_load_n(specimen) -> float | None:
     return None if size is None else size.rated_load_n
 
 
-def specimen_metric_values(model: SpecimenModel, points: list[OperatingPoint], settings, extra_loads_n) -> list[MetricValue]:
-    """One specimen's metrics at every load measured at the nominal condition, the nominal load and
-    any asked-for load (`extra_loads_n`: the manifest's metric loads and target loads)."""
-    ms = Models(model.specimen, model.fy, model.mz, model.fx)
+def metric_loads(model: SpecimenModel, points: list[OperatingPoint], extra_loads_n) -> list[float]:
+    """The loads a specimen's metrics are given at: every load measured at the nominal condition,
+    the nominal load and any asked-for load (`extra_loads_n`: the manifest's metric and target loads)."""
     ref = model.fy or model.fx
-    loads = set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(extra_loads_n)
-    own = [p for p in points if p.specimen == model.specimen]
-    out = []
-    for load in sorted(loads):
-        out += metric_values(ms, load, own, settings.crosscheck_threshold_pct)
-    return out + specimen_metrics(ms)
+    return sorted(set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(extra_loads_n))
+
+
+def _metrics_job(job) -> list[MetricValue]:
+    """One specimen's metrics at one load (`load` None: the per-specimen metrics), from its model
+    and its points at that load (for the model-free cross-check)."""
+    model, own, settings, load = job
+    ms = Models(model.specimen, model.fy, model.mz, model.fx)
+    if load is None:
+        return specimen_metrics(ms)
+    return metric_values(ms, load, list(own), settings.crosscheck_threshold_pct)
 
 
 def conditioned_data_files(conditioned: list[ConditionedRun]) -> dict[str, bytes]:
@@ -304,8 +308,16 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     pool = pool or WorkerPool(1)
     if todo:
         pool.warm_up()  # new fits mean new figures and PDF volumes: the workers will be needed
-    done = pool.map(_fit_one_specimen, [job for _, job in todo])
-    for (key, _), result in zip(todo, done):
+    # Two rounds of jobs, so that the processes share the work evenly: the fits of each specimen,
+    # then its metrics, one job per load.
+    models = pool.map(_fit_one_specimen, [job for _, job in todo],
+                      cost=lambda job: sum(p.curve.n_points for p in job[1]))
+    metric_jobs = [(k, (model, tuple(p for p in job[1] if p.load_n == load), job[6], load))
+                   for k, ((_, job), model) in enumerate(zip(todo, models)) if model is not None
+                   for load in [*metric_loads(model, job[1], job[7]), None]]
+    values = pool.map(_metrics_job, [mj for _, mj in metric_jobs])
+    for k, ((key, _), model) in enumerate(zip(todo, models)):
+        result = None if model is None else (model, [m for (j, _), vs in zip(metric_jobs, values) if j == k for m in vs])
         results[key] = result
         cache.put(key, result)
     for key in keys:
@@ -316,8 +328,8 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     return [model for model, _ in found], [m for _, values in found for m in values]
 
 
-def _fit_one_specimen(job) -> tuple[SpecimenModel, list[MetricValue]] | None:
-    sid, own, settings, fz0_n, p0, r0, metric_settings, extra_loads = job
+def _fit_one_specimen(job) -> SpecimenModel | None:
+    sid, own, settings, fz0_n, p0, r0, _, _ = job
     forward = [p for p in own if p.rolling_direction == "forward"]
     lateral = [p for p in forward if p.sweep == "slip_angle" and p.curve.fy_n is not None]
     longitudinal = [p for p in forward if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
@@ -329,10 +341,7 @@ def _fit_one_specimen(job) -> tuple[SpecimenModel, list[MetricValue]] | None:
             mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
-    if not (fy or fx):
-        return None
-    model = SpecimenModel(sid, fy, mz, fx)
-    return model, specimen_metric_values(model, list(own), metric_settings, extra_loads)
+    return SpecimenModel(sid, fy, mz, fx) if (fy or fx) else None
 
 
 def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[str, bytes], cache: Cache,
@@ -347,7 +356,7 @@ def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[st
     keys = {v.filename: digest("pdf", v, made_from) for v in volumes}
     out = {name: cache.get(key) for name, key in keys.items()}
     todo = [pdf_job(ctx, env, v, site, attachments) for v in volumes if out[v.filename] is MISSING]
-    for job, pdf in zip(todo, pool.map(render_pdf, todo)):
+    for job, pdf in zip(todo, pool.map(render_pdf, todo, cost=lambda job: len(job.html))):
         cache.put(keys[job.volume.filename], pdf)
         out[job.volume.filename] = pdf
     return out
@@ -399,9 +408,13 @@ def _render_task(task):
     return getattr(figures, name)(*args)
 
 
+# Relative drawing time of each kind of figure (measured on the demo), to start the dearest first.
+FIGURE_COST = {"time_history_figure": 1.5, "conditions_figure": 1.4, "residual_figure": 1.0, "channel_figure": 0.9}
+
+
 def run_figure_tasks(tasks, pool: WorkerPool) -> list:
     """Render every figure in the pool's workers (the SVG bytes do not depend on their number)."""
-    return pool.map(_render_task, tasks)
+    return pool.map(_render_task, tasks, cost=lambda task: FIGURE_COST.get(task[1], 1.0))
 
 
 def place_figures(tasks, rendered):

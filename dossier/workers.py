@@ -64,8 +64,12 @@ class WorkerPool:
                 self._pool = ProcessPoolExecutor(max_workers=self.workers - 1, mp_context=_context())
             return self._pool
 
-    def map(self, fn: Callable, items: Iterable) -> list:
-        """``[fn(x) for x in items]``, shared between this process and the workers."""
+    def map(self, fn: Callable, items: Iterable, cost: Callable | None = None) -> list:
+        """``[fn(x) for x in items]``, shared between this process and the workers.
+
+        With `cost` (an estimate per item), the dearest jobs start first, so that no process is
+        left with a long job at the end; the results keep the order of `items`.
+        """
         items = list(items)
         if self.workers <= 1 or len(items) <= 1 or self._failed:
             return [fn(x) for x in items]
@@ -73,7 +77,8 @@ class WorkerPool:
         errors: list[tuple[int, BaseException]] = []
         returned: list[int] = []  # jobs a worker could not run (it could not start): done here
         lock = threading.Lock()
-        order = iter(range(len(items)))
+        indices = range(len(items))
+        order = iter(sorted(indices, key=lambda i: -cost(items[i])) if cost else indices)
 
         def take() -> int | None:
             with lock:
