@@ -31,7 +31,7 @@ def cli() -> None:
 @click.option("--theme", default="default", show_default=True, help="Theme name.")
 @click.option("--no-cache", is_flag=True, help="Recompute every stage (ignore PROJECT/.dossier-cache).")
 @click.option("--workers", type=click.IntRange(1, 64), default=None,
-              help="Processes for fits and figures (default: one per CPU); the output does not depend on it.")
+              help="Processes for fits, metrics, figures and PDF volumes, this one included (default: one per CPU); the output does not depend on it.")
 def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, workers: int | None) -> None:
     """Build the dossier of PROJECT (a folder with dossier.toml)."""
     if not no_cache:
