@@ -83,3 +83,18 @@ def test_parallel_build_from_a_script_on_standard_input(tmp_path):
     done = subprocess.run([sys.executable, "-"], input=script, text=True, capture_output=True)
     assert done.returncode == 0, done.stderr[-2000:]
     assert (tmp_path / "o/dossier.pdf").is_file()
+
+
+def test_the_worker_pool_keeps_order_and_reports_the_first_failing_job():
+    # Jobs shared between this process and a worker come back in the order given, whatever order
+    # they ran in (dearest first); a job's own error reaches the caller. Date codes: DOT TIN
+    # format of 49 CFR 574.5 (week and year), as the sidewall tests use.
+    from dossier.sidewall import SidewallError, parse_tin
+    from dossier.workers import WorkerPool
+
+    tins = [f"DOT XXXX XXX {week:02d}{year:02d}" for week in (1, 17, 33, 52) for year in (19, 23, 26)]
+    with WorkerPool(2) as pool:
+        got = pool.map(parse_tin, tins, cost=lambda t: -int(t[-4:-2]))  # the latest weeks first
+        assert got == [parse_tin(t) for t in tins]
+        with pytest.raises(SidewallError, match="week 60"):
+            pool.map(parse_tin, tins[:3] + ["DOT XXXX XXX 6019"] + tins[3:])
