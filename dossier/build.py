@@ -175,6 +175,7 @@ def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, poo
     files.update(archived)
     files.update(tag_files(files, manifest.document.number, manifest.document.revision))
     write_dossier(out_dir, files, extra={BUILD_KEY: (key + "\n").encode()})
+    cache.prune()
     return BuildSummary(out_dir, len(files), len(all_fits), len(metrics), cache_hits=cache.hits,
                         cache_misses=cache.misses)
 

@@ -23,6 +23,7 @@ from typing import Any, Callable
 import numpy as np
 
 CACHE_DIR = ".dossier-cache"
+BUDGET_BYTES = 500 * 1024 * 1024  # above this, the least recently used entries are removed
 
 
 class _Missing:
@@ -122,6 +123,7 @@ class Cache:
         self.folder = Path(folder) if folder else None
         self.hits = 0
         self.misses = 0
+        self._used: set[Path] = set()  # entries read or written by this build: never pruned
 
     def get(self, key: str) -> Any:
         """Return the stored value, or MISSING (a damaged entry counts as missing, never trusted)."""
@@ -131,6 +133,8 @@ class Cache:
                 try:
                     value = pickle.loads(path.read_bytes())
                     self.hits += 1
+                    self._used.add(path)
+                    os.utime(path)  # recently used: kept longest when the cache is pruned
                     return value
                 except Exception:  # noqa: BLE001
                     pass
@@ -156,5 +160,38 @@ class Cache:
             with os.fdopen(fd, "wb") as fh:
                 pickle.dump(value, fh, protocol=pickle.HIGHEST_PROTOCOL)
             os.replace(tmp, target)
+            self._used.add(target)
         except OSError:
             pass  # a cache that cannot be written only costs time
+
+    def prune(self, budget_bytes: int = BUDGET_BYTES) -> int:
+        """Keep the cache under `budget_bytes`: remove the least recently used entries (never one
+        this build used) until it holds at most 80 % of the budget. Returns the entries removed.
+
+        Only our own entry files (``??/<sha256>.pkl``) are ever removed.
+        """
+        if self.folder is None or not self.folder.is_dir():
+            return 0
+        entries = []
+        for path in self.folder.glob("??/*.pkl"):
+            try:
+                st = path.stat()
+            except OSError:
+                continue
+            entries.append((st.st_mtime, st.st_size, path))
+        total = sum(size for _, size, _ in entries)
+        if total <= budget_bytes:
+            return 0
+        removed = 0
+        for _, size, path in sorted(entries, key=lambda e: (e[0], e[2].name)):
+            if total <= 0.8 * budget_bytes:
+                break
+            if path in self._used:
+                continue
+            try:
+                path.unlink()
+            except OSError:
+                continue
+            total -= size
+            removed += 1
+        return removed

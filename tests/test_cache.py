@@ -98,3 +98,26 @@ def test_the_worker_pool_keeps_order_and_reports_the_first_failing_job():
         assert got == [parse_tin(t) for t in tins]
         with pytest.raises(SidewallError, match="week 60"):
             pool.map(parse_tin, tins[:3] + ["DOT XXXX XXX 6019"] + tins[3:])
+
+
+def test_the_cache_keeps_to_its_budget_and_removes_only_old_entries_of_its_own(tmp_path):
+    import os
+
+    from dossier.cache import Cache, digest
+
+    folder = tmp_path / ".dossier-cache"
+    first = Cache(folder)
+    keys = [digest("entry", i) for i in range(5)]
+    for age, key in enumerate(keys):
+        first.put(key, bytes(1000))
+        os.utime(folder / key[:2] / f"{key}.pkl", (1_000_000 + age, 1_000_000 + age))  # entry 0 is the oldest
+    (folder / "keep-me.txt").write_text("not an entry", encoding="utf-8")
+    later = Cache(folder)
+    assert later.get(keys[0]) == bytes(1000)  # the oldest entry, used by this build
+    size = (folder / keys[1][:2] / f"{keys[1]}.pkl").stat().st_size
+    removed = later.prune(budget_bytes=4 * size)  # five entries over a budget of four: keep at most 3.2
+    assert removed == 2
+    left = {k for k in keys if (folder / k[:2] / f"{k}.pkl").exists()}
+    assert left == {keys[0], keys[3], keys[4]}  # the used one and the two most recent
+    assert (folder / "keep-me.txt").exists()
+    assert Cache(folder).prune(budget_bytes=10 * size) == 0  # under budget: nothing removed
