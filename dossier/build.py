@@ -1,9 +1,10 @@
 """The build, as a recipe: gather everything first, then write.
 
-load project → ingest → condition → drift → offsets → fit → metrics → figures → render site →
-render PDF → write.
+load project → ingest → condition → drift → offsets → fit and metrics → figures → render site →
+render the PDF volumes (annexes, then the report that attaches them) → write.
 Each step is one call into its own module; only ``load_manifest``/``read_run`` read and only
-``write_dossier`` writes.
+``write_dossier`` writes. Every stage's results are cached by content (:mod:`dossier.cache`), and
+the fits, metrics, figures and volumes are shared with worker processes (:mod:`dossier.workers`).
 """
 
 from __future__ import annotations
@@ -103,9 +104,8 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
 
     With `use_cache`, results of unchanged stages come from ``PROJECT/.dossier-cache`` and a
     rebuild whose every input, theme file and code file is unchanged leaves the output as it is.
-    `workers` processes fit specimens, render figures and render the PDF volumes in parallel
-    (default: one per CPU);
-    the output does not depend on it.
+    `workers` processes (this one included; default: one per CPU) share the fits, metrics,
+    figures and PDF volumes; the output does not depend on their number.
     """
     manifest = load_manifest(project_dir)
     out_dir = Path(out_dir) if out_dir else manifest.project_dir / "dossier-out"
@@ -123,6 +123,7 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
 
 
 def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool) -> BuildSummary:
+    """The recipe proper: every stage in order, then one write."""
     manifest, conditioned = check(project_dir, cache, project_files)
     measured = [p for c in conditioned for p in c.points]
     fz0_n = nominal_load_n(manifest)
