@@ -24,7 +24,7 @@ from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
 from .ingest import read_project_files, read_run
 from .integrity import tag_files
 from .provenance import provenance_bytes, provenance_record
-from .manifest import Manifest, load_manifest
+from .manifest import FitSettings, Manifest, MetricSettings, load_manifest
 from .acceptance import verdicts as judge_targets
 from .comparison import compare, recommend
 from .metrics import METRICS, Models, MetricValue, metric_values, single_metric, specimen_metrics
@@ -112,17 +112,18 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     refuse_sealed(out_dir)
     theme = load_theme(theme_name)
     project_files = read_project_files(manifest)
-    key = build_key(project_files, theme, theme_name)
+    theme_bytes = theme_files(theme)
+    key = build_key(project_files, theme_bytes, theme_name)
     if use_cache and output_is_current(out_dir, key):
         return BuildSummary(out_dir, -1, -1, -1, reused=True)
     cache = Cache(manifest.project_dir / CACHE_DIR if use_cache else None)
     with WorkerPool(workers or os.cpu_count() or 1) as pool:
         if cache.folder is None or not cache.folder.is_dir():
             pool.warm_up()  # nothing cached: every stage has work for the workers
-        return _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool)
+        return _build(manifest, project_dir, out_dir, theme, theme_bytes, project_files, key, cache, pool)
 
 
-def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, pool) -> BuildSummary:
+def _build(manifest, project_dir, out_dir, theme, theme_bytes, project_files, key, cache, pool) -> BuildSummary:
     """The recipe proper: every stage in order, then one write."""
     manifest, conditioned = check(project_dir, cache, project_files)
     measured = [p for c in conditioned for p in c.points]
@@ -163,7 +164,7 @@ def _build(manifest, project_dir, out_dir, theme, project_files, key, cache, poo
     env = make_environment(theme, manifest.project_dir / "templates",
                            cache.folder / "templates" if cache.folder else None)
     site = render_site(ctx, env, theme, data_files)
-    templates = {**theme_files(theme), **{k: v for k, v in project_files.items() if k.startswith("templates/")}}
+    templates = {**theme_bytes, **{k: v for k, v in project_files.items() if k.startswith("templates/")}}
     annexes = render_volumes(ANNEXES, facts, env, site, templates, cache, pool)
     report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool, {**data_files, **annexes})
     archived = {f"{INPUTS}/{k}": v for k, v in project_files.items()}
@@ -286,6 +287,20 @@ def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
     return size.unloaded_radius_m
 
 
+@dataclass(frozen=True)
+class SpecimenJob:
+    """What one specimen's fits and metrics are made from (its cache key digests all of it)."""
+
+    specimen: str
+    points: tuple[OperatingPoint, ...]  # all of the specimen's points; the fits use the forward runs
+    fit_settings: FitSettings
+    fz0_n: float
+    p0_kpa: float
+    r0_m: float | None  # unloaded radius, for the aligning moment
+    metric_settings: MetricSettings
+    extra_loads_n: tuple[float, ...]  # asked-for metric and target loads
+
+
 def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float, p0_kpa: float | None = None,
                   cache: Cache | None = None, pool: WorkerPool | None = None
                   ) -> tuple[list[SpecimenModel], list[MetricValue]]:
@@ -303,8 +318,8 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
         own = tuple(p for p in points if p.specimen == s.id)
         has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in own)
         r0 = unloaded_radius_m(manifest, s.id) if has_mz else None
-        jobs.append((s.id, own, manifest.fit, fz0_n, p0, r0, manifest.metrics, extra_loads))
-    keys = [digest("specimen", *job) for job in jobs]
+        jobs.append(SpecimenJob(s.id, own, manifest.fit, fz0_n, p0, r0, manifest.metrics, extra_loads))
+    keys = [digest("specimen", job) for job in jobs]
     results = {key: cache.get(key) for key in keys}
     todo = [(key, job) for key, job in zip(keys, jobs) if results[key] is MISSING]
     pool = pool or WorkerPool(1)
@@ -313,26 +328,27 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     # Two rounds of jobs, so that the processes share the work evenly: the fits of each specimen,
     # then its metrics, one job per load.
     models = pool.map(_fit_one_specimen, [job for _, job in todo],
-                      cost=lambda job: sum(p.curve.n_points for p in job[1]))
-    metric_jobs = [(k, (model, tuple(p for p in job[1] if p.load_n == load), job[6], load))
-                   for k, ((_, job), model) in enumerate(zip(todo, models)) if model is not None
-                   for load in [*metric_loads(model, job[1], job[7]), None]]
-    values = pool.map(_metrics_job, [mj for _, mj in metric_jobs])
-    for k, ((key, _), model) in enumerate(zip(todo, models)):
-        result = None if model is None else (model, [m for (j, _), vs in zip(metric_jobs, values) if j == k for m in vs])
-        results[key] = result
-        cache.put(key, result)
+                      cost=lambda job: sum(p.curve.n_points for p in job.points))
+    metric_jobs = [(key, (model, tuple(p for p in job.points if p.load_n == load), job.metric_settings, load))
+                   for (key, job), model in zip(todo, models) if model is not None
+                   for load in [*metric_loads(model, job.points, job.extra_loads_n), None]]
+    values: dict[str, list[MetricValue]] = {}
+    for (key, _), found in zip(metric_jobs, pool.map(_metrics_job, [mj for _, mj in metric_jobs])):
+        values.setdefault(key, []).extend(found)
+    for (key, _), model in zip(todo, models):
+        results[key] = None if model is None else (model, values[key])
+        cache.put(key, results[key])
     for key in keys:
         if results[key] is not None:  # each fit is fully determined by its job's key
             for fit in results[key][0].channels:
                 with_content_key(fit, f"{key}:{fit.channel}")
     found = [results[k] for k in keys if results[k] is not None]
-    return [model for model, _ in found], [m for _, values in found for m in values]
+    return [model for model, _ in found], [m for _, vs in found for m in vs]
 
 
-def _fit_one_specimen(job) -> SpecimenModel | None:
-    sid, own, settings, fz0_n, p0, r0, _, _ = job
-    forward = [p for p in own if p.rolling_direction == "forward"]
+def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
+    settings, fz0_n, p0 = job.fit_settings, job.fz0_n, job.p0_kpa
+    forward = [p for p in job.points if p.rolling_direction == "forward"]
     lateral = [p for p in forward if p.sweep == "slip_angle" and p.curve.fy_n is not None]
     longitudinal = [p for p in forward if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
     fy = mz = fx = None
@@ -340,10 +356,11 @@ def _fit_one_specimen(job) -> SpecimenModel | None:
         fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
         with_mz = [p for p in lateral if p.curve.mz_nm is not None]
         if with_mz:
-            mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, r0, fy.values), with_mz, settings)
+            mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, job.r0_m, fy.values), with_mz,
+                                settings)
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
-    return SpecimenModel(sid, fy, mz, fx) if (fy or fx) else None
+    return SpecimenModel(job.specimen, fy, mz, fx) if (fy or fx) else None
 
 
 def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[str, bytes], cache: Cache,

@@ -234,14 +234,12 @@ def hysteresis_figure(p: OperatingPoint, style: Path | None) -> FigureArtifact:
         ax.plot(p.rising.x, p.rising.main, "-", lw=1.2, color=colors[1], label="rising slip")
         ax.plot(p.falling.x, p.falling.main, "-", lw=1.2, color=colors[2], label="falling slip")
         ax.plot(p.curve.x, p.curve.main, "--", lw=1.0, color=colors[0], label="steady state (lag removed)")
-        ax.axhline(0, lw=0.5, color="0.5")
-        ax.axvline(0, lw=0.5, color="0.5")
+        _origin_axes(ax, "Slip angle α [deg]" if p.sweep == "slip_angle" else "Slip ratio κ [1]",
+                     "Lateral force Fy [N]" if p.sweep == "slip_angle" else "Longitudinal force Fx [N]")
         if p.hysteresis and p.hysteresis.slip_lag is not None:
             ax.text(0.02, 0.04, f"difference at zero slip {p.hysteresis.force_diff_n:+.0f} N, "
                                 f"equivalent slip lag {p.hysteresis.slip_lag:+.3f}" + ("°" if p.sweep == "slip_angle" else ""),
                     transform=ax.transAxes, fontsize="small")
-        ax.set_xlabel("Slip angle α [deg]" if p.sweep == "slip_angle" else "Slip ratio κ [1]")
-        ax.set_ylabel("Lateral force Fy [N]" if p.sweep == "slip_angle" else "Longitudinal force Fx [N]")
         ax.legend(fontsize="small")
         ax.set_title(f"Run {p.run_index} ({p.specimen}) at {p.load_n / 1000:.1f} kN: sweep directions")
 

@@ -27,8 +27,9 @@ def theme_files(theme: Theme) -> dict[str, bytes]:
             for i, folder in enumerate(theme.folders) for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
-def build_key(project_files: dict[str, bytes], theme: Theme, theme_name: str) -> str:
-    return digest(project_files, theme_files(theme), theme_name)
+def build_key(project_files: dict[str, bytes], theme_bytes: dict[str, bytes], theme_name: str) -> str:
+    """`theme_bytes`: the theme chain's files as :func:`theme_files` reads them."""
+    return digest(project_files, theme_bytes, theme_name)
 
 
 def output_is_current(out_dir: Path, key: str) -> bool:
@@ -45,5 +46,5 @@ def up_to_date(project_dir: Path, out_dir: Path | None, theme_name: str) -> Path
     manifest = load_manifest(project_dir)
     out = Path(out_dir) if out_dir else manifest.project_dir / "dossier-out"
     refuse_sealed(out)
-    key = build_key(read_project_files(manifest), load_theme(theme_name), theme_name)
+    key = build_key(read_project_files(manifest), theme_files(load_theme(theme_name)), theme_name)
     return out if output_is_current(out, key) else None

@@ -21,6 +21,7 @@ import hashlib
 
 import jinja2
 from markupsafe import Markup
+import weasyprint
 from weasyprint.urls import URLFetcher, URLFetcherResponse
 
 from . import __version__, axes
@@ -346,21 +347,25 @@ class Volume:
     label: str
     title: str
     scope: str = ""
-    letter: str = ""
+
+    @property
+    def is_annex(self) -> bool:
+        return self.key != REPORT_KEY
 
 
-REPORT = Volume("report", "dossier.pdf", "print.html", "Report", "Report")
+REPORT_KEY = "report"
+REPORT = Volume(REPORT_KEY, "dossier.pdf", "print.html", "Report", "Report")
 ANNEXES = (
     Volume("results", "annex-a-results.pdf", "print-results.html", "Annex A", "Results in detail",
            "Findings at the nominal load, every candidate against the baseline, and what the differences mean "
-           "for vehicle balance", "A"),
+           "for vehicle balance"),
     Volume("specimens", "annex-b-specimens.pdf", "print-specimens.html", "Annex B", "Specimens and fit reports",
-           "Identity from the sidewall, rig files, metrics by load and the fit report of every channel", "B"),
+           "Identity from the sidewall, rig files, metrics by load and the fit report of every channel"),
     Volume("rig-runs", "annex-c-rig-runs.pdf", "print-rig-runs.html", "Annex C", "Rig runs and conditioning",
-           "The verdict of every run; its operating points, dropped data, hysteresis, offsets, drift and coverage", "C"),
+           "The verdict of every run; its operating points, dropped data, hysteresis, offsets, drift and coverage"),
     Volume("provenance", "annex-d-provenance.pdf", "print-provenance.html", "Annex D",
            "Method, definitions and provenance",
-           "How the numbers were made, what each metric means and the source lines behind every fit", "D"),
+           "How the numbers were made, what each metric means and the source lines behind every fit"),
 )
 VOLUMES = (REPORT, *ANNEXES)
 
@@ -396,8 +401,6 @@ def render_pdf(job: PdfJob) -> bytes:
     Attachments carry the document date as their creation and modification date, so that the
     same inputs give the same bytes.
     """
-    import weasyprint
-
     fetcher = _BuildFetcher(job.resources)
     document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
     stamp = dt.datetime.combine(job.date, dt.time(12, 0), tzinfo=dt.timezone.utc)
