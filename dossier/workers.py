@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import multiprocessing
 import threading
+import time
 from concurrent.futures import ProcessPoolExecutor
 from concurrent.futures.process import BrokenProcessPool
 from typing import Callable, Iterable
@@ -36,6 +37,7 @@ class WorkerPool:
 
     def __init__(self, workers: int):
         self.workers = max(1, int(workers))
+        self.timeline: list[tuple[str, str, float, float]] | None = None  # set to a list to record jobs
         self._pool: ProcessPoolExecutor | None = None
         self._failed = False
         self._lock = threading.Lock()
@@ -90,7 +92,9 @@ class WorkerPool:
             try:
                 pool = self._executor()
                 while (i := take()) is not None:
+                    started = time.perf_counter()
                     results[i] = pool.submit(fn, items[i]).result()
+                    self._record(fn, threading.current_thread().name, started)
             except (BrokenProcessPool, OSError):
                 self._failed = True
                 if i is not None:
@@ -100,12 +104,14 @@ class WorkerPool:
                 with lock:
                     errors.append((i, exc))
 
-        relays = [threading.Thread(target=relay, daemon=True) for _ in range(self.workers - 1)]
+        relays = [threading.Thread(target=relay, daemon=True, name=f"worker {k + 1}") for k in range(self.workers - 1)]
         for t in relays:
             t.start()
         try:
             while (i := take()) is not None:
+                started = time.perf_counter()
                 results[i] = fn(items[i])
+                self._record(fn, "caller", started)
         except BaseException as exc:  # noqa: BLE001
             with lock:
                 errors.append((i, exc))
@@ -118,6 +124,10 @@ class WorkerPool:
         if self._failed:
             self.close()
         return results
+
+    def _record(self, fn: Callable, who: str, started: float) -> None:
+        if self.timeline is not None:
+            self.timeline.append((fn.__name__, who, started, time.perf_counter()))
 
     def close(self) -> None:
         with self._lock:
