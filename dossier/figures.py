@@ -21,7 +21,7 @@ from .metrics import MetricValue
 
 matplotlib.use("Agg")
 
-_REPRODUCIBLE = {"svg.hashsalt": "dossier", "svg.fonttype": "none"}
+_REPRODUCIBLE = {"svg.hashsalt": "dossier", "svg.fonttype": "none", "axes.titley": 1.0}
 RAW_POINTS_SHOWN = 1500  # thin the data cloud so files stay small
 
 
