@@ -108,16 +108,61 @@ def _slope(f, h):
 
 def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, bool]:
     """Return (|y|max, |x| at it, reached inside the range) of f on one side of zero, up to `edge`."""
-    from scipy import optimize  # imported here: not needed when results come from the cache
-
     grid = np.arange(0.0, edge + step / 2, step)
     y = np.abs(f(sign * grid))
     i = int(np.argmax(y))
     if i == 0 or i == grid.size - 1:
         return float(y[i]), float(grid[i]), False
-    res = optimize.minimize_scalar(lambda a: -abs(float(f(sign * a))), bounds=(grid[i - 1], grid[i + 1]),
-                                   method="bounded", options={"xatol": 1e-7})
-    return float(-res.fun), float(res.x), True
+    x, top = _refine_max(lambda a: np.abs(f(sign * a)), grid[i - 1], grid[i + 1])
+    return top, x, True
+
+
+REFINE_POINTS = 129  # points of the fine grid inside a bracket (searches refine in one vectorised call)
+
+
+def _refine_max(f, lo: float, hi: float) -> tuple[float, float]:
+    """Where the smooth, vectorised `f` is largest between `lo` and `hi` (a bracket of its maximum),
+    and its value there: the best point of a fine grid, a finer grid around it, then the vertex of
+    the parabola through the best point and its neighbours."""
+    for _ in range(2):
+        x = np.linspace(lo, hi, REFINE_POINTS)
+        y = np.asarray(f(x), dtype=float)
+        j = int(np.clip(np.argmax(y), 1, x.size - 2))
+        lo, hi = float(x[j - 1]), float(x[j + 1])
+    curvature = y[j - 1] - 2.0 * y[j] + y[j + 1]
+    best_x, best_y = float(x[j]), float(y[j])
+    if curvature < 0.0:
+        vertex = best_x + 0.5 * (y[j - 1] - y[j + 1]) / curvature * (x[1] - x[0])
+        at_vertex = float(np.asarray(f(np.array([vertex])), dtype=float)[0])
+        if at_vertex >= best_y:
+            return vertex, at_vertex
+    return best_x, best_y
+
+
+def _refine_root(f, lo: float, hi: float) -> float:
+    """The root of the smooth, vectorised `f` between `lo` and `hi` (where it changes sign): the
+    sign change on a fine grid, again on a finer grid inside it, then two secant steps."""
+    for _ in range(2):
+        x = np.linspace(lo, hi, REFINE_POINTS)
+        y = np.asarray(f(x), dtype=float)
+        if y[0] == 0.0:
+            return float(x[0])
+        change = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
+        j = int(change[0]) if change.size else x.size - 2
+        lo, hi = float(x[j]), float(x[j + 1])
+    a, b, fa, fb = lo, hi, float(y[j]), float(y[j + 1])
+    for _ in range(2):
+        if fb == fa:
+            break
+        c = b - fb * (b - a) / (fb - fa)
+        fc = float(np.asarray(f(np.array([c])), dtype=float)[0])
+        if fc == 0.0:
+            return c
+        if np.sign(fc) == np.sign(fa):
+            a, fa = c, fc
+        else:
+            b, fb = c, fc
+    return a - fa * (b - a) / (fb - fa) if fb != fa else 0.5 * (a + b)
 
 
 _PEAK_MEMO: dict = {}
@@ -158,8 +203,6 @@ def cornering_stiffness(m, load, v):
 
 
 def _linear_range_side(m, load, v, sign):
-    from scipy import optimize  # imported here: not needed when results come from the cache
-
     k = -cornering_stiffness(m, load, v)  # dFy/dα, N/deg (negative in ISO 8855)
     f0 = float(_fy(m, 0.0, load, v))
     lo, hi = m.fy.slip_range
@@ -177,7 +220,7 @@ def _linear_range_side(m, load, v, sign):
     i = above[0]
     if i == 0:
         return float(grid[0])
-    return float(optimize.brentq(lambda a: float(excess(a)), grid[i - 1], grid[i], xtol=1e-8))
+    return _refine_root(excess, grid[i - 1], grid[i])
 
 
 def _both(fn):
@@ -204,15 +247,13 @@ def pneumatic_trail_mm(m, load, v):
 
 
 def _root_near_zero(f, half=3.0):
-    from scipy import optimize  # imported here: not needed when results come from the cache
-
     grid = np.linspace(-half, half, 121)
     y = np.asarray(f(grid), dtype=float)
     s = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
     if s.size == 0:
         return None
     i = s[np.argmin(np.abs(grid[s]))]
-    return float(optimize.brentq(lambda a: float(f(a)), grid[i], grid[i + 1], xtol=1e-10))
+    return _refine_root(f, grid[i], grid[i + 1])
 
 
 def residual_cornering_force(m, load, v):
@@ -247,12 +288,18 @@ def friction_load_sensitivity(m, load, v):
 
 
 def load_at_max_cornering_stiffness(m, load, v):
-    from scipy import optimize  # imported here: not needed when results come from the cache
-
     fz0 = m.fy.fz0_n
-    res = optimize.minimize_scalar(lambda fz: -cornering_stiffness(m, fz, v), bounds=(0.2 * fz0, 4.0 * fz0),
-                                   method="bounded", options={"xatol": 0.1})
-    return float(res.x)
+    h = SLIP_STEP_DEG
+
+    def stiffness(fz):  # −dFy/dα at zero slip for an array of loads
+        fz = np.asarray(fz, dtype=float)
+        return -(_fy(m, h, fz, v) - _fy(m, -h, fz, v)) / (2 * h)
+
+    grid = np.linspace(0.2 * fz0, 4.0 * fz0, 381)
+    i = int(np.argmax(stiffness(grid)))
+    if i == 0 or i == grid.size - 1:
+        return float(grid[i])  # the stiffness still rises at the end of the searched range
+    return _refine_max(stiffness, grid[i - 1], grid[i + 1])[0]
 
 
 D = MetricDefinition

@@ -96,3 +96,28 @@ def test_model_free_cross_check_and_its_finding():
     assert cs.finding == ""
     assert "model and data disagree" in strict["cornering_stiffness"].finding
     assert calm["peak_lateral_friction"].crosscheck == pytest.approx(calm["peak_lateral_friction"].value, rel=0.02)
+
+
+def test_peak_and_root_searches_agree_with_scipy():
+    """The vectorised searches the metrics use, against SciPy's bounded Brent search and brentq
+    (general-purpose reference library) on a Magic Formula curve of the published 1987 tire."""
+    from scipy import optimize
+
+    from dossier.metrics import _refine_max, _refine_root
+
+    def fy(alpha_deg):  # lateral force of the 1987 tire at 4 kN, N
+        return mf.fy0(np.asarray(alpha_deg) * mf.DEG, 4000.0, TRUE_FY, FZ0)
+
+    def minus_abs(a):
+        return -abs(float(fy(a)))
+
+    ref = optimize.minimize_scalar(minus_abs, bounds=(3.0, 15.0), method="bounded", options={"xatol": 1e-10})
+    x, top = _refine_max(lambda a: np.abs(fy(a)), 3.0, 15.0)
+    assert x == pytest.approx(ref.x, abs=1e-6)
+    assert top == pytest.approx(-ref.fun, rel=1e-9)
+
+    def level(a):  # crosses zero where |Fy| is 60 % of its peak
+        return np.abs(fy(a)) - 0.6 * top
+
+    root = optimize.brentq(lambda a: float(level(a)), 0.0, x, xtol=1e-13)
+    assert _refine_root(level, 0.0, x) == pytest.approx(root, abs=1e-10)
