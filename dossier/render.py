@@ -390,9 +390,26 @@ def pdf_job(ctx: DossierContext, env: jinja2.Environment, volume: Volume, site_f
     html = _page(env, volume.template, ctx, current=volume.template, volume=volume,
                  downloads=_downloads(attachments))
     _require_cautions({volume.template: html}, print_pages=(volume.template,))
+    html = unlink_missing_anchors(html)
     referenced = set(re.findall(rb'(?:src|href)="((?:figures|static)/[^"#?]+)"', html))
     resources = {name: data for name, data in site_files.items() if name.encode() in referenced}
     return PdfJob(volume, html, resources, attachments, ctx.document.number, ctx.document.revision, ctx.document.date)
+
+
+_ANCHOR_LINK = re.compile(rb'<a\b([^>]*?)\shref="#([^"]*)"([^>]*)>(.*?)</a>', re.S)
+
+
+def unlink_missing_anchors(html: bytes) -> bytes:
+    """Turn links to anchors that this page does not hold into plain text (a ``span`` with the
+    link's other attributes): in a PDF volume they point into another volume, where no PDF
+    viewer can follow them (and laying them out as links costs time for nothing)."""
+    ids = set(re.findall(rb'\sid="([^"]*)"', html))
+
+    def plain(m: re.Match) -> bytes:
+        before, anchor, after, text = m.groups()
+        return m.group(0) if anchor in ids else b"<span" + before + after + b">" + text + b"</span>"
+
+    return _ANCHOR_LINK.sub(plain, html)
 
 
 def render_pdf(job: PdfJob) -> bytes:

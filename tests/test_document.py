@@ -146,3 +146,15 @@ def test_draft_mark_and_released_signoff(tmp_path):
     unsigned = make_project(tmp_path / "u", extra='\n[signoff]\nstatus = "released"\n[[signoff.people]]\nname = "X"\nrole = "approver"\n')
     with pytest.raises(UserError, match="a released revision needs an approver with a date"):
         build(unsigned, tmp_path / "ou")
+
+
+def test_links_into_another_volume_become_plain_text():
+    from dossier.render import unlink_missing_anchors
+
+    page = (b'<h2 id="fit">Fit</h2><a href="#fit">here</a> '
+            b'<a class="prov-link" href="#prov-fit-A-fy" title="source">pDy1</a> <a href="site.html#x">site</a>')
+    out = unlink_missing_anchors(page)
+    assert b'<a href="#fit">here</a>' in out  # the anchor is in this volume: still a link
+    assert b'<span class="prov-link" title="source">pDy1</span>' in out  # in another volume: text
+    assert b'<a href="site.html#x">site</a>' in out  # not an in-page link: untouched
+
