@@ -203,8 +203,15 @@ def time_history_figure(run: ConditionedRun, style: Path | None) -> FigureArtifa
         colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
         for ax, y, label in ((ax1, o.fz_n / 1000.0, "Normal load Fz [kN]"),
                              (ax2, o.x, "Slip angle α [deg]" if lateral else "Slip ratio κ [1]")):
-            ax.plot(o.time_s, np.where(o.kept, np.nan, y), ".", ms=1.2, color="0.65", label="dropped", rasterized=True)
-            ax.plot(o.time_s, np.where(o.kept, y, np.nan), ".", ms=1.2, color=colors[0], label="kept", rasterized=True)
+            # Lines (vector, and far cheaper to draw and to print than thousands of dots), broken
+            # where the samples change class; a sample unlike both neighbours (a dropped spike)
+            # would be a line of one point, so it gets a marker.
+            for keep, color, name in ((False, "0.65", "dropped"), (True, colors[0], "kept")):
+                mine = o.kept if keep else ~o.kept
+                ax.plot(o.time_s, np.where(mine, y, np.nan), "-", lw=0.7, color=color, label=name)
+                alone = _isolated(mine)
+                if alone.any():
+                    ax.plot(o.time_s[alone], y[alone], ".", ms=2.5, color=color)
             ax.set_ylabel(label)
             for i, p in enumerate(run.points):
                 ax.axvspan(*p.time_span_s, color=colors[1 + i % (len(colors) - 1)], alpha=0.08, lw=0)
@@ -212,17 +219,26 @@ def time_history_figure(run: ConditionedRun, style: Path | None) -> FigureArtifa
             ax1.annotate(f"{p.load_n / 1000:.1f} kN", (0.5 * sum(p.time_span_s), p.mean_load_n / 1000.0),
                          textcoords="offset points", xytext=(0, 6), ha="center", fontsize="x-small")
         ax2.set_xlabel("Time [s]")
-        ax1.legend(loc="upper left", fontsize="x-small", markerscale=6)
+        ax1.legend(loc="upper left", fontsize="x-small")
         ax1.set_title(f"Run {a.run_index}: {a.source_file} ({a.specimen})")
 
     return FigureArtifact(
         f"run-{a.run_index}-history.svg",
         f"Time history of run {a.run_index} ({a.specimen})",
-        "Grey: samples dropped by conditioning (transitions, settling, spikes); shaded bands: the operating "
+        "Grey: samples dropped by conditioning (transitions, settling, spikes; a lone dropped sample is a dot); "
+        "shaded bands: the operating "
         "points found, labelled with their nominal load.",
         f"Two stacked time histories of run {a.run_index}: normal load and swept slip channel, kept and dropped "
         f"samples, {len(run.points)} operating points marked.",
         _render(style, draw, size=(7.0, 4.6)))
+
+
+def _isolated(mask: np.ndarray) -> np.ndarray:
+    """True where `mask` is True and neither neighbour is."""
+    mask = np.asarray(mask, dtype=bool)
+    before = np.concatenate(([False], mask[:-1]))
+    after = np.concatenate((mask[1:], [False]))
+    return mask & ~before & ~after
 
 
 def hysteresis_figure(p: OperatingPoint, style: Path | None) -> FigureArtifact:
