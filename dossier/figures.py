@@ -218,6 +218,7 @@ def time_history_figure(run: ConditionedRun, style: Path | None) -> FigureArtifa
         for p in run.points:
             ax1.annotate(f"{p.load_n / 1000:.1f} kN", (0.5 * sum(p.time_span_s), p.mean_load_n / 1000.0),
                          textcoords="offset points", xytext=(0, 6), ha="center", fontsize="x-small")
+        ax1.margins(y=0.15)  # room above the highest load for its label
         ax2.set_xlabel("Time [s]")
         ax1.legend(loc="upper left", fontsize="x-small")
         ax1.set_title(f"Run {a.run_index}: {a.source_file} ({a.specimen})")
