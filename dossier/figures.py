@@ -206,8 +206,7 @@ def time_history_figure(run: ConditionedRun, style: Path | None) -> FigureArtifa
             # Lines (vector, and far cheaper to draw and to print than thousands of dots), broken
             # where the samples change class; a sample unlike both neighbours (a dropped spike)
             # would be a line of one point, so it gets a marker.
-            for keep, color, name in ((False, "0.65", "dropped"), (True, colors[0], "kept")):
-                mine = o.kept if keep else ~o.kept
+            for mine, color, name in ((~o.kept, "0.65", "dropped"), (o.kept, colors[0], "kept")):
                 ax.plot(o.time_s, np.where(mine, y, np.nan), "-", lw=0.7, color=color, label=name)
                 alone = _isolated(mine)
                 if alone.any():

@@ -103,7 +103,17 @@ def _fx(m: Models, x, load, v: Values):
 
 
 def _slope(f, h):
-    return float((f(h) - f(-h)) / (2 * h))
+    return float(_slopes(f, h))
+
+
+def _slopes(f, h):
+    """Central-difference slope at zero of `f`; element-wise when `f` returns an array."""
+    return (f(h) - f(-h)) / (2 * h)
+
+
+def _value_at(f, x: float) -> float:
+    """A vectorised `f` at one point."""
+    return float(np.asarray(f(np.array([x])), dtype=float)[0])
 
 
 def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, bool]:
@@ -133,7 +143,7 @@ def _refine_max(f, lo: float, hi: float) -> tuple[float, float]:
     best_x, best_y = float(x[j]), float(y[j])
     if curvature < 0.0:
         vertex = best_x + 0.5 * (y[j - 1] - y[j + 1]) / curvature * (x[1] - x[0])
-        at_vertex = float(np.asarray(f(np.array([vertex])), dtype=float)[0])
+        at_vertex = _value_at(f, vertex)
         if at_vertex >= best_y:
             return vertex, at_vertex
     return best_x, best_y
@@ -155,7 +165,7 @@ def _refine_root(f, lo: float, hi: float) -> float:
         if fb == fa:
             break
         c = b - fb * (b - a) / (fb - fa)
-        fc = float(np.asarray(f(np.array([c])), dtype=float)[0])
+        fc = _value_at(f, c)
         if fc == 0.0:
             return c
         if np.sign(fc) == np.sign(fa):
@@ -289,11 +299,9 @@ def friction_load_sensitivity(m, load, v):
 
 def load_at_max_cornering_stiffness(m, load, v):
     fz0 = m.fy.fz0_n
-    h = SLIP_STEP_DEG
 
-    def stiffness(fz):  # −dFy/dα at zero slip for an array of loads
-        fz = np.asarray(fz, dtype=float)
-        return -(_fy(m, h, fz, v) - _fy(m, -h, fz, v)) / (2 * h)
+    def stiffness(fz):  # the cornering stiffness for an array of loads
+        return -_slopes(lambda a: _fy(m, a, np.asarray(fz, dtype=float), v), SLIP_STEP_DEG)
 
     grid = np.linspace(0.2 * fz0, 4.0 * fz0, 381)
     i = int(np.argmax(stiffness(grid)))

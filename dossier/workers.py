@@ -74,7 +74,7 @@ class WorkerPool:
         """
         items = list(items)
         if self.workers <= 1 or len(items) <= 1 or self._failed:
-            return [fn(x) for x in items]
+            return [self._run_here(fn, x) for x in items]
         results: list = [None] * len(items)
         errors: list[tuple[int, BaseException]] = []
         returned: list[int] = []  # jobs a worker could not run (it could not start): done here
@@ -109,9 +109,7 @@ class WorkerPool:
             t.start()
         try:
             while (i := take()) is not None:
-                started = time.perf_counter()
-                results[i] = fn(items[i])
-                self._record(fn, "caller", started)
+                results[i] = self._run_here(fn, items[i])
         except BaseException as exc:  # noqa: BLE001
             with lock:
                 errors.append((i, exc))
@@ -120,10 +118,16 @@ class WorkerPool:
         if errors:
             raise min(errors, key=lambda e: e[0])[1]
         for i in sorted(returned):
-            results[i] = fn(items[i])
+            results[i] = self._run_here(fn, items[i])
         if self._failed:
             self.close()
         return results
+
+    def _run_here(self, fn: Callable, item):
+        started = time.perf_counter()
+        result = fn(item)
+        self._record(fn, "caller", started)
+        return result
 
     def _record(self, fn: Callable, who: str, started: float) -> None:
         if self.timeline is not None:
