@@ -2,7 +2,11 @@
 
 The whole dossier is written into a fresh temporary folder beside the target, then swapped in.
 An existing target is replaced only if it carries our marker file (so it is a previous build);
-anything else there is refused, not deleted.
+anything else there is refused, not deleted. An interrupted build (Ctrl-C, SIGTERM: see
+:mod:`dossier.interrupts`) removes its temporary folder and leaves the previous output as it
+was; a signal that comes while the finished folder is being swapped in waits until the swap is
+complete. Our folders are removed marker last, so that one whose removal was cut short (a killed
+process) is still recognisably ours and is removed by the next build.
 """
 
 from __future__ import annotations
@@ -14,9 +18,10 @@ import tempfile
 from pathlib import Path
 
 from .errors import OutputError
+from .interrupts import acknowledge, check, deferred, note_replaced
 
 MARKER = ".dossier-output"
-SEALED = "seal-ed25519.json"  # see dossier.integrity
+SEALED = "signatures/supplier-seal.json"  # see dossier.integrity.SUPPLIER_SEAL
 
 
 def refuse_sealed(out_dir: Path) -> None:
@@ -42,9 +47,11 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
     parent = out_dir.parent
     parent.mkdir(parents=True, exist_ok=True)
     _remove_stale_builds(parent, out_dir.name)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))
-    (tmp / MARKER).write_text("Made by dossier (a build in progress).\n", encoding="utf-8")
+    tmp: Path | None = None
     try:
+        with deferred():  # the folder never exists without its marker, nor without our knowing its name
+            tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.building-", dir=parent))
+            (tmp / MARKER).write_text("Made by dossier (a build in progress).\n", encoding="utf-8")
         for rel, data in sorted(files.items()):
             target = tmp / rel
             target.parent.mkdir(parents=True, exist_ok=True)
@@ -52,9 +59,14 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
         (tmp / MARKER).write_text("Made by dossier. This folder is replaced by the next build.\n", encoding="utf-8")
         for rel, data in (extra or {}).items():
             (tmp / rel).write_bytes(data)
-        _swap(tmp, out_dir)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
+        check()  # a signal whose exception something swallowed: nothing made after it is swapped in
+        with deferred():  # once begun, the swap runs to its end; a signal meanwhile acts afterwards
+            _swap(tmp, out_dir)
+            note_replaced(out_dir)
+    except BaseException as exc:
+        acknowledge(exc)  # an interruption has reached us: let this cleanup run to its end
+        if tmp is not None:
+            _remove_ours(tmp)  # gone already if it was swapped in
         raise
 
 
@@ -62,7 +74,30 @@ def _remove_stale_builds(parent: Path, name: str) -> None:
     """Remove half-written build folders that a killed build left behind (ours: they carry the marker)."""
     for stale in parent.glob(f".{name}.building-*"):
         if stale.is_dir() and (stale / MARKER).is_file():
-            shutil.rmtree(stale, ignore_errors=True)
+            _remove_ours(stale)
+
+
+def _remove_ours(folder: Path) -> None:
+    """Remove a folder of ours, its marker last: cut short, it is still recognisably ours."""
+    if not folder.is_dir() or folder.is_symlink():
+        return
+    for child in folder.iterdir():
+        if child.name == MARKER:
+            continue
+        if child.is_dir() and not child.is_symlink():
+            shutil.rmtree(child, ignore_errors=True)
+        else:
+            try:
+                child.unlink()
+            except OSError:
+                pass
+    if any(child.name != MARKER for child in folder.iterdir()):
+        return  # something could not be removed: keep the marker, the next build tries again
+    try:
+        (folder / MARKER).unlink(missing_ok=True)
+        folder.rmdir()
+    except OSError:
+        pass
 
 
 def _swap(new: Path, target: Path) -> None:
@@ -71,10 +106,14 @@ def _swap(new: Path, target: Path) -> None:
         return
     old = target.with_name(f".{target.name}.previous")
     if old.exists():
-        shutil.rmtree(old)  # left by an interrupted swap; it is ours (it was renamed from a marked build)
+        _remove_ours(old)  # left by an interrupted swap; it is ours (it was renamed from a marked build)
     os.replace(target, old)
-    os.replace(new, target)
-    shutil.rmtree(old, ignore_errors=True)
+    try:
+        os.replace(new, target)
+    except BaseException:
+        os.replace(old, target)  # put the previous output back where it was
+        raise
+    _remove_ours(old)
 
 
 def json_bytes(data) -> bytes:
