@@ -24,7 +24,7 @@ from markupsafe import Markup
 import weasyprint
 from weasyprint.urls import URLFetcher, URLFetcherResponse
 
-from . import __version__, axes
+from . import __version__, axes, pdf_archive
 from .cautions import CAUTIONS, CAUTIONS_ID
 from .condition import ConditionedRun, ConditioningAccount
 from .drift import DriftEstimate
@@ -412,21 +412,33 @@ def unlink_missing_anchors(html: bytes) -> bytes:
     return _ANCHOR_LINK.sub(plain, html)
 
 
+# Tagged PDF (structure tree: headings, tables, figures with their alternative text). Measured
+# on the demo (cold builds, CPU time of the whole process tree): see DEVELOPERS.md, "Benchmarks".
+PDF_TAGS = False
+
+
 def render_pdf(job: PdfJob) -> bytes:
     """Render one volume as a PDF/A-3u with its attachments.
 
-    Attachments carry the document date as their creation and modification date, so that the
-    same inputs give the same bytes.
+    Every date in it (Info, XMP, the attachments' and, through fontTools, the embedded fonts')
+    is the document date at 12:00 UTC, so that the same inputs give the same bytes.
     """
     fetcher = _BuildFetcher(job.resources)
-    document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher)
-    stamp = dt.datetime.combine(job.date, dt.time(12, 0), tzinfo=dt.timezone.utc)
-    files = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=name.replace("/", "_"),
-                                   description=f"{name} of {job.identifier} rev. {job.revision}",
-                                   created=stamp, modified=stamp, relationship="Data")
-             for name, data in sorted(job.attachments.items())]
-    pdf = document.write_pdf(pdf_identifier=f"{job.identifier} {job.volume.key}".encode("utf-8"),
-                             pdf_variant="pdf/a-3u", attachments=files, uncompressed_pdf=False)
+    stamp = pdf_archive.document_stamp(job.date)
+    options = dict(pdf_identifier=f"{job.identifier} {job.volume.key}".encode("utf-8"), pdf_variant="pdf/a-3u",
+                   uncompressed_pdf=False, pdf_tags=PDF_TAGS)
+    document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL,
+                               url_fetcher=fetcher).render(**options)
+    # The print frame gives these too; set here, because a project's own frame may not (and the
+    # Info dates and the XMP dates must agree, ISO 19005-1 §6.7.3).
+    document.metadata.created = document.metadata.modified = pdf_archive.xmp_date(stamp)
+    files = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=pdf_archive.attachment_name(name),
+                                   description=pdf_archive.attachment_description(name, job.identifier, job.revision),
+                                   created=stamp, modified=stamp, relationship=pdf_archive.relationship(name))
+             # the name tree's keys must be sorted (ISO 32000-1 §7.9.6): sort by the name written
+             for name, data in sorted(job.attachments.items(), key=lambda item: pdf_archive.attachment_name(item[0]))]
+    with pdf_archive.reproducible_fonts(stamp):
+        pdf = document.write_pdf(attachments=files, finisher=pdf_archive.ArchiveFinisher(stamp), **options)
     if fetcher.refused:
         raise StageError(f"the PDF {job.volume.filename} asked for resources outside this build, refused: "
                          + ", ".join(sorted(fetcher.refused)))
