@@ -1,70 +1,201 @@
-"""The archive edge: read a built dossier back, verify it, seal it, compare two of them, rebuild one.
+"""The archive edge: read a built dossier back, verify it, sign it, export it, compare two of
+them, rebuild one.
 
-Reading and the one write (the seal file, and key files for `keygen`) happen here; the checks
+Reading and the few writes (signature files, key files, an exported bag) happen here; the checks
 themselves are the pure functions of :mod:`dossier.integrity`.
 """
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import os
+import shutil
 import tempfile
-from dataclasses import dataclass
+import zipfile
+from dataclasses import dataclass, replace
 from pathlib import Path
 
-from . import integrity
-from .errors import UserError
+from . import __version__, integrity
+from .environment import ENVIRONMENT_NAME, differences, environment_record
+from .errors import StateError, UserError, VerifyError
 
 INPUTS = "inputs"  # the archived project inside an output folder
+RESULTS_NAME = "results.json"
+REPORT_NAME = "dossier.pdf"
+ATTACHED_MANIFEST = "integrity/manifest-sha256.txt"  # in the report PDF: every file but the PDF itself
+FONTS_NAME = "pdf-fonts.json"
+BOOKKEEPING = (".dossier-output", ".dossier-build-key")
 
-
-class VerifyError(UserError):
-    exit_code = 5
+__all__ = ["VerifyError", "read_folder", "verify", "seal", "countersign", "keygen", "export", "diff",
+           "rebuild_and_compare", "verify_report_pdf"]
 
 
 def read_folder(folder: Path) -> dict[str, bytes]:
-    """Every regular file under `folder` (relative POSIX path → bytes), the marker excluded."""
+    """Every regular file under `folder` (relative POSIX path → bytes), our bookkeeping excluded."""
     folder = Path(folder)
+    if not folder.exists():
+        raise UserError(f"{folder}: no such folder")
     if not folder.is_dir():
-        raise UserError(f"{folder}: not a folder")
+        raise UserError(f"{folder}: not a folder (expected a dossier output folder)")
     out = {}
     for p in sorted(folder.rglob("*")):
-        if p.is_file() and not p.is_symlink() and p.name not in (".dossier-output", ".dossier-build-key"):
-            out[p.relative_to(folder).as_posix()] = p.read_bytes()
+        if p.is_file() and not p.is_symlink() and p.name not in BOOKKEEPING:
+            try:
+                out[p.relative_to(folder).as_posix()] = p.read_bytes()
+            except OSError as exc:
+                raise UserError(f"{p}: cannot be read ({exc.strerror or exc})") from None
     return out
 
 
-def verify(folder: Path, public_key: Path | None = None) -> integrity.Report:
-    pem = Path(public_key).read_bytes() if public_key else None
-    return integrity.check(read_folder(folder), pem)
+def _identity(files: dict[str, bytes], where: Path) -> dict:
+    """The document block of results.json; a clear error if this is not a dossier output."""
+    if RESULTS_NAME not in files:
+        raise UserError(f"{where}: not a dossier output folder (no {RESULTS_NAME}); expected the folder "
+                        "`dossier build` wrote")
+    try:
+        doc = json.loads(files[RESULTS_NAME])["document"]
+        return {"number": str(doc["number"]), "revision": str(doc["revision"]), "status": str(doc["status"]),
+                "supplier": str(doc.get("supplier") or ""), "authors": list(doc.get("authors") or []),
+                "date": str(doc.get("date", ""))}
+    except (ValueError, KeyError, TypeError) as exc:
+        raise VerifyError(f"{where}/{RESULTS_NAME}: cannot be read as a dossier's results ({exc})") from None
 
 
-def seal(folder: Path, private_key: Path) -> str:
-    """Sign the folder's integrity manifest; only a released, intact, unsealed revision is sealed."""
+def _trusted_keys(public_keys) -> dict[str, bytes]:
+    out = {}
+    for p in public_keys or ():
+        try:
+            out[Path(p).name] = integrity.public_key_raw(Path(p).read_bytes())
+        except OSError as exc:
+            raise UserError(f"{p}: cannot read the public key ({exc.strerror or exc})") from None
+        except ValueError as exc:
+            raise UserError(f"{p}: expected an Ed25519 public key in PEM form; {exc}") from None
+    return out
+
+
+def verify(folder: Path, public_keys=()) -> integrity.Report:
+    """Check every file of a dossier folder against its manifest, and every signature."""
+    files = read_folder(folder)
+    trusted = _trusted_keys(public_keys)
+    if integrity.MANIFEST not in files:
+        return integrity.check(files, None, None)
+    try:
+        ident = _identity(files, Path(folder))
+    except VerifyError as exc:  # an altered results.json is reported with everything else
+        report = integrity.check(files, None, None, trusted)
+        return replace(report, problems=report.problems + (str(exc),))
+    return integrity.check(files, ident["number"], ident["revision"], trusted)
+
+
+def digest(folder: Path) -> tuple[str, dict]:
+    """The dossier's digest (SHA-256 of its manifest) and identity, after checking its files."""
+    files = read_folder(folder)
+    report = integrity.check(files, *_ids(files, folder))
+    if not report.files_ok:
+        raise VerifyError(f"{folder}: the files do not match the integrity manifest:\n  " + "\n  ".join(report.lines()))
+    return report.digest, _identity(files, Path(folder))
+
+
+def _ids(files, folder) -> tuple[str, str]:
+    if integrity.MANIFEST not in files:
+        raise UserError(f"{folder}: not a dossier output folder (no {integrity.MANIFEST})")
+    ident = _identity(files, Path(folder))
+    return ident["number"], ident["revision"]
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat()
+
+
+def _write_new(target: Path, data: bytes) -> None:
+    """Write a new file atomically; never replace an existing one."""
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=".signature-")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.link(tmp, target)  # fails if the target exists: a signature is never overwritten
+    except FileExistsError:
+        raise StateError(f"{target}: exists; a signature is never overwritten") from None
+    finally:
+        os.unlink(tmp)
+
+
+def _private_key(path: Path) -> bytes:
+    try:
+        return Path(path).read_bytes()
+    except OSError as exc:
+        raise UserError(f"{path}: cannot read the private key ({exc.strerror or exc})") from None
+
+
+def seal(folder: Path, private_key: Path, signer: str | None = None, organisation: str | None = None) -> str:
+    """The supplier's seal of a released, intact, unsealed revision; returns the key id."""
     folder = Path(folder)
     files = read_folder(folder)
-    report = integrity.check(files)
-    if not report.ok:
+    number, revision = _ids(files, folder)
+    report = integrity.check(files, number, revision)
+    if report.state == integrity.FAILED:
         raise VerifyError(f"{folder}: will not seal a dossier that fails verification:\n  " + "\n  ".join(report.lines()))
-    if integrity.SEAL in files:
-        raise VerifyError(f"{folder}: already sealed; a released revision is frozen")
-    results = json.loads(files.get("results.json", b"{}"))
-    status = results.get("document", {}).get("status")
-    if status != "released":
-        raise VerifyError(f"{folder}: status is {status!r}; only a released revision is sealed "
-                          "(set [signoff] status = \"released\" with a dated approver and rebuild)")
-    doc = results["document"]
+    if integrity.SUPPLIER_SEAL in files:
+        raise StateError(f"{folder}: already sealed ({integrity.SUPPLIER_SEAL}); a released revision is frozen")
+    ident = _identity(files, folder)
+    if ident["status"] != "released":
+        raise StateError(f"{folder}: status is {ident['status']!r}; only a released revision is sealed "
+                         "(set [signoff] status = \"released\" with a dated approver and rebuild)")
     try:
-        data = integrity.seal_bytes(files[integrity.MANIFEST], Path(private_key).read_bytes(), doc["number"],
-                                    doc["revision"])
-    except (OSError, ValueError) as exc:
+        data = integrity.sign_statement(
+            _private_key(private_key), role=integrity.SUPPLIER, statement="released", reason="",
+            signer=signer or (ident["authors"][0] if ident["authors"] else ""),
+            organisation=organisation if organisation is not None else ident["supplier"],
+            document=number, revision=revision, digest=report.digest, signed_at=_now())
+    except ValueError as exc:
         raise UserError(f"{private_key}: cannot sign with this key ({exc})") from None
-    target = folder / integrity.SEAL
-    fd, tmp = tempfile.mkstemp(dir=folder, prefix=".seal-")
-    with os.fdopen(fd, "wb") as fh:
-        fh.write(data)
-    os.replace(tmp, target)
+    _write_new(folder / integrity.SUPPLIER_SEAL, data)
     return json.loads(data)["key_id"]
+
+
+def countersign(private_key: Path, statement: str, reason: str, signer: str, organisation: str = "", *,
+                folder: Path | None = None, digest_hex: str | None = None, document: str | None = None,
+                revision: str | None = None, out: Path | None = None) -> Path:
+    """The customer approver's signature of the same digest the supplier sealed.
+
+    Given the dossier `folder`, the signature is checked against it and written into its
+    ``signatures/``; given only the `digest_hex` (with `document` and `revision`), it is written
+    to `out`, to be put into the dossier's ``signatures/`` folder. The key is only read here.
+    """
+    if statement not in integrity.APPROVER_STATEMENTS:
+        raise UserError(f"--statement: expected one of {', '.join(integrity.APPROVER_STATEMENTS)}; found {statement!r}")
+    if statement != "approved" and not reason.strip():
+        raise UserError(f"--reason: a statement '{statement}' needs a reason")
+    if not signer.strip():
+        raise UserError("--signer: the approver's name is needed")
+    if folder is not None:
+        folder = Path(folder)
+        files = read_folder(folder)
+        number, revision = _ids(files, folder)
+        report = integrity.check(files, number, revision)
+        if report.state == integrity.FAILED:
+            raise VerifyError(f"{folder}: will not countersign a dossier that fails verification:\n  "
+                              + "\n  ".join(report.lines()))
+        if not any(s.role == integrity.SUPPLIER for s in report.signatures):
+            raise StateError(f"{folder}: not sealed by the supplier; only a sealed, released revision is countersigned")
+        digest_hex, document = report.digest, number
+    elif not (digest_hex and document and revision):
+        raise UserError("countersign: give the dossier folder, or --digest with --document and --revision")
+    if len(digest_hex) != 64 or any(c not in "0123456789abcdef" for c in digest_hex):
+        raise UserError(f"--digest: expected 64 lower-case hexadecimal digits (the SHA-256 `dossier digest` prints); "
+                        f"found {digest_hex[:70]!r}")
+    try:
+        data = integrity.sign_statement(_private_key(private_key), role=integrity.APPROVER, statement=statement,
+                                        reason=reason.strip(), signer=signer.strip(), organisation=organisation,
+                                        document=document, revision=revision, digest=digest_hex, signed_at=_now())
+    except ValueError as exc:
+        raise UserError(f"{private_key}: cannot sign with this key ({exc})") from None
+    key = json.loads(data)["key_id"]
+    target = Path(out) if out else Path(folder) / integrity.SIGNATURES / f"approver-{key}.json"
+    _write_new(target, data)
+    return target
 
 
 def keygen(private_path: Path, public_path: Path) -> None:
@@ -72,11 +203,49 @@ def keygen(private_path: Path, public_path: Path) -> None:
     for p in (private_path, public_path):
         if Path(p).exists():
             raise UserError(f"{p}: exists; will not overwrite a key file")
+        if not Path(p).parent.is_dir():
+            raise UserError(f"{p}: the folder {Path(p).parent} does not exist")
     private, public = integrity.new_key_pair()
     fd = os.open(private_path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
     with os.fdopen(fd, "wb") as fh:
         fh.write(private)
     Path(public_path).write_bytes(public)
+
+
+def export(folder: Path, target: Path, as_zip: bool = False) -> Path:
+    """Write a BagIt bag (RFC 8493) of an intact dossier: a new folder, or a zip with the bag as
+    its one top folder. Nothing existing is overwritten."""
+    folder, target = Path(folder), Path(target)
+    files = read_folder(folder)
+    number, revision = _ids(files, folder)
+    report = integrity.check(files, number, revision)
+    if report.state == integrity.FAILED:
+        raise VerifyError(f"{folder}: will not export a dossier that fails verification:\n  " + "\n  ".join(report.lines()))
+    if target.exists():
+        raise UserError(f"{target}: exists; choose a new name (nothing was changed)")
+    ident = _identity(files, folder)
+    bag = integrity.bag_files(files, external_identifier=f"{number} rev. {revision}",
+                              source_organization=ident["supplier"], bagging_date=dt.date.today().isoformat(),
+                              software=f"dossier {__version__}")
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.export-", dir=target.parent))
+    try:
+        if as_zip:
+            top = target.stem
+            with zipfile.ZipFile(tmp / "bag.zip", "w", zipfile.ZIP_DEFLATED) as z:
+                for name, data in sorted(bag.items()):
+                    info = zipfile.ZipInfo(f"{top}/{name}", date_time=(1980, 1, 1, 0, 0, 0))
+                    info.compress_type = zipfile.ZIP_DEFLATED
+                    z.writestr(info, data)
+            os.replace(tmp / "bag.zip", target)
+        else:
+            for name, data in bag.items():
+                (tmp / "bag" / name).parent.mkdir(parents=True, exist_ok=True)
+                (tmp / "bag" / name).write_bytes(data)
+            os.replace(tmp / "bag", target)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+    return target
 
 
 @dataclass(frozen=True)
@@ -89,8 +258,18 @@ class Change:
 
 def diff(old: Path, new: Path) -> list[Change]:
     """What changed between two built dossiers: inputs, coefficients, metrics and verdicts."""
-    a = json.loads((Path(old) / "results.json").read_bytes())
-    b = json.loads((Path(new) / "results.json").read_bytes())
+    def results(folder: Path) -> dict:
+        path = Path(folder) / RESULTS_NAME
+        if not Path(folder).is_dir():
+            raise UserError(f"{folder}: no such folder (expected a dossier output folder)")
+        try:
+            return json.loads(path.read_bytes())
+        except FileNotFoundError:
+            raise UserError(f"{folder}: not a dossier output folder (no {RESULTS_NAME})") from None
+        except (OSError, ValueError) as exc:
+            raise UserError(f"{path}: cannot be read as a dossier's results ({exc})") from None
+
+    a, b = results(old), results(new)
 
     def index(results):
         out = {}
@@ -105,7 +284,10 @@ def diff(old: Path, new: Path) -> list[Change]:
             out[("verdict", f"{v['specimen']} {v['metric']} (target {v['target']})")] = v["verdict"]
         return out
 
-    ia, ib = index(a), index(b)
+    try:
+        ia, ib = index(a), index(b)
+    except (KeyError, TypeError, AttributeError) as exc:
+        raise UserError(f"{RESULTS_NAME}: not in the layout this version reads ({exc})") from None
     changes = []
     for key in sorted(set(ia) | set(ib)):
         if ia.get(key) != ib.get(key):
@@ -113,18 +295,147 @@ def diff(old: Path, new: Path) -> list[Change]:
     return changes
 
 
-def rebuild_and_compare(folder: Path, theme: str = "default") -> list[str]:
-    """Rebuild from the archived inputs and return the result files that differ (empty: reproduced)."""
+# --- rebuilding ---------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Rebuild:
+    """What a rebuild from the archived inputs reproduced."""
+
+    differing: tuple[str, ...]  # files whose bytes differ, each with what differs in it
+    environment: tuple[str, ...]  # versions (or the theme) that differ from the recorded ones
+
+    @property
+    def reproduced(self) -> bool:
+        return not self.differing
+
+    def lines(self) -> list[str]:
+        out = [f"environment differs: {e}" for e in self.environment]
+        out += [f"not reproduced: {d}" for d in self.differing]
+        out.append("rebuild: " + ("every file reproduced byte for byte" if self.reproduced
+                                  else f"{len(self.differing)} file(s) differ"))
+        return out
+
+
+def _recorded_environment(files: dict[str, bytes]) -> dict:
+    try:
+        return json.loads(files[ENVIRONMENT_NAME])
+    except (KeyError, ValueError):
+        return {}
+
+
+def _rebuild(inputs: dict[str, bytes], theme: str) -> dict[str, bytes]:
+    """Build the project held in `inputs` (relative path -> bytes) in a scratch folder."""
     from .build import build
 
-    folder = Path(folder)
-    inputs = folder / INPUTS
-    if not (inputs / "dossier.toml").is_file():
-        raise VerifyError(f"{folder}: no archived inputs ({INPUTS}/dossier.toml); cannot rebuild")
-    with tempfile.TemporaryDirectory() as tmp:
+    with tempfile.TemporaryDirectory(prefix="dossier-rebuild-") as tmp:
+        project = Path(tmp) / "project"
+        for name, data in inputs.items():
+            target = (project / name).resolve()
+            if not target.is_relative_to(project.resolve()):
+                raise VerifyError(f"{INPUTS}/{name}: an archived input outside the project; refusing to rebuild")
+            target.parent.mkdir(parents=True, exist_ok=True)
+            target.write_bytes(data)
+        if "dossier.toml" not in inputs:
+            raise VerifyError(f"no archived manifest ({INPUTS}/dossier.toml); cannot rebuild")
         out = Path(tmp) / "rebuilt"
-        build(inputs, out, theme, use_cache=False)  # never write a cache into the archive
-        old, new = read_folder(folder), read_folder(out)
-    skip = set(integrity.TAG_FILES)
-    names = sorted((set(old) | set(new)) - skip)
-    return [n for n in names if old.get(n) != new.get(n)]
+        build(project, out, theme, use_cache=False)  # never write a cache into the archive
+        return read_folder(out)
+
+
+def _compare(old: dict[str, bytes], new: dict[str, bytes], names) -> list[str]:
+    from .pdf_compare import pdf_difference
+
+    out = []
+    for name in sorted(names):
+        a, b = old.get(name), new.get(name)
+        if a == b:
+            continue
+        if a is None or b is None:
+            out.append(f"{name} ({'absent from the original' if a is None else 'not made by the rebuild'})")
+        elif name.endswith(".pdf"):
+            out.append(f"{name} ({pdf_difference(a, b)})")
+        else:
+            out.append(f"{name} (content differs)")
+    return out
+
+
+def rebuild_and_compare(folder: Path) -> Rebuild:
+    """Rebuild a dossier folder from its archived inputs, with its recorded theme, and compare
+    every file it holds (signatures aside) with the rebuilt ones."""
+    folder = Path(folder)
+    files = read_folder(folder)
+    _ids(files, folder)
+    inputs = {k[len(INPUTS) + 1:]: v for k, v in files.items() if k.startswith(INPUTS + "/")}
+    recorded = _recorded_environment(files)
+    theme = recorded.get("theme", "default")
+    env = differences(recorded, environment_record(theme)) if recorded else ["no environment record in the original"]
+    new = _rebuild(inputs, theme)
+    names = {n for n in set(files) | set(new) if integrity.is_listed(n) or n == integrity.MANIFEST}
+    return Rebuild(tuple(_compare(files, new, names)), tuple(env))
+
+
+# --- the report PDF on its own ------------------------------------------------------------------
+
+def _read_pdf(path: Path) -> tuple[bytes, dict[str, bytes]]:
+    from .pdf_archive import attachments
+
+    path = Path(path)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise UserError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    try:
+        return data, attachments(data)
+    except Exception as exc:  # noqa: BLE001 - pikepdf raises its own kinds for a damaged PDF
+        raise VerifyError(f"{path}: cannot be read as a PDF ({type(exc).__name__}: {exc})") from None
+
+
+@dataclass(frozen=True)
+class PdfReport:
+    """What the report PDF's own attachments say about themselves."""
+
+    attached: int
+    missing: tuple[str, ...]  # listed in the attached manifest, not attached (the site aside)
+    added: tuple[str, ...]
+    altered: tuple[str, ...]
+    not_carried: int  # site files: listed, not meant to be in the PDF
+    problems: tuple[str, ...] = ()
+
+    @property
+    def ok(self) -> bool:
+        return not (self.missing or self.added or self.altered or self.problems)
+
+    def lines(self) -> list[str]:
+        out = [f"missing from the PDF: {p}" for p in self.missing] + [f"added: {p}" for p in self.added]
+        out += [f"altered: {p}" for p in self.altered] + list(self.problems)
+        out.append(f"{self.attached} attached file(s) checked against the attached {ATTACHED_MANIFEST}; "
+                   f"{self.not_carried} site file(s) are listed there but carried only by the output folder; "
+                   "the PDF itself is covered by the folder's manifest and its seal, not by its own attachments")
+        return out
+
+
+def verify_report_pdf(path: Path) -> PdfReport:
+    """Check every file the report PDF carries against the integrity manifest it carries."""
+    _, attached = _read_pdf(path)
+    if ATTACHED_MANIFEST not in attached:
+        return PdfReport(len(attached), (), (), (), 0, (f"{path}: carries no {ATTACHED_MANIFEST}; "
+                                                        "not a dossier report, or made by an older version",))
+    listed, problems = integrity.parse_manifest(attached[ATTACHED_MANIFEST], ATTACHED_MANIFEST)
+    carried = {n: d for n, d in attached.items() if n != ATTACHED_MANIFEST}
+    expected = {n for n in listed if not n.startswith("site/")}
+    return PdfReport(len(carried), tuple(sorted(expected - set(carried))), tuple(sorted(set(carried) - set(listed))),
+                     tuple(sorted(n for n in set(carried) & set(listed) if integrity.sha256(carried[n]) != listed[n])),
+                     len(set(listed) - expected), tuple(problems))
+
+
+def rebuild_report_pdf(path: Path) -> Rebuild:
+    """Rebuild from the inputs the report PDF carries and compare with what it carries (and the
+    rebuilt report with the PDF itself)."""
+    data, attached = _read_pdf(path)
+    inputs = {k[len(INPUTS) + 1:]: v for k, v in attached.items() if k.startswith(INPUTS + "/")}
+    recorded = _recorded_environment(attached)
+    theme = recorded.get("theme", "default")
+    env = differences(recorded, environment_record(theme)) if recorded else ["no environment record in the PDF"]
+    new = _rebuild(inputs, theme)
+    old = {**{n: d for n, d in attached.items() if n != ATTACHED_MANIFEST}, REPORT_NAME: data}
+    return Rebuild(tuple(_compare(old, new, set(old))), tuple(env))

@@ -18,12 +18,13 @@ from .condition import UNUSABLE, ConditionedRun, OperatingPoint, condition_run
 from .drift import DriftEstimate, correct_points, estimate_drift
 from .errors import StageError
 from .fit import ChannelFit, fit_channel, leave_one_load_out
-from .archive import INPUTS
+from .archive import ATTACHED_MANIFEST, FONTS_NAME, INPUTS
 from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
 from .freshness import BUILD_KEY, build_key, output_is_current, theme_files
 from .ingest import read_project_files, read_run
-from .integrity import tag_files
-from .provenance import provenance_bytes, provenance_record
+from .environment import ENVIRONMENT_NAME, environment_record
+from .integrity import manifest_bytes, with_manifest, sha256
+from .provenance import Evidence, provenance_bytes, provenance_record
 from .manifest import FitSettings, Manifest, MetricSettings, load_manifest
 from .acceptance import verdicts as judge_targets
 from .comparison import compare, recommend
@@ -120,10 +121,11 @@ def build(project_dir: Path, out_dir: Path | None = None, theme_name: str = "def
     with WorkerPool(workers or os.cpu_count() or 1) as pool:
         if cache.folder is None or not cache.folder.is_dir():
             pool.warm_up()  # nothing cached: every stage has work for the workers
-        return _build(manifest, project_dir, out_dir, theme, theme_bytes, project_files, key, cache, pool)
+        return _build(manifest, project_dir, out_dir, theme, theme_name, theme_bytes, project_files, key, cache, pool)
 
 
-def _build(manifest, project_dir, out_dir, theme, theme_bytes, project_files, key, cache, pool) -> BuildSummary:
+def _build(manifest, project_dir, out_dir, theme, theme_name, theme_bytes, project_files, key, cache,
+           pool) -> BuildSummary:
     """The recipe proper: every stage in order, then one write."""
     manifest, conditioned = check(project_dir, cache, project_files)
     measured = [p for c in conditioned for p in c.points]
@@ -158,28 +160,43 @@ def _build(manifest, project_dir, out_dir, theme, theme_bytes, project_files, ke
     all_fits = [f for m in models for f in m.channels]
     results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
                              recommendation, fitments)
-    provenance = provenance_bytes(provenance_record(manifest, manifest.sha256, conditioned, models, metrics))
+    evidence = Evidence(tuple(conditioned), tuple(points), tuple(models), tuple(metrics), drift,
+                        tuple(offset_splits), tuple(judged), tuple(standings), recommendation, tuple(fitments),
+                        {name: sha256(data) for name, data in project_files.items()})
+    provenance = provenance_bytes(provenance_record(manifest, evidence))
     data_files = {RESULTS_NAME: json_bytes(results), PROVENANCE_NAME: provenance,
+                  ENVIRONMENT_NAME: json_bytes(environment_record(theme_name)),
                   **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
     env = make_environment(theme, manifest.project_dir / "templates",
                            cache.folder / "templates" if cache.folder else None)
     site = render_site(ctx, env, theme, data_files)
     templates = {**theme_bytes, **{k: v for k, v in project_files.items() if k.startswith("templates/")}}
     annexes = render_volumes(ANNEXES, facts, env, site, templates, cache, pool)
-    report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool, {**data_files, **annexes})
     archived = {f"{INPUTS}/{k}": v for k, v in project_files.items()}
+    # The report carries every other file of the dossier but the site, and the integrity manifest
+    # of all of them, so that the PDF alone can be checked and rebuilt from.
+    carried = {**data_files, **annexes, **archived}
+    others = {**{f"site/{k}": v for k, v in site.items()}, **carried}
+    report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool,
+                            {**carried, ATTACHED_MANIFEST: manifest_bytes(others)})
 
     # Start writing files now that all data is gathered.
-    files = {f"site/{k}": v for k, v in site.items()}
-    files.update(report)
-    files.update(annexes)
-    files.update(data_files)
-    files.update(archived)
-    files.update(tag_files(files, manifest.document.number, manifest.document.revision))
+    files = {**others, **report}
+    files[FONTS_NAME] = json_bytes(embedded_font_record({**annexes, **report}))
+    files = with_manifest(files)
     write_dossier(out_dir, files, extra={BUILD_KEY: (key + "\n").encode()})
     cache.prune()
     return BuildSummary(out_dir, len(files), len(all_fits), len(metrics), cache_hits=cache.hits,
                         cache_misses=cache.misses)
+
+
+def embedded_font_record(pdfs: dict[str, bytes]) -> dict:
+    """The fonts each PDF volume embedded (name, version, SHA-256 of the embedded program)."""
+    from dataclasses import asdict
+
+    from .pdf_archive import embedded_fonts
+
+    return {name: [asdict(f) for f in embedded_fonts(data)] for name, data in sorted(pdfs.items())}
 
 
 def nominal_load_n(manifest: Manifest) -> float:

@@ -3,8 +3,9 @@
 A result is stored under the SHA-256 of everything it depends on: the stage's inputs (arrays,
 dataclasses, settings, bytes) and the code version (a hash of the package's own source files).
 A changed input therefore gives a different key and can never reuse a stale result. Entries are
-pickles written atomically into ``PROJECT/.dossier-cache/``; a damaged entry is ignored and
-recomputed. The cache only ever holds our own results: deleting the folder is always safe.
+pickles written atomically into ``PROJECT/.dossier-cache/`` (an interrupted write leaves no
+temporary file); a damaged entry is ignored and recomputed. The cache only ever holds our own
+results: deleting the folder is always safe.
 """
 
 from __future__ import annotations
@@ -22,6 +23,8 @@ from typing import Any, Callable
 
 import numpy as np
 
+from .interrupts import acknowledge, check, deferred
+
 CACHE_DIR = ".dossier-cache"
 BUDGET_BYTES = 500 * 1024 * 1024  # above this, the least recently used entries are removed
 
@@ -36,8 +39,11 @@ MISSING = _Missing()
 
 @lru_cache(maxsize=1)
 def code_version() -> str:
-    """SHA-256 over the package's source files: any code change invalidates every entry."""
-    h = hashlib.sha256()
+    """SHA-256 over the package's source files and the versions of the software that shapes the
+    output (:mod:`dossier.environment`): any code change or upgrade invalidates every entry."""
+    from .environment import software, text_libraries
+
+    h = hashlib.sha256(repr((sorted(software().items()), sorted(text_libraries().items()))).encode())
     for p in sorted(Path(__file__).parent.rglob("*.py")):
         h.update(p.name.encode())
         h.update(p.read_bytes())
@@ -149,20 +155,33 @@ class Cache:
         return value
 
     def put(self, key: str, value: Any) -> None:
+        check()  # a signal whose exception the computation swallowed: never store what it made
         if self.folder is not None:
             self._store(key, value)
 
     def _store(self, key: str, value: Any) -> None:
         target = self.folder / key[:2] / f"{key}.pkl"
+        tmp = None
         try:
             target.parent.mkdir(parents=True, exist_ok=True)
-            fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=".tmp-")
+            with deferred():  # the temporary file never exists without our knowing its name
+                fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=".tmp-")
             with os.fdopen(fd, "wb") as fh:
                 pickle.dump(value, fh, protocol=pickle.HIGHEST_PROTOCOL)
             os.replace(tmp, target)
+            tmp = None
             self._used.add(target)
         except OSError:
             pass  # a cache that cannot be written only costs time
+        except BaseException as exc:
+            acknowledge(exc)  # an interruption has reached us: let the cleanup below run to its end
+            raise
+        finally:
+            if tmp is not None:  # not stored (a full disk, Ctrl-C, SIGTERM): leave no temporary file
+                try:
+                    os.unlink(tmp)
+                except OSError:
+                    pass
 
     def prune(self, budget_bytes: int = BUDGET_BYTES) -> int:
         """Keep the cache under `budget_bytes`: remove the least recently used entries (never one

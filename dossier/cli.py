@@ -1,9 +1,11 @@
-"""The command line: ``dossier build``, ``dossier check``.
+"""The command line: build, check, verify, digest, seal, countersign, export, keygen, diff.
 
-Exit codes (documented in the README): 0 success; 2 bad command line; 3 manifest or rig data
-rejected; 4 a stage could not produce a result it stands behind, or the output folder is not
-ours to replace; 5 verification failed (or a dossier that fails it was to be sealed);
-70 internal error (a bug). User errors print without a traceback.
+Exit codes (documented in the README and :mod:`dossier.errors`): 0 success; 2 bad command line;
+3 manifest, rig data or another input rejected; 4 a stage could not produce a result it stands
+behind, or the output folder is not ours to replace; 5 verification failed; 6 the dossier's
+state does not allow this (sealing a draft); 7 intact, but a signer was not checked against a
+trusted key; 70 internal error (a bug); 130 and 143 stopped by SIGINT (Ctrl-C) or SIGTERM.
+User errors print without a traceback.
 """
 
 from __future__ import annotations
@@ -69,50 +71,122 @@ def check(project: Path) -> None:
 
 
 @cli.command()
-@click.argument("out", type=click.Path(path_type=Path))
-@click.option("--public-key", type=click.Path(path_type=Path), default=None,
-              help="PEM file of the Ed25519 public key the seal must have been made with.")
-@click.option("--rebuild", is_flag=True, help="Also rebuild from the archived inputs and compare the results.")
-def verify(out: Path, public_key: Path | None, rebuild: bool) -> None:
-    """Check a built dossier OUT: every file against its integrity manifest, and its seal."""
-    from .archive import VerifyError, rebuild_and_compare
-    from .archive import verify as run_verify
+@click.argument("target", type=click.Path(path_type=Path))
+@click.option("--public-key", "public_keys", type=click.Path(path_type=Path), multiple=True,
+              help="PEM file of an Ed25519 public key you trust (the supplier's, the approver's); repeat for each.")
+@click.option("--rebuild", is_flag=True, help="Also rebuild from the archived inputs and compare every file.")
+def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
+    """Check a built dossier TARGET (its folder, or its report PDF alone).
 
-    report = run_verify(out, public_key)
+    A folder: every file against manifest-sha256.txt and every signature in signatures/. A report
+    PDF: every file it carries against the integrity manifest it carries. Exit 0 when everything
+    holds, 5 when something does not, 7 when intact but a signature's key was not among --public-key.
+    """
+    from . import archive, integrity
+    from .errors import UncheckedError, VerifyError
+
+    if target.is_file() and target.suffix.lower() == ".pdf":
+        pdf = archive.verify_report_pdf(target)
+        for line in pdf.lines():
+            click.echo(line)
+        rebuilt = archive.rebuild_report_pdf(target) if rebuild and pdf.ok else None
+        for line in rebuilt.lines() if rebuilt else ():
+            click.echo(line)
+        if not pdf.ok or (rebuilt and not rebuilt.reproduced):
+            raise VerifyError(f"{target}: verification failed")
+        click.echo(f"{target}: every file it carries matches its attached integrity manifest")
+        return
+    report = archive.verify(target, public_keys)
     for line in report.lines():
         click.echo(line)
-    differing = []
-    if rebuild:
-        differing = rebuild_and_compare(out)
-        for name in differing:
-            click.echo(f"not reproduced: {name}")
-        click.echo("rebuild: " + ("results reproduced byte for byte" if not differing else
-                                  f"{len(differing)} file(s) differ"))
-    if not report.ok or differing:
-        raise VerifyError(f"{out}: verification failed")
-    click.echo(f"{out}: all files match the integrity manifest")
+    rebuilt = archive.rebuild_and_compare(target) if rebuild and report.files_ok else None
+    for line in rebuilt.lines() if rebuilt else ():
+        click.echo(line)
+    if report.state == integrity.FAILED or (rebuilt and not rebuilt.reproduced):
+        raise VerifyError(f"{target}: verification failed")
+    if report.state == integrity.UNCHECKED:
+        raise UncheckedError(f"{target}: the files are intact and the signatures consistent, but not every signer "
+                             "was checked: pass --public-key with the public key of each signer you trust")
+    click.echo(f"{target}: all files match the integrity manifest"
+               + ("; every signature checked against a key given" if report.signatures else ""))
 
 
 @cli.command()
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--private-key", type=click.Path(path_type=Path), required=True, help="PEM file of the Ed25519 private key.")
-def seal(out: Path, private_key: Path) -> None:
-    """Sign the integrity manifest of a released dossier OUT (the key is never written into OUT)."""
+@click.option("--private-key", type=click.Path(path_type=Path), required=True,
+              help="PEM file of the supplier's Ed25519 private key (read, never copied).")
+@click.option("--signer", default=None, help="Name of the person sealing (default: the first author).")
+@click.option("--organisation", default=None, help="Their organisation (default: the supplier).")
+def seal(out: Path, private_key: Path, signer: str | None, organisation: str | None) -> None:
+    """Seal a released dossier OUT as the supplier: sign its digest (then it is frozen)."""
     from .archive import seal as run_seal
 
-    key_id = run_seal(out, private_key)
-    click.echo(f"{out}: sealed with key {key_id}")
+    key_id = run_seal(out, private_key, signer, organisation)
+    click.echo(f"{out}: sealed with key {key_id} (signatures/supplier-seal.json)")
+
+
+@cli.command()
+@click.argument("out", type=click.Path(path_type=Path))
+def digest(out: Path) -> None:
+    """Print the digest of a built dossier OUT, the value an approver countersigns."""
+    from .archive import digest as run_digest
+
+    value, ident = run_digest(out)
+    click.echo(f"{value}  {ident['number']} rev. {ident['revision']} ({ident['status']})")
+
+
+@cli.command()
+@click.argument("out", type=click.Path(path_type=Path), required=False)
+@click.option("--private-key", type=click.Path(path_type=Path), required=True,
+              help="PEM file of the approver's own Ed25519 private key (read, never copied).")
+@click.option("--statement", type=click.Choice(["approved", "approved with deviation", "rejected"]), required=True,
+              help="What the approver states about this revision.")
+@click.option("--reason", default="", help="Why (required for a deviation or a rejection).")
+@click.option("--signer", required=True, help="The approver's name.")
+@click.option("--organisation", default="", help="The approver's organisation.")
+@click.option("--digest", "digest_hex", default=None,
+              help="Countersign this digest (from `dossier digest`) instead of a dossier folder; needs --document, --revision and --signature-out.")
+@click.option("--document", default=None, help="With --digest: the document number.")
+@click.option("--revision", default=None, help="With --digest: the revision.")
+@click.option("--signature-out", type=click.Path(path_type=Path), default=None,
+              help="With --digest: where to write the signature file (then put it into the dossier's signatures/).")
+def countersign(out: Path | None, private_key: Path, statement: str, reason: str, signer: str, organisation: str,
+                digest_hex: str | None, document: str | None, revision: str | None,
+                signature_out: Path | None) -> None:
+    """Countersign a sealed dossier OUT as the customer's approver, with your own key."""
+    from .archive import countersign as run_countersign
+    from .errors import UserError as _UserError
+
+    if (out is None) == (digest_hex is None):
+        raise _UserError("countersign: give either the dossier folder OUT or --digest (not both)")
+    if digest_hex is not None and signature_out is None:
+        raise _UserError("--signature-out: needed with --digest (where to write the signature file)")
+    path = run_countersign(private_key, statement, reason, signer, organisation, folder=out, digest_hex=digest_hex,
+                           document=document, revision=revision, out=signature_out)
+    click.echo(f"countersigned ({statement}): {path}")
+
+
+@cli.command()
+@click.argument("out", type=click.Path(path_type=Path))
+@click.argument("bag", type=click.Path(path_type=Path))
+@click.option("--zip", "as_zip", is_flag=True, help="Write the bag as one zip file instead of a folder.")
+def export(out: Path, bag: Path, as_zip: bool) -> None:
+    """Export a built dossier OUT as a BagIt bag (RFC 8493) at BAG, for an archive intake."""
+    from .archive import export as run_export
+
+    click.echo(f"bag written: {run_export(out, bag, as_zip)}")
 
 
 @cli.command()
 @click.argument("private_key", type=click.Path(path_type=Path))
 @click.argument("public_key", type=click.Path(path_type=Path))
 def keygen(private_key: Path, public_key: Path) -> None:
-    """Create an Ed25519 key pair for sealing (PEM files; never overwrites)."""
+    """Create an Ed25519 key pair for signing (PEM files; never overwrites)."""
     from .archive import keygen as run_keygen
 
     run_keygen(private_key, public_key)
-    click.echo(f"private key: {private_key} (keep it out of any dossier folder)\npublic key: {public_key}")
+    click.echo(f"private key: {private_key} (keep it on your machine, out of any dossier folder)\n"
+               f"public key: {public_key} (give it to whoever verifies your signatures)")
 
 
 @cli.command()
@@ -129,26 +203,47 @@ def diff(old: Path, new: Path) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    try:
-        cli.main(args=argv, prog_name="dossier", standalone_mode=False)
-    except click.exceptions.Abort:
-        click.echo("aborted", err=True)
-        return 1
-    except click.ClickException as exc:
-        exc.show()
-        return exc.exit_code
-    except UserError as exc:
-        click.echo(f"error: {exc}", err=True)
-        return exc.exit_code
-    except Exception:  # noqa: BLE001 - the last line of defence
-        click.echo("internal error (a bug in dossier; please report it with the text below):", err=True)
-        click.echo(traceback.format_exc(), err=True)
-        return EXIT_INTERNAL
-    return 0
+    # Ctrl-C and SIGTERM raise interrupts.Interrupted: the build cleans up on its way out, and
+    # here it ends with one line and exit 130 or 143, without a traceback
+    from . import interrupts
+
+    args = sys.argv[1:] if argv is None else list(argv)
+    command = next((a for a in args if not a.startswith("-")), None)
+    guard = interrupts.Guard()
+    with guard:
+        try:
+            try:
+                cli.main(args=argv, prog_name="dossier", standalone_mode=False)
+            except click.exceptions.Abort as exc:
+                if isinstance(exc.__cause__, KeyboardInterrupt):  # click's own name for a Ctrl-C
+                    raise exc.__cause__ from None
+                click.echo("aborted", err=True)
+                return 1
+            except click.ClickException as exc:
+                exc.show()
+                return exc.exit_code
+            except UserError as exc:
+                click.echo(f"error: {exc}", err=True)
+                return exc.exit_code
+            except Exception:  # noqa: BLE001 - the last line of defence
+                click.echo("internal error (a bug in dossier; please report it with the text below):", err=True)
+                click.echo(traceback.format_exc(), err=True)
+                return EXIT_INTERNAL
+            return 0
+        except (interrupts.Interrupted, KeyboardInterrupt) as exc:
+            interrupts.acknowledge(exc)
+            click.echo(guard.message(command), err=True)
+            return interrupts.exit_code(exc)
 
 
 
 
 def run() -> None:
     """Console entry point."""
-    sys.exit(main())
+    code = main()
+    from . import interrupts
+
+    interrupts.ignore()  # the process ends here: a late Ctrl-C must not print a traceback at shutdown
+    if code in interrupts.EXIT_CODES.values():
+        interrupts.leave(code)  # cleaned up already: skip the second it takes to free the whole heap
+    sys.exit(code)

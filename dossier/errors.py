@@ -12,7 +12,12 @@ EXIT_OK = 0
 EXIT_USAGE = 2  # click's own code for a bad command line
 EXIT_INPUT = 3  # manifest or rig data rejected
 EXIT_BUILD = 4  # a stage could not produce a trustworthy result (e.g. a fit failed)
+EXIT_VERIFY = 5  # verification failed: a file added, removed or altered, a bad signature, a rebuild that differs
+EXIT_STATE = 6  # the dossier is not in a state that allows this (sealing a draft, countersigning an unsealed one)
+EXIT_UNCHECKED = 7  # intact, but a signature's key was not checked against a key the user trusts
 EXIT_INTERNAL = 70  # a bug: please report it
+EXIT_SIGINT = 130  # stopped by Ctrl-C (SIGINT): 128 + 2, the shells' convention
+EXIT_SIGTERM = 143  # stopped by SIGTERM: 128 + 15
 
 
 class UserError(Exception):
@@ -66,3 +71,21 @@ class OutputError(UserError):
     """The output folder cannot be written without risking the user's own files."""
 
     exit_code = EXIT_BUILD
+
+
+class VerifyError(UserError):
+    """Verification failed."""
+
+    exit_code = EXIT_VERIFY
+
+
+class StateError(UserError):
+    """The dossier's state does not allow what was asked (e.g. sealing a draft)."""
+
+    exit_code = EXIT_STATE
+
+
+class UncheckedError(UserError):
+    """The files are intact, but nobody checked who signed them."""
+
+    exit_code = EXIT_UNCHECKED

@@ -9,11 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .archive import read_folder
+from .archive import verify
 from .cache import digest
 from .errors import UserError
 from .ingest import read_project_files
-from .integrity import check as integrity_check
 from .manifest import load_manifest
 from .output import refuse_sealed
 from .theme import Theme, load_theme
@@ -36,7 +35,7 @@ def output_is_current(out_dir: Path, key: str) -> bool:
     try:
         if (Path(out_dir) / BUILD_KEY).read_text(encoding="utf-8").strip() != key:
             return False
-        return integrity_check(read_folder(out_dir)).ok
+        return verify(out_dir).files_ok
     except (OSError, UserError):
         return False
 

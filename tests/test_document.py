@@ -142,7 +142,10 @@ def test_draft_mark_and_released_signoff(tmp_path):
     released = make_project(tmp_path / "r", extra=RELEASED)
     build(released, tmp_path / "or")
     html = (tmp_path / "or/site/index.html").read_text(encoding="utf-8")
-    assert "not released" not in html and "Approved by A. Approver" in html and "2026-11-25" in html
+    assert "not released" not in html and "A. Approver" in html and "2026-11-25" in html
+    # the manifest's line is the supplier's word: until the approver countersigns, every place that
+    # names the approver says the customer's approval is not signed
+    assert "Approved by" not in html and html.count("ustomer approval: not signed") == 2
     unsigned = make_project(tmp_path / "u", extra='\n[signoff]\nstatus = "released"\n[[signoff.people]]\nname = "X"\nrole = "approver"\n')
     with pytest.raises(UserError, match="a released revision needs an approver with a date"):
         build(unsigned, tmp_path / "ou")

@@ -18,10 +18,8 @@ DEMO = ROOT / "demo_project"
 
 
 @pytest.fixture(scope="module")
-def demo_out(tmp_path_factory):
-    out = tmp_path_factory.mktemp("e2e") / "out"
-    build(DEMO, out, use_cache=False)  # leave no cache in the source tree
-    return out
+def demo_out(demo_builds):
+    return demo_builds["seed1"]  # built in a process of its own, without a cache (see conftest)
 
 
 def test_site_pages_work_from_disk(demo_out):
@@ -147,3 +145,53 @@ def test_demo_drift_and_offsets_match_the_generator(demo_out):
     verdicts = {i["file"]: i["verdict"] for i in results["inputs"]}
     assert verdicts["rig/HR-4470_CTL-1_1000.csv"] == "sound"
     assert verdicts["rig/HR-4471_PRD-A.csv"] == "usable with findings"  # 8 kN above the rated load
+
+
+def test_every_number_derives_from_the_rig_files_and_the_drift_from_the_control_runs(demo_out):
+    """W3C PROV (PROV-DM): follow wasDerivedFrom from each result back to the rig files' SHA-256."""
+    from prov.model import ProvDocument
+
+    text = (demo_out / "provenance.json").read_text(encoding="utf-8")
+    assert ProvDocument.deserialize(content=text, format="json").get_records()  # parses as PROV-JSON
+    raw = json.loads(text)
+    derived = {}
+    for r in raw["wasDerivedFrom"].values():
+        derived.setdefault(r["prov:generatedEntity"], set()).add(r["prov:usedEntity"])
+
+    def sources(entity):
+        """The rig files (labels) an entity derives from, through any chain."""
+        seen, todo, files = set(), [entity], set()
+        while todo:
+            e = todo.pop()
+            if e in seen:
+                continue
+            seen.add(e)
+            attrs = raw["entity"].get(e, {})
+            if "d:sha256" in attrs and attrs["prov:label"].startswith("rig/"):
+                files.add(attrs["prov:label"])
+            todo.extend(derived.get(e, ()))
+        return files
+
+    results = json.loads((demo_out / "results.json").read_text(encoding="utf-8"))
+    files_of = {}
+    for i in results["inputs"]:
+        files_of.setdefault(i["specimen"], set()).add(i["file"])
+    control_files = {i["file"] for i in results["inputs"] if i["specimen"] == "CTL-1"}
+    kinds = {"metric": 0, "coefficient": 0, "verdict": 0, "difference": 0, "fitment": 0, "standing": 0}
+    for ident in raw["entity"]:
+        kind = ident.split(":", 1)[1].split("-", 1)[0]
+        if kind not in kinds:
+            continue
+        kinds[kind] += 1
+        found = sources(ident)
+        assert found, ident
+        if kind in ("metric", "coefficient"):
+            specimen = ident.split("-")[1].replace("_", "-")
+            mine = {f for f in files_of.get(specimen, ()) }
+            assert found & mine, ident
+            if specimen != "CTL-1":  # drift-corrected: also from the control tire's runs that scaled it
+                assert found & control_files, ident
+    assert all(kinds.values()), kinds
+    corrections = [e for i, e in raw["entity"].items() if i.startswith("d:drift_corrected-")]
+    assert len(corrections) == len(results["drift"]["corrections"]) == 13
+    assert {"d:recommendation", "d:narrative-summary-rendered"} <= raw["entity"].keys()
