@@ -412,9 +412,11 @@ def unlink_missing_anchors(html: bytes) -> bytes:
     return _ANCHOR_LINK.sub(plain, html)
 
 
-# Tagged PDF (structure tree: headings, tables, figures with their alternative text). Measured
-# on the demo (cold builds, CPU time of the whole process tree): see DEVELOPERS.md, "Benchmarks".
-PDF_TAGS = False
+# Tagged PDF (structure tree: headings, tables, figures with their alternative text), on because
+# it is cheap: a cold demo build, one process, counted by valgrind --tool=cachegrind
+# --trace-children=yes, ran 175.7e9 instructions untagged and 182.7e9 tagged (+4.0 %; the
+# specimens annex alone +8.8 %, the results annex +3.8 %).
+PDF_TAGS = True
 
 
 def render_pdf(job: PdfJob) -> bytes:

@@ -157,34 +157,36 @@ def test_ctrl_c_while_the_fork_server_imports_prints_no_traceback(previous, tmp_
 def test_ctrl_c_while_writing_removes_the_half_written_folder(previous, tmp_path):
     # Hold the build just before it swaps its finished folder in (the last check before the
     # swap sleeps), so that the signal finds the temporary folder complete beside the output.
-    project, out = _copy(previous, tmp_path)
-    before = _files(out)
     prelude = ("import time, dossier.output as o\n"
                "real_check = o.check\n"
                "o.check = lambda: (time.sleep(300), real_check())\n")
-    proc = _start(tmp_path, project, out, prelude)
 
-    def folder_written() -> bool:
+    def folder_written(project) -> bool:
         return any(FINAL_MARKER in (p / ".dossier-output").read_text(encoding="utf-8")
                    for p in tmp_path.glob(".out.building-*") if (p / ".dossier-output").is_file())
 
-    _wait_until(proc, folder_written, "the temporary output folder was complete")
-    _send(proc, signal.SIGINT)
-    _assert_stopped(proc, signal.SIGINT, out, before, project)
+    _interrupt_held_build(previous, tmp_path, prelude, folder_written, "the temporary output folder was complete",
+                          signal.SIGINT)
+
+
+def _interrupt_held_build(previous, tmp_path, prelude, ready, what, sig):
+    """Start a build held at some step by `prelude`, signal it once `ready(project)`, check it stopped."""
+    project, out = _copy(previous, tmp_path)
+    before = _files(out)
+    proc = _start(tmp_path, project, out, prelude)
+    _wait_until(proc, lambda: ready(project), what)
+    _send(proc, sig)
+    _assert_stopped(proc, sig, out, before, project)
 
 
 def test_sigterm_while_a_cache_entry_is_written_removes_its_temporary_file(previous, tmp_path):
     # Hold the first cache write half-way (its pickling sleeps), so that SIGTERM finds the
     # temporary file in the cache folder.
-    project, out = _copy(previous, tmp_path)
-    before = _files(out)
     prelude = ("import pickle, time, types, dossier.cache as c\n"
                "c.pickle = types.SimpleNamespace(loads=pickle.loads, HIGHEST_PROTOCOL=pickle.HIGHEST_PROTOCOL,\n"
                "                                 dump=lambda *a, **k: time.sleep(300))\n")
-    proc = _start(tmp_path, project, out, prelude)
-    _wait_until(proc, lambda: any((project / ".dossier-cache").rglob(".tmp-*")), "a cache entry was being written")
-    _send(proc, signal.SIGTERM)
-    _assert_stopped(proc, signal.SIGTERM, out, before, project)
+    _interrupt_held_build(previous, tmp_path, prelude, lambda project: any((project / ".dossier-cache").rglob(".tmp-*")),
+                          "a cache entry was being written", signal.SIGTERM)
 
 
 def test_a_finished_build_leaves_no_process_behind(previous, tmp_path):

@@ -417,3 +417,25 @@ def test_the_path_comes_back_even_when_the_separator_is_in_it():
         assert original_path(described, attachment_name(name)) == name
     with pytest.raises(ValueError, match="does not start with the relative path"):
         original_path("results.json of T-0001", "results.json")
+
+
+@pytest.mark.parametrize("name", VOLUMES)
+def test_volumes_are_tagged_with_headings_tables_and_described_figures(opened, name):
+    pdf = opened[name]
+    # ISO 32000-1 §14.7 and §14.8 (logical structure, tagged PDF): a structure tree, /MarkInfo
+    # /Marked true; ISO 32000-1 §14.9.3: a Figure element carries its alternative text in /Alt
+    assert "/StructTreeRoot" in pdf.Root and bool(pdf.Root.MarkInfo.Marked)
+    kinds, figures = set(), []
+
+    def walk(element, depth=0):
+        if isinstance(element, pikepdf.Dictionary) and "/S" in element and depth < 60:
+            kinds.add(str(element.S))
+            if element.S == "/Figure":
+                figures.append(element)
+            kids = element.get("/K")
+            for kid in (kids if isinstance(kids, pikepdf.Array) else [kids]):
+                walk(kid, depth + 1)
+
+    walk(pdf.Root.StructTreeRoot.K[0])
+    assert {"/H1", "/H2", "/Table"} <= kinds, kinds
+    assert all(str(f.get("/Alt", "")).strip() for f in figures)
