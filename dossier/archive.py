@@ -342,6 +342,16 @@ def _rebuild(inputs: dict[str, bytes], theme: str) -> dict[str, bytes]:
         return read_folder(out)
 
 
+def _rebuild_recorded(files: dict[str, bytes]) -> tuple[dict[str, bytes], list[str]]:
+    """Rebuild from the `inputs/` among `files` with their recorded theme; the rebuilt files and
+    the versions that differ from the recorded ones."""
+    inputs = {k[len(INPUTS) + 1:]: v for k, v in files.items() if k.startswith(INPUTS + "/")}
+    recorded = _recorded_environment(files)
+    theme = recorded.get("theme", "default")
+    env = differences(recorded, environment_record(theme)) if recorded else ["no environment record"]
+    return _rebuild(inputs, theme), env
+
+
 def _compare(old: dict[str, bytes], new: dict[str, bytes], names) -> list[str]:
     from .pdf_compare import pdf_difference
 
@@ -365,11 +375,7 @@ def rebuild_and_compare(folder: Path) -> Rebuild:
     folder = Path(folder)
     files = read_folder(folder)
     _ids(files, folder)
-    inputs = {k[len(INPUTS) + 1:]: v for k, v in files.items() if k.startswith(INPUTS + "/")}
-    recorded = _recorded_environment(files)
-    theme = recorded.get("theme", "default")
-    env = differences(recorded, environment_record(theme)) if recorded else ["no environment record in the original"]
-    new = _rebuild(inputs, theme)
+    new, env = _rebuild_recorded(files)
     names = {n for n in set(files) | set(new) if integrity.is_listed(n) or n == integrity.MANIFEST}
     return Rebuild(tuple(_compare(files, new, names)), tuple(env))
 
@@ -432,10 +438,6 @@ def rebuild_report_pdf(path: Path) -> Rebuild:
     """Rebuild from the inputs the report PDF carries and compare with what it carries (and the
     rebuilt report with the PDF itself)."""
     data, attached = _read_pdf(path)
-    inputs = {k[len(INPUTS) + 1:]: v for k, v in attached.items() if k.startswith(INPUTS + "/")}
-    recorded = _recorded_environment(attached)
-    theme = recorded.get("theme", "default")
-    env = differences(recorded, environment_record(theme)) if recorded else ["no environment record in the PDF"]
-    new = _rebuild(inputs, theme)
+    new, env = _rebuild_recorded(attached)
     old = {**{n: d for n, d in attached.items() if n != ATTACHED_MANIFEST}, REPORT_NAME: data}
     return Rebuild(tuple(_compare(old, new, set(old))), tuple(env))

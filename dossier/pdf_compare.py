@@ -11,9 +11,6 @@ from __future__ import annotations
 import hashlib
 import io
 
-FONT_FILES = ("/FontFile", "/FontFile2", "/FontFile3")
-
-
 def _pages(pdf) -> list[bytes]:
     """The drawing instructions of every page (content streams, decoded and joined)."""
     import pikepdf
@@ -30,20 +27,11 @@ def _pages(pdf) -> list[bytes]:
     return out
 
 
-def _fonts(pdf) -> dict[str, str]:
-    """Embedded font programs: base font name -> SHA-256 of the program's bytes."""
-    out = {}
-    for obj in pdf.objects:
-        try:
-            if obj.get("/Type") != "/FontDescriptor":
-                continue
-        except (AttributeError, TypeError, ValueError):
-            continue
-        for key in FONT_FILES:
-            if key in obj:
-                name = str(obj.get("/FontName", "?")).lstrip("/")
-                out[name.split("+", 1)[-1]] = hashlib.sha256(obj[key].read_bytes()).hexdigest()[:16]
-    return dict(sorted(out.items()))
+def _fonts(pdf_bytes: bytes) -> dict[str, str]:
+    """Embedded font programs: font name (subset tag dropped) -> SHA-256 of the program."""
+    from .pdf_archive import embedded_fonts
+
+    return {f.base_font.split("+", 1)[-1]: f.sha256 for f in embedded_fonts(pdf_bytes)}
 
 
 def _attachments(pdf) -> dict[str, str]:
@@ -69,7 +57,7 @@ def pdf_difference(a: bytes, b: bytes) -> str:
         if att_a != att_b:
             names = sorted(n for n in set(att_a) | set(att_b) if att_a.get(n) != att_b.get(n))
             return "the pages are the same; attached files differ: " + ", ".join(names[:8])
-        fonts_a, fonts_b = _fonts(pa), _fonts(pb)
+        fonts_a, fonts_b = _fonts(a), _fonts(b)
         if fonts_a != fonts_b:
             names = sorted(n for n in set(fonts_a) | set(fonts_b) if fonts_a.get(n) != fonts_b.get(n))
             return ("the pages and attachments are the same; only the embedded font programs differ ("
