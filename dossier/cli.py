@@ -17,7 +17,7 @@ from pathlib import Path
 import click
 
 from . import __version__
-from .errors import EXIT_INTERNAL, UserError
+from .common.errors import EXIT_ABORTED, EXIT_INTERNAL, UserError
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -36,16 +36,19 @@ def cli() -> None:
               help="Processes for fits, metrics, figures and PDF volumes, this one included (default: one per CPU); the output does not depend on it.")
 def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, workers: int | None) -> None:
     """Build the dossier of PROJECT (a folder with dossier.toml)."""
-    if not no_cache:
-        from .freshness import up_to_date
+    from .project.load import load_project
 
-        current = up_to_date(project, out_dir, theme)
+    loaded = load_project(project)  # validated and read once, for the freshness check and the build
+    if not no_cache:
+        from .engine.freshness import up_to_date  # light: decides before the heavy stages are imported
+
+        current = up_to_date(loaded, out_dir, theme)
         if current is not None:
             click.echo(f"{current}: up to date (inputs, theme and software unchanged; output verified)")
             return
-    from .build import build as run_build
+    from .engine.build import build as run_build
 
-    summary = run_build(project, out_dir, theme, use_cache=not no_cache, workers=workers)
+    summary = run_build(loaded, out_dir, theme, use_cache=not no_cache, workers=workers)
     if summary.reused:
         click.echo(f"{summary.out_dir}: up to date (inputs, theme and software unchanged; output verified)")
         return
@@ -58,9 +61,10 @@ def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, worke
 @click.argument("project", type=click.Path(path_type=Path))
 def check(project: Path) -> None:
     """Validate PROJECT's manifest and rig files without building."""
-    from .build import check as run_check
+    from .engine.build import check as run_check
+    from .project.load import load_project
 
-    manifest, conditioned = run_check(project)
+    conditioned = run_check(load_project(project))
     for c in conditioned:
         a = c.account
         click.echo(f"{a.source_file}: {a.n_samples} samples, {a.n_kept} kept, "
@@ -82,14 +86,15 @@ def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
     PDF: every file it carries against the integrity manifest it carries. Exit 0 when everything
     holds, 5 when something does not, 7 when intact but a signature's key was not among --public-key.
     """
-    from . import archive, integrity
-    from .errors import UncheckedError, VerifyError
+    from .common.errors import UncheckedError, VerifyError
+    from .engine import rebuild as rebuilding
+    from .publish import archive, integrity
 
     if target.is_file() and target.suffix.lower() == ".pdf":
         pdf = archive.verify_report_pdf(target)
         for line in pdf.lines():
             click.echo(line)
-        rebuilt = archive.rebuild_report_pdf(target) if rebuild and pdf.ok else None
+        rebuilt = rebuilding.rebuild_report_pdf(target) if rebuild and pdf.ok else None
         for line in rebuilt.lines() if rebuilt else ():
             click.echo(line)
         if not pdf.ok or (rebuilt and not rebuilt.reproduced):
@@ -99,7 +104,7 @@ def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
     report = archive.verify(target, public_keys)
     for line in report.lines():
         click.echo(line)
-    rebuilt = archive.rebuild_and_compare(target) if rebuild and report.files_ok else None
+    rebuilt = rebuilding.rebuild_and_compare(target) if rebuild and report.files_ok else None
     for line in rebuilt.lines() if rebuilt else ():
         click.echo(line)
     if report.state == integrity.FAILED or (rebuilt and not rebuilt.reproduced):
@@ -119,7 +124,7 @@ def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
 @click.option("--organisation", default=None, help="Their organisation (default: the supplier).")
 def seal(out: Path, private_key: Path, signer: str | None, organisation: str | None) -> None:
     """Seal a released dossier OUT as the supplier: sign its digest (then it is frozen)."""
-    from .archive import seal as run_seal
+    from .publish.archive import seal as run_seal
 
     key_id = run_seal(out, private_key, signer, organisation)
     click.echo(f"{out}: sealed with key {key_id} (signatures/supplier-seal.json)")
@@ -129,7 +134,7 @@ def seal(out: Path, private_key: Path, signer: str | None, organisation: str | N
 @click.argument("out", type=click.Path(path_type=Path))
 def digest(out: Path) -> None:
     """Print the digest of a built dossier OUT, the value an approver countersigns."""
-    from .archive import digest as run_digest
+    from .publish.archive import digest as run_digest
 
     value, ident = run_digest(out)
     click.echo(f"{value}  {ident['number']} rev. {ident['revision']} ({ident['status']})")
@@ -154,8 +159,8 @@ def countersign(out: Path | None, private_key: Path, statement: str, reason: str
                 digest_hex: str | None, document: str | None, revision: str | None,
                 signature_out: Path | None) -> None:
     """Countersign a sealed dossier OUT as the customer's approver, with your own key."""
-    from .archive import countersign as run_countersign
-    from .errors import UserError as _UserError
+    from .publish.archive import countersign as run_countersign
+    from .common.errors import UserError as _UserError
 
     if (out is None) == (digest_hex is None):
         raise _UserError("countersign: give either the dossier folder OUT or --digest (not both)")
@@ -172,7 +177,7 @@ def countersign(out: Path | None, private_key: Path, statement: str, reason: str
 @click.option("--zip", "as_zip", is_flag=True, help="Write the bag as one zip file instead of a folder.")
 def export(out: Path, bag: Path, as_zip: bool) -> None:
     """Export a built dossier OUT as a BagIt bag (RFC 8493) at BAG, for an archive intake."""
-    from .archive import export as run_export
+    from .publish.archive import export as run_export
 
     click.echo(f"bag written: {run_export(out, bag, as_zip)}")
 
@@ -182,7 +187,7 @@ def export(out: Path, bag: Path, as_zip: bool) -> None:
 @click.argument("public_key", type=click.Path(path_type=Path))
 def keygen(private_key: Path, public_key: Path) -> None:
     """Create an Ed25519 key pair for signing (PEM files; never overwrites)."""
-    from .archive import keygen as run_keygen
+    from .publish.archive import keygen as run_keygen
 
     run_keygen(private_key, public_key)
     click.echo(f"private key: {private_key} (keep it on your machine, out of any dossier folder)\n"
@@ -194,7 +199,7 @@ def keygen(private_key: Path, public_key: Path) -> None:
 @click.argument("new", type=click.Path(path_type=Path))
 def diff(old: Path, new: Path) -> None:
     """Report what changed between two built revisions: inputs, coefficients, metrics, verdicts."""
-    from .archive import diff as run_diff
+    from .publish.archive import diff as run_diff
 
     changes = run_diff(old, new)
     for c in changes:
@@ -205,7 +210,7 @@ def diff(old: Path, new: Path) -> None:
 def main(argv: list[str] | None = None) -> int:
     # Ctrl-C and SIGTERM raise interrupts.Interrupted: the build cleans up on its way out, and
     # here it ends with one line and exit 130 or 143, without a traceback
-    from . import interrupts
+    from .common import interrupts
 
     args = sys.argv[1:] if argv is None else list(argv)
     command = next((a for a in args if not a.startswith("-")), None)
@@ -218,7 +223,7 @@ def main(argv: list[str] | None = None) -> int:
                 if isinstance(exc.__cause__, KeyboardInterrupt):  # click's own name for a Ctrl-C
                     raise exc.__cause__ from None
                 click.echo("aborted", err=True)
-                return 1
+                return EXIT_ABORTED
             except click.ClickException as exc:
                 exc.show()
                 return exc.exit_code
@@ -241,7 +246,7 @@ def main(argv: list[str] | None = None) -> int:
 def run() -> None:
     """Console entry point."""
     code = main()
-    from . import interrupts
+    from .common import interrupts
 
     interrupts.ignore()  # the process ends here: a late Ctrl-C must not print a traceback at shutdown
     if code in interrupts.EXIT_CODES.values():

@@ -106,7 +106,7 @@ def run_block(sid: str, file: str, loads, load_unit="N", convention="SAE J670", 
 def operating_point(x, load_n, *, fy=None, mz=None, fx=None, camber_deg=0.0, pressure_kpa=250.0,
                     sweep="slip_angle", specimen="S", run_index=0, fz=None):
     """A conditioned operating point made directly from arrays (for fit-stage tests)."""
-    from dossier.condition import OperatingPoint, SlipCurve
+    from dossier.conditioning.steady_state import OperatingPoint, SlipCurve
 
     x = np.asarray(x, dtype=float)
     fz = np.full(x.size, float(load_n)) if fz is None else np.asarray(fz, dtype=float)

@@ -5,8 +5,8 @@ import shutil
 
 import pytest
 
-from dossier.build import build
-from dossier.freshness import up_to_date
+from dossier.engine.build import build
+from dossier.engine.freshness import up_to_date
 from test_document import make_project
 
 
@@ -79,7 +79,7 @@ def test_parallel_build_from_a_script_on_standard_input(tmp_path):
     import sys
 
     root = make_project(tmp_path / "p")
-    script = f"from dossier.build import build\nbuild(r'{root}', r'{tmp_path / 'o'}', use_cache=False, workers=2)\n"
+    script = f"from dossier.engine.build import build\nbuild(r'{root}', r'{tmp_path / 'o'}', use_cache=False, workers=2)\n"
     done = subprocess.run([sys.executable, "-"], input=script, text=True, capture_output=True)
     assert done.returncode == 0, done.stderr[-2000:]
     assert (tmp_path / "o/dossier.pdf").is_file()
@@ -89,8 +89,8 @@ def test_the_worker_pool_keeps_order_and_reports_the_first_failing_job():
     # Jobs shared between this process and a worker come back in the order given, whatever order
     # they ran in (dearest first); a job's own error reaches the caller. Date codes: DOT TIN
     # format of 49 CFR 574.5 (week and year), as the sidewall tests use.
-    from dossier.sidewall import SidewallError, parse_tin
-    from dossier.workers import WorkerPool
+    from dossier.standards.sidewall import SidewallError, parse_tin
+    from dossier.engine.workers import WorkerPool
 
     tins = [f"DOT XXXX XXX {week:02d}{year:02d}" for week in (1, 17, 33, 52) for year in (19, 23, 26)]
     with WorkerPool(2) as pool:
@@ -103,7 +103,7 @@ def test_the_worker_pool_keeps_order_and_reports_the_first_failing_job():
 def test_the_cache_keeps_to_its_budget_and_removes_only_old_entries_of_its_own(tmp_path):
     import os
 
-    from dossier.cache import Cache, digest
+    from dossier.engine.cache import Cache, digest
 
     folder = tmp_path / ".dossier-cache"
     first = Cache(folder)

@@ -3,7 +3,7 @@ import sys
 
 import projects as P
 from dossier.cli import main
-from dossier.errors import EXIT_INPUT, EXIT_OK
+from dossier.common.errors import EXIT_INPUT, EXIT_OK
 
 
 def _run(*args):

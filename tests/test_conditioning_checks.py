@@ -1,16 +1,18 @@
 """Conditioning against synthetic runs whose lag, offsets, spikes, drift and coverage are known."""
 
 
+from pathlib import Path
 import numpy as np
 import pytest
 
 import projects as P
-from dossier.condition import REASON_SPIKE, condition_run
-from dossier.drift import correct_points, estimate_drift
-from dossier.errors import ManifestError, RigDataError
-from dossier.ingest import read_run
-from dossier.manifest import ConditioningSettings, load_manifest
-from dossier.offsets import split_offsets
+from dossier.conditioning.steady_state import REASON_SPIKE, condition_run
+from dossier.conditioning.drift import correct_points, estimate_drift
+from dossier.common.errors import ManifestError, RigDataError
+from dossier.ingest.rig_table import parse_run
+from dossier.project.manifest import ConditioningSettings
+from dossier.project.load import load_project
+from dossier.conditioning.offsets import split_offsets
 
 FZ0 = 4000.0
 
@@ -36,11 +38,11 @@ def write_run(root, name, loads, fy, *, spikes=(), seed=1, noise=10.0, tau_s=Non
 def manifest(root, runs_text, specimens=(("A", "baseline"),), extra=""):
     text = P.MANIFEST_HEAD + "".join(P.specimen_block(s, r) for s, r in specimens) + runs_text + extra
     (root / "dossier.toml").write_text(text, encoding="utf-8")
-    return load_manifest(root)
+    return load_project(root).manifest
 
 
 def conditioned(root, m, i=0, settings=None, rated=None):
-    return condition_run(read_run(root, m.runs[i]), settings or m.conditioning, rated)
+    return condition_run(parse_run((Path(root) / m.runs[i].file).read_bytes(), m.runs[i]), settings or m.conditioning, rated)
 
 
 def test_known_lag_is_reported_and_removed_from_the_steady_curve(tmp_path):
@@ -174,7 +176,7 @@ def test_bad_rig_files_name_file_and_line(tmp_path, body, message, line):
     (tmp_path / "rig/a.csv").write_text(body, encoding="utf-8")
     m = manifest(tmp_path, P.run_block("A", "rig/a.csv", [FZ0]))
     with pytest.raises(RigDataError) as exc:
-        read_run(tmp_path, m.runs[0])
+        parse_run((Path(tmp_path) / m.runs[0].file).read_bytes(), m.runs[0])
     assert str(exc.value).startswith(f"rig/a.csv, line {line}")
     assert message in str(exc.value)
 

@@ -7,9 +7,10 @@ import pytest
 from pypdf import PdfReader
 
 import projects as P
-from dossier.build import build
-from dossier.errors import StageError, UserError
-from dossier.narrative import NarrativeError, render_markdown
+from dossier.engine.build import build
+from dossier.common.errors import StageError, UserError
+from dossier.common.errors import NarrativeError
+from dossier.document.narrative import render_markdown
 
 LOADS = [2000, 4000, 6000]
 RELEASED = '''
@@ -152,7 +153,7 @@ def test_draft_mark_and_released_signoff(tmp_path):
 
 
 def test_links_into_another_volume_become_plain_text():
-    from dossier.render import unlink_missing_anchors
+    from dossier.document.pdf import unlink_missing_anchors
 
     page = (b'<h2 id="fit">Fit</h2><a href="#fit">here</a> '
             b'<a class="prov-link" href="#prov-fit-A-fy" title="source">pDy1</a> <a href="site.html#x">site</a>')

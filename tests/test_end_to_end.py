@@ -8,10 +8,10 @@ import jsonschema
 import pytest
 from pypdf import PdfReader
 
-from dossier.build import build
-from dossier.cautions import CAUTIONS
-from dossier.errors import OutputError, UserError
-from dossier.output import MARKER
+from dossier.engine.build import build
+from dossier.document.cautions import CAUTIONS
+from dossier.common.errors import OutputError, UserError
+from dossier.publish.layout import MARKER
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_project"
@@ -74,7 +74,7 @@ def test_results_json_follows_its_schema(demo_out):
     schema = json.loads((ROOT / "dossier/schemas/results.schema.json").read_text(encoding="utf-8"))
     jsonschema.validate(results, schema)
     metrics = {m["metric"] for m in results["metrics"]}
-    from dossier.metrics import METRICS
+    from dossier.project.catalogue import METRICS
 
     assert metrics == set(METRICS)  # the demo has lateral, aligning, camber and longitudinal data
     for m in results["metrics"]:

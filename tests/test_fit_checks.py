@@ -5,9 +5,9 @@ import pytest
 
 import bnp1987
 import projects as P
-from dossier import magic_formula as mf
-from dossier.fit import fit_channel
-from dossier.manifest import FitSettings
+from dossier.model import magic_formula as mf
+from dossier.model.fit import fit_channel
+from dossier.project.manifest import FitSettings
 
 FZ0, P0 = 4000.0, 250.0
 LOADS = (2000.0, 4000.0, 6000.0, 8000.0)

@@ -13,11 +13,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 import projects as P
-from dossier.build import build
-from dossier.errors import ManifestError, RigDataError, StageError
-from dossier.fit import fit_channel
-from dossier.ingest import read_run
-from dossier.manifest import FitSettings, load_manifest
+from dossier.engine.build import build
+from dossier.common.errors import ManifestError, RigDataError, StageError
+from dossier.model.fit import fit_channel
+from dossier.ingest.rig_table import parse_run
+from dossier.project.manifest import FitSettings
+from dossier.project.load import load_project
 from test_document import make_project
 
 HEADER = "TIME,SLIP_ANGLE,FZ,FY"
@@ -28,7 +29,7 @@ def _manifest(root, body, **kw):
     (root / "rig/a.csv").write_bytes(body)
     (root / "dossier.toml").write_text(P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000], **kw),
                                        encoding="utf-8")
-    return load_manifest(root)
+    return load_project(root).manifest
 
 
 # --- the rig-file reader: any bytes load or fail with one clear message -------------------------
@@ -43,7 +44,7 @@ def _manifest(root, body, **kw):
 def test_any_rig_file_loads_or_fails_clearly(tmp_path, body):
     m = _manifest(tmp_path, body)
     try:
-        run = read_run(tmp_path, m.runs[0])
+        run = parse_run((Path(tmp_path) / m.runs[0].file).read_bytes(), m.runs[0])
     except RigDataError as exc:
         assert str(exc).startswith("rig/a.csv")
         return
@@ -99,11 +100,11 @@ def test_corpus(tmp_path, name):
     (tmp_path / "corpus" / f"{name}.csv").write_bytes(body)  # keep what was tested next to the failure
     m = _manifest(tmp_path, body, **kw)
     if error is None:
-        run = read_run(tmp_path, m.runs[0])
+        run = parse_run((Path(tmp_path) / m.runs[0].file).read_bytes(), m.runs[0])
         assert run.n_samples >= 30 and np.all(np.diff(run.channels["time"]) >= 0)
     else:
         with pytest.raises(RigDataError, match=error):
-            read_run(tmp_path, m.runs[0])
+            parse_run((Path(tmp_path) / m.runs[0].file).read_bytes(), m.runs[0])
 
 
 # --- hostile text -----------------------------------------------------------------------------
@@ -150,7 +151,7 @@ def test_symlinks_out_of_the_project_are_refused(tmp_path):
     (root / "dossier.toml").write_text(P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000]),
                                        encoding="utf-8")
     with pytest.raises(ManifestError, match=r"runs\[0\]\.file: resolves outside the project folder"):
-        load_manifest(root)
+        load_project(root).manifest
 
 
 # --- bounded resources and interrupted builds -------------------------------------------------
@@ -164,12 +165,12 @@ def test_a_pathological_fit_stops_with_a_clear_message():
 
 
 def test_an_absurdly_large_file_is_refused_before_reading(tmp_path, monkeypatch):
-    import dossier.ingest as ingest
+    import dossier.project.load as loader
 
-    m = _manifest(tmp_path, (HEADER + "\n" + "\n".join(_sweep_lines())).encode())
-    monkeypatch.setattr(ingest, "MAX_FILE_BYTES", 100)
-    with pytest.raises(RigDataError, match="the limit is"):
-        read_run(tmp_path, m.runs[0])
+    _manifest(tmp_path, (HEADER + "\n" + "\n".join(_sweep_lines())).encode())
+    monkeypatch.setattr(loader, "MAX_FILE_BYTES", 100)
+    with pytest.raises(ManifestError, match=r"runs\[0\]\.file: .* MB; the limit is"):
+        loader.load_project(tmp_path)
 
 
 def test_a_killed_build_leaves_the_previous_output_intact(tmp_path):

@@ -1,11 +1,13 @@
 import numpy as np
+from pathlib import Path
 import pytest
 
 import projects as P
-from dossier.condition import REASON_SETTLING, REASON_SPIKE, REASON_TRANSITION, condition_run
-from dossier.errors import RigDataError
-from dossier.ingest import read_run
-from dossier.manifest import ConditioningSettings, load_manifest
+from dossier.conditioning.steady_state import REASON_SETTLING, REASON_SPIKE, REASON_TRANSITION, condition_run
+from dossier.common.errors import RigDataError
+from dossier.ingest.rig_table import parse_run
+from dossier.project.manifest import ConditioningSettings
+from dossier.project.load import load_project
 
 
 def _project(tmp_path, body: str, run_kwargs=None):
@@ -13,7 +15,7 @@ def _project(tmp_path, body: str, run_kwargs=None):
     (tmp_path / "rig/a.csv").write_text(body, encoding="utf-8")
     text = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000], **(run_kwargs or {}))
     (tmp_path / "dossier.toml").write_text(text, encoding="utf-8")
-    m = load_manifest(tmp_path)
+    m = load_project(tmp_path).manifest
     return m, m.runs[0]
 
 
@@ -21,7 +23,7 @@ def test_semicolons_decimal_commas_and_iso_signs(tmp_path):
     body = "TIME;SLIP_ANGLE;FZ;FY\n0,0;-2,5;4,0;1,2\n0,04;2,5;4,1;-2,4\n"
     m, spec = _project(tmp_path, body, dict(convention="ISO 8855", delimiter=";", decimal=",",
                                             units={"fz": "kN", "fy": "kN"}))
-    run = read_run(m.project_dir, spec)
+    run = parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
     np.testing.assert_allclose(run.channels["slip_angle"], [-2.5, 2.5])
     np.testing.assert_allclose(run.channels["fz"], [4000, 4100])
     np.testing.assert_allclose(run.channels["fy"], [1200, -2400])
@@ -31,7 +33,7 @@ def test_semicolons_decimal_commas_and_iso_signs(tmp_path):
 def test_bad_number_names_file_line_and_column(tmp_path):
     m, spec = _project(tmp_path, "TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000,12O\n")
     with pytest.raises(RigDataError) as exc:
-        read_run(m.project_dir, spec)
+        parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
     assert str(exc.value) == ("rig/a.csv, line 3, column 'FY': expected a number with decimal mark '.'; "
                               "found '12O'")
 
@@ -39,19 +41,19 @@ def test_bad_number_names_file_line_and_column(tmp_path):
 def test_missing_column_lists_the_header(tmp_path):
     m, spec = _project(tmp_path, "TIME,SA,FZ,FY\n0,0,-4000,0\n")
     with pytest.raises(RigDataError, match=r"line 1: no column named 'SLIP_ANGLE' for channel 'slip_angle'"):
-        read_run(m.project_dir, spec)
+        parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
 
 
 def test_load_of_the_wrong_sign_suggests_the_other_convention(tmp_path):
     m, spec = _project(tmp_path, "TIME,SLIP_ANGLE,FZ,FY\n0,-3,4000,10\n0.04,3,4000,-10\n")  # SAE declared, ISO data
     with pytest.raises(RigDataError, match="probably in ISO 8855"):
-        read_run(m.project_dir, spec)
+        parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
 
 
 def test_slip_in_radians_labelled_degrees_is_stopped(tmp_path):
     m, spec = _project(tmp_path, "TIME,SLIP_ANGLE,FZ,FY\n0,-0.2,-4000,10\n0.04,0.2,-4000,-10\n")
     with pytest.raises(RigDataError, match="probably in radians"):
-        read_run(m.project_dir, spec)
+        parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
 
 
 def _synthetic(tmp_path, spikes=()):
@@ -62,8 +64,8 @@ def _synthetic(tmp_path, spikes=()):
     P.write_csv(tmp_path / "rig/a.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz, -fy])
     text = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [2000, 4000])
     (tmp_path / "dossier.toml").write_text(text, encoding="utf-8")
-    m = load_manifest(tmp_path)
-    return read_run(m.project_dir, m.runs[0]), t
+    m = load_project(tmp_path).manifest
+    return parse_run((Path(m.project_dir) / m.runs[0].file).read_bytes(), m.runs[0]), t
 
 
 def test_conditioning_finds_points_and_accounts_for_every_sample(tmp_path):
@@ -83,10 +85,11 @@ def test_conditioning_finds_points_and_accounts_for_every_sample(tmp_path):
 def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     from dataclasses import replace
 
-    from dossier.condition import SlipCurve
-    from dossier.fit import fit_lateral
-    from dossier.manifest import FitSettings
-    from dossier.metrics import Models, metric_values
+    from dossier.conditioning.steady_state import SlipCurve
+    from dossier.model.fit import fit_lateral
+    from dossier.project.manifest import FitSettings
+    from dossier.model.fit import SpecimenModel
+    from dossier.metrics.evaluate import metric_values
 
     run, _ = _synthetic(tmp_path)
     points = list(condition_run(run, ConditioningSettings()).points)
@@ -97,8 +100,8 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
         c = p.curve
         shuffled.append(replace(p, curve=SlipCurve(c.sweep, c.x[k], c.fz_n[k], c.fy_n[k], None, None,
                                                    c.samples_per_bin[k])))
-    a = metric_values(Models("A", fit_lateral(points, FitSettings(), 3000.0), None, None), 2000.0)
-    b = metric_values(Models("A", fit_lateral(shuffled[::-1], FitSettings(), 3000.0), None, None), 2000.0)
+    a = metric_values(SpecimenModel("A", fit_lateral(points, FitSettings(), 3000.0), None, None), 2000.0)
+    b = metric_values(SpecimenModel("A", fit_lateral(shuffled[::-1], FitSettings(), 3000.0), None, None), 2000.0)
     for x, y in zip(a, b):
         assert x.metric == y.metric
         assert x.value == pytest.approx(y.value, rel=1e-6)

@@ -17,10 +17,10 @@ from pathlib import Path
 
 import pytest
 
-from dossier import interrupts
-from dossier.build import build
-from dossier.cache import Cache, digest
-from dossier.errors import EXIT_SIGINT, EXIT_SIGTERM
+from dossier.common import interrupts
+from dossier.engine.build import build
+from dossier.engine.cache import Cache, digest
+from dossier.common.errors import EXIT_SIGINT, EXIT_SIGTERM
 from test_document import make_project
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").is_file() or not hasattr(os, "killpg"),
@@ -157,7 +157,7 @@ def test_ctrl_c_while_the_fork_server_imports_prints_no_traceback(previous, tmp_
 def test_ctrl_c_while_writing_removes_the_half_written_folder(previous, tmp_path):
     # Hold the build just before it swaps its finished folder in (the last check before the
     # swap sleeps), so that the signal finds the temporary folder complete beside the output.
-    prelude = ("import time, dossier.output as o\n"
+    prelude = ("import time, dossier.publish.writer as o\n"
                "real_check = o.check\n"
                "o.check = lambda: (time.sleep(300), real_check())\n")
 
@@ -182,7 +182,7 @@ def _interrupt_held_build(previous, tmp_path, prelude, ready, what, sig):
 def test_sigterm_while_a_cache_entry_is_written_removes_its_temporary_file(previous, tmp_path):
     # Hold the first cache write half-way (its pickling sleeps), so that SIGTERM finds the
     # temporary file in the cache folder.
-    prelude = ("import pickle, time, types, dossier.cache as c\n"
+    prelude = ("import pickle, time, types, dossier.engine.cache as c\n"
                "c.pickle = types.SimpleNamespace(loads=pickle.loads, HIGHEST_PROTOCOL=pickle.HIGHEST_PROTOCOL,\n"
                "                                 dump=lambda *a, **k: time.sleep(300))\n")
     _interrupt_held_build(previous, tmp_path, prelude, lambda project: any((project / ".dossier-cache").rglob(".tmp-*")),

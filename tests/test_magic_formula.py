@@ -3,7 +3,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 import bnp1987
-from dossier import magic_formula as mf
+from dossier.model import magic_formula as mf
 
 
 @settings(max_examples=60, deadline=None, derandomize=True)

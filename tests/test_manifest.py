@@ -3,8 +3,8 @@ import tomllib
 import pytest
 
 import projects as P
-from dossier.errors import ManifestError
-from dossier.manifest import load_manifest
+from dossier.common.errors import ManifestError
+from dossier.project.load import load_project
 
 
 def _write(tmp_path, text, with_rig=True):
@@ -17,14 +17,14 @@ def _write(tmp_path, text, with_rig=True):
 
 def _problems(tmp_path):
     with pytest.raises(ManifestError) as exc:
-        load_manifest(tmp_path)
+        load_project(tmp_path).manifest
     return [str(p) for p in exc.value.problems]
 
 
 def test_a_valid_manifest_converts_units_of_set_points(tmp_path):
     text = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [2, 4], load_unit="kN",
                                                                     pressure="2.5", pressure_unit="bar")
-    m = load_manifest(_write(tmp_path, text))
+    m = load_project(_write(tmp_path, text)).manifest
     assert m.runs[0].load_setpoints_n == (2000.0, 4000.0)
     assert m.runs[0].pressure_kpa == pytest.approx(250.0)
     assert m.document.number == "T-0001"

@@ -5,8 +5,8 @@ import tomllib
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 import projects as P
-from dossier.errors import ManifestError
-from dossier.manifest import parse_manifest
+from dossier.common.errors import ManifestError
+from dossier.project.load import parse_manifest
 
 BASE = tomllib.loads(P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [2000, 4000]))
 

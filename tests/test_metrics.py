@@ -5,10 +5,12 @@ import pytest
 
 import bnp1987
 import projects as P
-from dossier import magic_formula as mf
-from dossier.fit import fit_channel
-from dossier.manifest import FitSettings
-from dossier.metrics import METRICS, Models, metric_values
+from dossier.model import magic_formula as mf
+from dossier.model.fit import fit_channel
+from dossier.project.manifest import FitSettings
+from dossier.project.catalogue import METRICS
+from dossier.model.fit import SpecimenModel
+from dossier.metrics.evaluate import metric_values
 from test_fit_checks import FZ0, LOADS, P0, SLIP, TRUE_FY, bnp_mz, lateral_points
 
 LINEAR = FitSettings(loss="linear")
@@ -27,7 +29,7 @@ def test_metrics_of_the_published_1987_tire():
     # Bakker, Nyborg & Pacejka, SAE 870421 (1987), Tables 2-3 (domain primer §8), at 4 kN.
     pts = [P.operating_point(SLIP, L, fy=-bnp1987.lateral_force_n(SLIP, L / 1000.0), pressure_kpa=P0) for L in LOADS]
     fy = fit_channel(pts, "fy", LINEAR, FZ0, P0)
-    got = _values(Models("BNP", fy, None, None), FZ0)
+    got = _values(SpecimenModel("BNP", fy, None, None), FZ0)
     B, C, D, E = bnp1987.coefficients(4.0)
     a = np.linspace(0, 12, 120001)
     published_peak_slip = a[np.argmax(bnp1987.lateral_force_n(a, 4.0))]
@@ -43,7 +45,7 @@ def test_trail_of_the_published_1987_tire():
                              pressure_kpa=P0)]
     fy = fit_channel(pts, "fy", LINEAR, FZ0, P0)
     mz = fit_channel(pts, "mz", LINEAR, FZ0, P0, 0.3, fy.values)
-    got = _values(Models("BNP", fy, mz, None), FZ0)
+    got = _values(SpecimenModel("BNP", fy, mz, None), FZ0)
     B, C, D, E = bnp1987.coefficients(4.0)
     published_trail_mm = 1000 * -bnp_mz(0.0, 4.0)[1] / (B * C * D)
     assert got["pneumatic_trail"].value == pytest.approx(published_trail_mm, rel=0.05)
@@ -64,7 +66,7 @@ def test_intervals_of_stiffness_and_peak_friction_cover_the_truth():
     seeds = range(30)
     for seed in seeds:
         fy = fit_channel(lateral_points(noise=20.0, seed=seed), "fy", LINEAR, FZ0, P0)
-        got = _values(Models("S", fy, None, None), FZ0)
+        got = _values(SpecimenModel("S", fy, None, None), FZ0)
         for name, truth in (("cornering_stiffness", true_cs), ("peak_lateral_friction", true_mu)):
             lo, hi = got[name].ci95
             hits[name] += lo <= truth <= hi
@@ -75,8 +77,8 @@ def test_intervals_of_stiffness_and_peak_friction_cover_the_truth():
 
 def test_metrics_at_any_load_and_extrapolation_labels():
     fy = fit_channel(lateral_points(), "fy", LINEAR, FZ0, P0)
-    inside = _values(Models("S", fy, None, None), 5000.0)
-    outside = _values(Models("S", fy, None, None), 10000.0)
+    inside = _values(SpecimenModel("S", fy, None, None), 5000.0)
+    outside = _values(SpecimenModel("S", fy, None, None), 10000.0)
     assert not inside["cornering_stiffness"].extrapolated
     assert outside["cornering_stiffness"].extrapolated and "extrapolated" in outside["cornering_stiffness"].note
     true_cs, _ = _true_metrics(5000.0)
@@ -88,7 +90,7 @@ def test_metrics_at_any_load_and_extrapolation_labels():
 def test_model_free_cross_check_and_its_finding():
     pts = lateral_points(noise=10.0, seed=3)
     fy = fit_channel(pts, "fy", LINEAR, FZ0, P0)
-    models = Models("S", fy, None, None)
+    models = SpecimenModel("S", fy, None, None)
     calm = _values(models, FZ0, points=pts, crosscheck_threshold_pct=5.0)
     strict = _values(models, FZ0, points=pts, crosscheck_threshold_pct=0.1)
     cs = calm["cornering_stiffness"]
@@ -103,7 +105,7 @@ def test_peak_and_root_searches_agree_with_scipy():
     (general-purpose reference library) on a Magic Formula curve of the published 1987 tire."""
     from scipy import optimize
 
-    from dossier.metrics import _refine_max, _refine_root
+    from dossier.metrics.evaluate import _refine_max, _refine_root
 
     def fy(alpha_deg):  # lateral force of the 1987 tire at 4 kN, N
         return mf.fy0(np.asarray(alpha_deg) * mf.DEG, 4000.0, TRUE_FY, FZ0)

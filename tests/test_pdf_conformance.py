@@ -23,7 +23,7 @@ import pytest
 from pikepdf.models.metadata import decode_pdf_date
 
 import projects as P
-from dossier.build import build
+from dossier.engine.build import build
 from test_document import LOADS, tire
 
 ATTACHED_ONLY = "integrity/manifest-sha256.txt"  # the report's own manifest (every file but itself): no file beside it
@@ -293,7 +293,7 @@ def test_each_attachment_is_associated_once_with_its_relationship(built, opened)
 
 
 def test_attachments_come_back_by_their_original_paths(built):
-    from dossier.pdf_archive import attachments
+    from dossier.document.pdfa import attachments
 
     out, data = built
     files = attachments(data["dossier.pdf"])
@@ -302,7 +302,7 @@ def test_attachments_come_back_by_their_original_paths(built):
 
 
 def test_embedded_fonts_are_recorded_by_program_hash(built, opened):
-    from dossier.pdf_archive import embedded_fonts
+    from dossier.document.pdfa import embedded_fonts
 
     for name in VOLUMES:
         records = embedded_fonts(built[1][name])
@@ -331,7 +331,8 @@ def _png_2x2() -> bytes:
 
 
 def _small_job():
-    from dossier.render import REPORT, PdfJob
+    from dossier.document.pdf import PdfJob
+    from dossier.document.volumes import REPORT
 
     png = base64.b64encode(_png_2x2()).decode()
     svg = (f'<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" width="120" '
@@ -353,7 +354,7 @@ CHILD = textwrap.dedent("""
     job_path, out_path, offset_s = sys.argv[1], sys.argv[2], float(sys.argv[3])
     real = time.time
     time.time = lambda: real() + offset_s  # another wall clock: fontTools stamps fonts with it
-    from dossier.render import render_pdf
+    from dossier.document.pdf import render_pdf
     with open(job_path, "rb") as f:
         job = pickle.load(f)
     with open(out_path, "wb") as f:
@@ -378,7 +379,7 @@ def small_renders(tmp_path_factory):
 
 
 def test_a_volume_is_byte_identical_across_processes_and_clocks(small_renders, monkeypatch):
-    from dossier.render import render_pdf
+    from dossier.document.pdf import render_pdf
 
     job, first, second = small_renders
     assert first == second  # fonts subset by fontTools carry head.modified: not the clock's
@@ -389,7 +390,7 @@ def test_a_volume_is_byte_identical_across_processes_and_clocks(small_renders, m
 
 
 def test_small_volume_attachments_follow_the_naming_rules(small_renders):
-    from dossier.pdf_archive import attachments
+    from dossier.document.pdfa import attachments
 
     job, pdf_bytes, _ = small_renders
     pdf = pikepdf.open(io.BytesIO(pdf_bytes))
@@ -409,7 +410,7 @@ def test_small_volume_attachments_follow_the_naming_rules(small_renders):
 
 
 def test_the_path_comes_back_even_when_the_separator_is_in_it():
-    from dossier.pdf_archive import attachment_description, attachment_name, original_path
+    from dossier.document.pdfa import attachment_description, attachment_name, original_path
 
     for name in ("inputs/rig/a — b.csv", "results.json", "annex-a-results.pdf"):
         described = attachment_description(name, "T — 1", "A")

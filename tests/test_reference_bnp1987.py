@@ -9,9 +9,13 @@ import pytest
 
 import bnp1987
 import projects as P
-from dossier import units
-from dossier.build import check, fit_specimens, nominal_load_n
-from dossier.metrics import Models, metric_values
+from dossier.standards import units
+from dossier.engine.build import check
+from dossier.engine.specimens import fit_specimens
+from dossier.project.conditions import nominal_load_n
+from dossier.project.load import load_project
+from dossier.model.fit import SpecimenModel
+from dossier.metrics.evaluate import metric_values
 
 LOADS_N = [2000, 4000, 6000, 8000]
 
@@ -42,12 +46,13 @@ def _project(tmp_path, style):
 
 @pytest.mark.parametrize("style", ["sae-imperial", "iso-metric-decimal-comma"])
 def test_published_tire_is_recovered_through_the_whole_pipeline(tmp_path, style):
-    manifest, conditioned = check(_project(tmp_path, style))
+    project = load_project(_project(tmp_path, style))
+    manifest, conditioned = project.manifest, check(project)
     points = [p for c in conditioned for p in c.points]
     assert len(points) == 4
     (model,), _ = fit_specimens(points, manifest, nominal_load_n(manifest))
     fit = model.fy
-    values = {m.metric: m for m in metric_values(Models("REF", fit, None, None), 4000.0)}
+    values = {m.metric: m for m in metric_values(SpecimenModel("REF", fit, None, None), 4000.0)}
     B, C, D, E = bnp1987.coefficients(4.0)
     # SAE 870421 (1987) Tables 2-3: cornering stiffness BCD = 1027.3 N/deg at 4 kN
     assert values["cornering_stiffness"].value == pytest.approx(1027.3, rel=0.02)

@@ -7,10 +7,11 @@ import shutil
 
 import pytest
 
-from dossier import archive
+from dossier.engine import rebuild
+from dossier.publish import archive
 from dossier.cli import main
-from dossier.environment import ENVIRONMENT_NAME
-from dossier.integrity import MANIFEST, with_manifest
+from dossier.publish.layout import ENVIRONMENT_NAME
+from dossier.publish.integrity import MANIFEST, with_manifest
 from test_document import make_project
 
 
@@ -45,7 +46,7 @@ def test_rebuild_uses_the_recorded_theme_and_names_the_version_that_differs(tmp_
     root = make_project(tmp_path / "p")
     out = tmp_path / "o"
     assert main(["build", str(root), "--out", str(out), "--theme", "plain", "--no-cache"]) == 0
-    assert archive.rebuild_and_compare(out).reproduced  # rebuilt with "plain", as recorded
+    assert rebuild.rebuild_and_compare(out).reproduced  # rebuilt with "plain", as recorded
     # the same folder as if it had been built with another NumPy: the rebuild names the version
     files = archive.read_folder(out)
     env = json.loads(files[ENVIRONMENT_NAME])
@@ -56,7 +57,7 @@ def test_rebuild_uses_the_recorded_theme_and_names_the_version_that_differs(tmp_
     for name, data in files.items():
         (out / name).parent.mkdir(parents=True, exist_ok=True)
         (out / name).write_bytes(data)
-    rebuilt = archive.rebuild_and_compare(out)
+    rebuilt = rebuild.rebuild_and_compare(out)
     assert any(line.startswith("numpy: 0.0.1 → ") for line in rebuilt.environment)
     assert [d.split(" ")[0] for d in rebuilt.differing] == [ENVIRONMENT_NAME, MANIFEST]
 
@@ -74,7 +75,7 @@ def test_a_pdf_difference_is_told_apart_from_a_font_bytes_difference(two_pdfs):
 
     import pikepdf
 
-    from dossier.pdf_compare import pdf_difference
+    from dossier.publish.pdf_compare import pdf_difference
 
     def edited(change):
         with pikepdf.open(io.BytesIO(two_pdfs)) as pdf:

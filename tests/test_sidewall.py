@@ -4,7 +4,7 @@ import datetime as dt
 
 import pytest
 
-from dossier.sidewall import LOAD_INDEX_KG, SPEED_SYMBOL_KMH, SidewallError, parse_size, parse_tin
+from dossier.standards.sidewall import LOAD_INDEX_KG, SPEED_SYMBOL_KMH, SidewallError, parse_size, parse_tin
 
 # ISO 4000-1 / UN ECE R30 Annex 4 / R54 Annex IV load-index values as listed in the domain
 # primer §7 (from memory, matching several secondary tables).

@@ -6,10 +6,11 @@ import shutil
 import pytest
 from prov.model import ProvDocument
 
-from dossier import archive
-from dossier.build import build
+from dossier.engine import rebuild
+from dossier.publish import archive
+from dossier.engine.build import build
 from dossier.cli import main
-from dossier.errors import OutputError, StateError
+from dossier.common.errors import OutputError, StateError
 from test_document import RELEASED, make_project
 
 
@@ -176,7 +177,7 @@ def test_a_copy_resealed_with_a_strangers_key_is_not_valid(sealed, tmp_path, cap
         _flip(t / "site/index.html")
         (t / "signatures/supplier-seal.json").unlink()
         files = archive.read_folder(t)
-        (t / "manifest-sha256.txt").write_bytes(__import__("dossier.integrity").integrity.manifest_bytes(files))
+        (t / "manifest-sha256.txt").write_bytes(__import__("dossier.publish.integrity", fromlist=["x"]).manifest_bytes(files))
         archive.seal(t, stranger / "x.pem")
 
     forged = _tampered(copy, tmp_path, forge)
@@ -217,7 +218,7 @@ def test_the_report_pdf_alone_can_be_checked_and_rebuilt_from(released, tmp_path
     report = out / "dossier.pdf"
     checked = archive.verify_report_pdf(report)
     assert checked.ok and checked.attached > 5, checked.lines()
-    from dossier.pdf_archive import attachments
+    from dossier.document.pdfa import attachments
 
     carried = attachments(report.read_bytes())
     assert {"inputs/dossier.toml", "inputs/rig/a.csv", "inputs/notes/summary.md", "results.json",
@@ -282,7 +283,7 @@ def test_commands_given_a_missing_or_foreign_folder_are_user_errors(released, tm
 
 def test_diff_and_rebuild(released, tmp_path):
     root, out, _ = released
-    assert archive.rebuild_and_compare(out).reproduced  # rebuilt from out/inputs, byte for byte
+    assert rebuild.rebuild_and_compare(out).reproduced  # rebuilt from out/inputs, byte for byte
     changed = make_project(tmp_path / "p2", scale=1.05, extra=RELEASED)
     build(changed, tmp_path / "o2")
     changes = archive.diff(out, tmp_path / "o2")

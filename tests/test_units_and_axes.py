@@ -1,7 +1,9 @@
 import numpy as np
 import pytest
 
-from dossier import axes, units
+from dossier.standards import axes
+
+from dossier.standards import units
 
 
 @pytest.mark.parametrize("quantity, unit, expected", [

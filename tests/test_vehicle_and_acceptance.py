@@ -4,11 +4,11 @@ import math
 
 import pytest
 
-from dossier import units
-from dossier.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
-from dossier.manifest import Target
-from dossier.metrics import MetricValue
-from dossier.vehicle import (AxleFitment, balance, character, characteristic_speed_kmh, critical_speed_kmh,
+from dossier.standards import units
+from dossier.evaluation.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
+from dossier.project.manifest import Target
+from dossier.metrics.evaluate import MetricValue
+from dossier.evaluation.vehicle import (AxleFitment, balance, character, characteristic_speed_kmh, critical_speed_kmh,
                              understeer_gradient_deg_per_g, yaw_rate_gain_per_s)
 
 DEG_PER_RAD = 180.0 / math.pi

@@ -23,9 +23,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "tests"))
 import projects as P  # noqa: E402
-from dossier.condition import condition_run  # noqa: E402
-from dossier.ingest import read_run  # noqa: E402
-from dossier.manifest import load_manifest  # noqa: E402
+from dossier.conditioning.steady_state import condition_run  # noqa: E402
+from dossier.ingest.rig_table import parse_run  # noqa: E402
+from dossier.project.load import load_project
 
 N_ROWS = 1_000_000
 CHANNELS = ["TIME", "SLIP_ANGLE", "FZ", "FY", "MZ", "FX", "MX", "MY", "INCL", "SR", "P", "V"]
@@ -93,9 +93,9 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         proj = big_project(tmp / "big")
-        m = load_manifest(proj)
+        m = load_project(proj).manifest
         t0 = time.perf_counter()
-        run = read_run(proj, m.runs[0])
+        run = parse_run((Path(proj) / m.runs[0].file).read_bytes(), m.runs[0])
         t_ingest = time.perf_counter() - t0
         t0 = time.perf_counter()
         condition_run(run, m.conditioning)

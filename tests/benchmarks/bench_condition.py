@@ -12,9 +12,9 @@ import time
 
 import numpy as np
 
-from dossier.condition import condition_run
-from dossier.ingest import RigRun
-from dossier.manifest import ColumnSpec, ConditioningSettings, RunSpec
+from dossier.conditioning.steady_state import condition_run
+from dossier.ingest.rig_table import RigRun
+from dossier.project.manifest import ColumnSpec, ConditioningSettings, RunSpec
 
 N_ROWS = 1_000_000
 RATE_HZ = 100.0

@@ -18,9 +18,9 @@ from scipy.optimize import curve_fit
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import projects as P  # noqa: E402
-from dossier import fit as F  # noqa: E402
-from dossier import magic_formula as mf  # noqa: E402
-from dossier.manifest import FitSettings  # noqa: E402
+from dossier.model import fit as F  # noqa: E402
+from dossier.model import magic_formula as mf  # noqa: E402
+from dossier.project.manifest import FitSettings  # noqa: E402
 
 FZ0, P0, R0 = 4000.0, 240.0, 0.317
 LOADS, CAMBERS, PRESSURES = (2000.0, 4000.0, 6000.0, 8000.0), (-3.0, 0.0, 3.0), (240.0, 280.0)

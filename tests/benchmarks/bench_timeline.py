@@ -17,8 +17,8 @@ import tempfile
 import time
 from pathlib import Path
 
-import dossier.build as B
-import dossier.workers as W
+import dossier.engine.build as B
+import dossier.engine.workers as W
 
 ROOT = Path(__file__).resolve().parents[2]
 STAGES = ["check", "fit_specimens", "run_figure_tasks", "make_context", "render_site", "render_volumes",

@@ -1,0 +1,115 @@
+"""Drift: how the rig's force level moved through the session, seen on the control tire.
+
+The control specimen is re-tested at intervals. For each repeat we take model-free metrics at
+its load (:mod:`dossier.estimates`); a straight line in time through them is the drift. The
+force level is tracked by the control's peak friction: the correction factor for a run tested at
+time t is level(t_ref)/level(t), with t_ref the first control repeat, applied to the forces and
+moments (not the load) of every non-control run when the manifest asks for it (``[drift]
+correct = true``). The drift found is always reported. This is the usual control-tire practice
+of test labs (common practice); its form (linear in time, one factor per run) is stated on the page.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from ..conditioning import estimates
+from ..conditioning.steady_state import OperatingPoint
+from ..common.errors import StageError
+
+TRACKED = ("cornering_stiffness_n_per_deg", "peak_friction")
+
+
+@dataclass(frozen=True)
+class ControlRepeat:
+    run_index: int
+    tested_at: dt.datetime
+    load_n: float
+    cornering_stiffness_n_per_deg: float | None
+    peak_friction: float | None
+
+
+@dataclass(frozen=True)
+class MetricDrift:
+    metric: str
+    per_hour_pct: float  # slope of the line, % of the reference value per hour
+    over_session_pct: float  # change from the first to the last repeat, by the line
+
+
+@dataclass(frozen=True)
+class RunCorrection:
+    run_index: int
+    specimen: str
+    tested_at: dt.datetime
+    force_scale: float
+
+
+@dataclass(frozen=True)
+class DriftEstimate:
+    control: str
+    load_n: float
+    repeats: tuple[ControlRepeat, ...]
+    metrics: tuple[MetricDrift, ...]
+    reference_time: dt.datetime
+    level_intercept: float  # peak friction at reference time, by the line
+    level_slope_per_hour: float
+    corrected: bool
+    corrections: tuple[RunCorrection, ...] = ()
+
+    def force_scale_at(self, when: dt.datetime) -> float:
+        """Return level(t_ref)/level(when) from the straight line through the repeats."""
+        hours = (when - self.reference_time).total_seconds() / 3600.0
+        level = self.level_intercept + self.level_slope_per_hour * hours
+        return float(self.level_intercept / level)
+
+
+def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: float) -> DriftEstimate | None:
+    """Estimate drift from the control specimen's repeats; None if it was tested fewer than twice."""
+    ctl = [p for p in points if p.specimen == control and p.sweep == "slip_angle" and p.camber_deg == 0.0
+           and p.rolling_direction == "forward" and p.tested_at is not None]
+    if not ctl:
+        return None
+    loads = sorted({p.load_n for p in ctl}, key=lambda v: (abs(v - nominal_load_n), v))
+    load = loads[0]
+    at_load = sorted((p for p in ctl if p.load_n == load), key=lambda p: p.tested_at)
+    repeats = tuple(ControlRepeat(p.run_index, p.tested_at, load,
+                                  estimates.cornering_stiffness_n_per_deg(p.curve), estimates.peak_friction(p.curve))
+                    for p in at_load)
+    if len({r.tested_at for r in repeats}) < 2:
+        return None
+    t_ref = repeats[0].tested_at
+    hours = np.array([(r.tested_at - t_ref).total_seconds() / 3600.0 for r in repeats])
+    span = hours.max() - hours.min()
+    drifts = []
+    line = {}
+    for name in TRACKED:
+        y = np.array([getattr(r, name) for r in repeats], dtype=float)
+        if np.any(~np.isfinite(y)):
+            raise StageError(f"drift: the control {control!r} has a repeat where {name} cannot be estimated")
+        slope, intercept = np.polyfit(hours, y, 1)
+        line[name] = (intercept, slope)
+        drifts.append(MetricDrift(name, 100.0 * slope / intercept, 100.0 * slope * span / intercept))
+    intercept, slope = line["peak_friction"]
+    return DriftEstimate(control, load, repeats, tuple(drifts), t_ref, float(intercept), float(slope), False)
+
+
+def correct_points(points: list[OperatingPoint], estimate: DriftEstimate) -> tuple[list[OperatingPoint], DriftEstimate]:
+    """Scale forces and moments of every non-control run by the drift factor at its test time."""
+    out = []
+    corrections: dict[int, RunCorrection] = {}
+    for p in points:
+        if p.specimen == estimate.control or p.tested_at is None:
+            out.append(p)
+            continue
+        k = estimate.force_scale_at(p.tested_at)
+        corrections[p.run_index] = RunCorrection(p.run_index, p.specimen, p.tested_at, k)
+        out.append(replace(
+            p, curve=p.curve.scaled(k),
+            rising=None if p.rising is None else p.rising.scaled(k),
+            falling=None if p.falling is None else p.falling.scaled(k),
+            raw_main=p.raw_main * k, force_scale=k))
+    ordered = tuple(sorted(corrections.values(), key=lambda c: c.tested_at))
+    return out, replace(estimate, corrected=True, corrections=ordered)

@@ -1,0 +1,609 @@
+"""Conditioning: from a raw rig run to clean, steady-state curves, one per operating point.
+
+Steps, each recorded in the run's :class:`ConditioningAccount`:
+
+1. **Operating points.** Find the load and camber steps from the channels themselves. The
+   manifest's nominal set-points, where given, are hints: each sample is assigned to the
+   nearest one; without hints the levels are detected from a histogram of the channel.
+   Samples outside the tolerance band are transitions (or levels that match no set-point).
+2. **Settling.** The first ``settling_s`` seconds of every stay at a set-point are dropped, and
+   so is any sample held within ``slip_settling_s`` of the sweep stopping, or within the first
+   ``sweep_run_in_deg`` of a sweep that starts from a hold (the relaxation lag is changing there).
+3. **Spikes.** Isolated spikes in the force and moment channels are removed (:func:`_spikes`).
+4. **Sweep direction.** Each sample is labelled rising, falling or held by how the swept
+   channel (slip angle, or slip ratio for longitudinal runs) moves there; continuous and
+   stepped sweeps alike.
+5. **Curves.** Rising and falling halves are averaged separately in bins of the swept
+   channel. Their difference at zero slip is the hysteresis, reported in force and as an
+   equivalent slip lag. The steady-state curve bins all samples after shifting each moving
+   half back by that lag (rising samples saw x − lag, falling ones x + lag); held samples need
+   no shift. This removes the first-order relaxation lag even where only one half covers a bin.
+6. **Offsets and coverage.** Residual force and moment at zero slip, and findings: a sweep that
+   does not pass the peak, a narrow slip range, too few points, a load above the rated load,
+   a pressure away from nominal. Each run gets a verdict: sound / usable with findings / unusable.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..ingest.rig_table import RigRun
+from ..project.manifest import ConditioningSettings
+
+REASON_TRANSITION = "load or camber off set-point (transition)"
+REASON_UNMATCHED = "steady level matching no set-point (out of range)"
+REASON_SETTLING = "settling after a set-point change"
+REASON_SPIKE = "spike (neighbour test)"
+REASON_RUN_IN = "sweep run-in from a hold (relaxation lag still building)"
+REASON_SLIP_SETTLING = "slip settling after the sweep stopped (relaxation lag decaying)"
+REASON_STEP_MOVE = "moving between slip steps (stepped sweep)"
+REASON_SPARSE = "too few samples in slip bin"
+REASONS = (REASON_TRANSITION, REASON_UNMATCHED, REASON_SETTLING, REASON_SPIKE, REASON_RUN_IN, REASON_SLIP_SETTLING,
+           REASON_STEP_MOVE, REASON_SPARSE)
+
+SOUND, WITH_FINDINGS, UNUSABLE = "sound", "usable with findings", "unusable"
+NOTE, FINDING, BLOCKING = "note", "finding", "unusable"
+
+MIN_SLIP_RATIO_RANGE = 0.10  # a longitudinal sweep narrower than ±0.10 misses the peak (common practice)
+DETECT_MIN_SHARE = 0.03  # a detected level holds at least 3 % of the samples
+OVERVIEW_POINTS = 4000  # samples kept for the time-history figure
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One thing a reviewer should know about the data; `severity` is note, finding or unusable."""
+
+    severity: str
+    text: str
+
+
+@dataclass(frozen=True)
+class SlipCurve:
+    """A conditioned sweep: bin means sorted by the swept channel, all arrays of equal length.
+
+    `x` is the slip angle in deg (``sweep == "slip_angle"``) or the slip ratio (``"slip_ratio"``).
+    """
+
+    sweep: str
+    x: np.ndarray
+    fz_n: np.ndarray
+    fy_n: np.ndarray | None
+    mz_nm: np.ndarray | None
+    fx_n: np.ndarray | None
+    samples_per_bin: np.ndarray
+    bin_index: np.ndarray | None = None  # integer bin of each point (x ≈ bin_index · bin width)
+
+    @property
+    def slip_angle_deg(self) -> np.ndarray:
+        return self.x
+
+    @property
+    def n_points(self) -> int:
+        return int(self.x.size)
+
+    @property
+    def main(self) -> np.ndarray:
+        """The force the sweep is about: Fy for slip-angle sweeps, Fx for slip-ratio sweeps."""
+        return self.fy_n if self.sweep == "slip_angle" else self.fx_n
+
+    def scaled(self, factor: float) -> "SlipCurve":
+        """Return the curve with forces and moments (not the load) multiplied by `factor`."""
+        def s(a):
+            return None if a is None else _frozen(a * factor)
+        return SlipCurve(self.sweep, self.x, self.fz_n, s(self.fy_n), s(self.mz_nm), s(self.fx_n),
+                         self.samples_per_bin, self.bin_index)
+
+
+@dataclass(frozen=True)
+class Hysteresis:
+    """Rising minus falling half of the sweep at zero slip, and the slip lag that explains it."""
+
+    force_diff_n: float
+    mz_diff_nm: float | None
+    slip_lag: float | None  # deg for slip-angle sweeps, 1 for slip-ratio sweeps
+
+
+@dataclass(frozen=True)
+class ZeroSlipOffsets:
+    """Residual force and moment of the steady-state curve (ply-steer and conicity together)."""
+
+    fy_at_zero_slip_n: float | None
+    mz_at_zero_slip_nm: float | None
+    residual_cornering_force_n: float | None  # Fy where Mz = 0 (common practice)
+    residual_aligning_moment_nm: float | None  # Mz where Fy = 0 (common practice)
+
+
+@dataclass(frozen=True)
+class OperatingPoint:
+    """One specimen at one nominal load, camber and pressure, in one run."""
+
+    specimen: str
+    run_index: int
+    source_file: str
+    sweep: str
+    rolling_direction: str
+    tested_at: dt.datetime | None
+    load_n: float  # nominal set-point (hint or detected)
+    camber_deg: float
+    pressure_kpa: float  # nominal
+    mean_load_n: float
+    measured_pressure_kpa: float | None
+    mean_speed_kmh: float | None
+    curve: SlipCurve  # steady state (both directions)
+    rising: SlipCurve | None
+    falling: SlipCurve | None
+    hysteresis: Hysteresis | None
+    offsets: ZeroSlipOffsets | None
+    n_sweeps: float  # full cycles of the swept channel (half-sweeps / 2)
+    raw_x: np.ndarray  # kept samples, for plotting the data cloud
+    raw_main: np.ndarray
+    first_line: int
+    last_line: int
+    n_samples_kept: int
+    time_span_s: tuple[float, float]
+    findings: tuple[Finding, ...] = ()
+    force_scale: float = 1.0  # drift correction applied to forces and moments (1 = none)
+
+    @property
+    def key(self) -> tuple[int, float, float, float]:
+        return (self.run_index, self.load_n, self.camber_deg, self.pressure_kpa)
+
+    def at_nominal(self, p0_kpa: float) -> bool:
+        """True at the nominal condition the metrics are made at: zero camber, pressure p0 (to 1 kPa)."""
+        return self.camber_deg == 0.0 and round(self.pressure_kpa) == round(p0_kpa)
+
+    @property
+    def raw_slip_angle_deg(self) -> np.ndarray:
+        return self.raw_x
+
+    @property
+    def raw_fy_n(self) -> np.ndarray:
+        return self.raw_main
+
+
+@dataclass(frozen=True)
+class RunOverview:
+    """A thinned time history of the run, for the data-quality figure."""
+
+    time_s: np.ndarray
+    fz_n: np.ndarray
+    x: np.ndarray
+    kept: np.ndarray
+
+
+@dataclass(frozen=True)
+class ConditioningAccount:
+    """What conditioning did to one run: samples in, kept, dropped by reason, and the verdict."""
+
+    run_index: int
+    specimen: str
+    source_file: str
+    sha256: str
+    n_samples: int
+    n_kept: int
+    dropped: dict[str, int] = field(default_factory=dict)
+    operating_points_found: int = 0
+    load_levels_n: tuple[float, ...] = ()
+    levels_detected: bool = False
+    findings: tuple[Finding, ...] = ()
+    verdict: str = SOUND
+    verdict_reasons: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class ConditionedRun:
+    account: ConditioningAccount
+    points: tuple[OperatingPoint, ...]
+    overview: RunOverview
+
+    @property
+    def all_findings(self) -> tuple[Finding, ...]:
+        """Run-level findings first, then each operating point's."""
+        return self.account.findings + tuple(f for p in self.points for f in p.findings)
+
+
+def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: float | None = None) -> ConditionedRun:
+    """Split `run` into operating points and reduce each to steady-state curves with findings."""
+    spec = run.spec
+    ch = run.channels
+    n = run.n_samples
+    t, fz = ch["time"], ch["fz"]
+    sweep = spec.sweep
+    x = ch[sweep]
+    incl = ch.get("inclination", np.zeros(n))
+    bin_width = settings.slip_bin_deg if sweep == "slip_angle" else settings.slip_ratio_bin
+    dropped = dict.fromkeys(REASONS, 0)
+    run_findings: list[Finding] = []
+
+    # 1. operating points: load and camber levels, hinted or detected
+    loads, load_detected = _levels(fz, spec.load_setpoints_n, resolution=0.03 * np.percentile(np.abs(fz), 95))
+    cambers, _ = _levels(incl, spec.camber_setpoints_deg if spec.camber_setpoints_deg or "inclination" in ch else (0.0,),
+                         resolution=0.25)
+    load_idx, load_ok = _assign(fz, loads, settings.load_tolerance_pct / 100.0 * loads)
+    camber_idx, camber_ok = _assign(incl, cambers, np.full(cambers.size, settings.camber_tolerance_deg))
+    in_band = load_ok & camber_ok
+    if spec.load_setpoints_n:
+        unmatched = _unmatched_levels(fz[~in_band], loads, settings.load_tolerance_pct, n)
+        for level, count in unmatched:
+            if level < 0.5 * loads.min():  # the rig's preload before and after the program
+                run_findings.append(Finding(NOTE, f"{count} samples at a preload of about {level:.0f} N dropped"))
+            else:
+                run_findings.append(Finding(FINDING, f"{count} samples hold a steady load of about {level:.0f} N, "
+                                                     f"which matches no set-point; dropped as out of range"))
+            dropped[REASON_UNMATCHED] += count
+        dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band)) - dropped[REASON_UNMATCHED]
+    else:
+        dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band))
+        run_findings.append(Finding(NOTE, "load steps detected from the data: "
+                                          + ", ".join(f"{v:.0f} N" for v in loads)))
+
+    # 2. settling at the start of every stay
+    label = np.where(in_band, load_idx * cambers.size + camber_idx, -1)
+    starts = np.flatnonzero(np.r_[True, label[1:] != label[:-1]])
+    ends = np.r_[starts[1:], n]
+    keep = np.zeros(n, dtype=bool)
+    for s, e in zip(starts, ends):
+        if label[s] < 0:
+            continue
+        settled = t[s:e] >= t[s] + settings.settling_s
+        dropped[REASON_SETTLING] += int(np.count_nonzero(~settled))
+        keep[s:e] = settled
+
+    # 3. spikes in every force and moment channel present
+    spike = np.zeros(n, dtype=bool)
+    for name in ("fy", "fx", "mz"):
+        if name in ch:
+            spike |= _spikes(ch[name], settings.spike_threshold_mad)
+    spike &= keep
+    dropped[REASON_SPIKE] = int(np.count_nonzero(spike))
+    keep &= ~spike
+
+    # 4. direction of the sweep at every sample; drop the run-in of sweeps that start from a hold
+    direction = _sweep_direction(x, 0.1 * bin_width)
+    run_in = _run_in(x, direction, settings.sweep_run_in_deg if sweep == "slip_angle" else settings.sweep_run_in_ratio)
+    run_in &= keep
+    dropped[REASON_RUN_IN] = int(np.count_nonzero(run_in))
+    keep &= ~run_in
+    slip_settling = _after_stop(t, direction, settings.slip_settling_s) & keep
+    dropped[REASON_SLIP_SETTLING] = int(np.count_nonzero(slip_settling))
+    keep &= ~slip_settling
+
+    points = []
+    for li, load in enumerate(loads):
+        for ci, camber in enumerate(cambers):
+            sel = keep & (load_idx == li) & (camber_idx == ci)
+            if not np.any(sel):
+                if spec.load_setpoints_n and ci == 0:
+                    run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
+                continue
+            point, drops = _operating_point(run, sel, direction, float(load), float(camber), bin_width, settings,
+                                            rated_load_n)
+            for reason, count in drops.items():
+                dropped[reason] += count
+            if point is not None:
+                points.append(point)
+
+    n_dropped = sum(dropped.values())
+    if dropped[REASON_SPIKE] > 0.01 * n:
+        run_findings.append(Finding(FINDING, f"{dropped[REASON_SPIKE]} spikes removed "
+                                             f"({100 * dropped[REASON_SPIKE] / n:.1f} % of samples)"))
+    if n_dropped > 0.5 * n:
+        run_findings.append(Finding(FINDING, f"{100 * n_dropped / n:.0f} % of the samples were dropped"))
+    verdict, reasons = _verdict(points, run_findings)
+    account = ConditioningAccount(
+        run_index=spec.index, specimen=spec.specimen, source_file=spec.file, sha256=run.sha256,
+        n_samples=n, n_kept=n - n_dropped, dropped=dropped, operating_points_found=len(points),
+        load_levels_n=tuple(float(v) for v in loads), levels_detected=load_detected,
+        findings=tuple(run_findings), verdict=verdict, verdict_reasons=tuple(reasons))
+    step = max(1, n // OVERVIEW_POINTS)
+    overview = RunOverview(_frozen(t[::step]), _frozen(fz[::step]), _frozen(x[::step]), _frozen_bool(keep[::step]))
+    return ConditionedRun(account, tuple(points), overview)
+
+
+# --- operating points ------------------------------------------------------------------------
+
+def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, settings, rated_load_n):
+    spec = run.spec
+    ch = run.channels
+    sweep = spec.sweep
+    x = ch[sweep][sel]
+    d = direction[sel]
+    data = {name: ch[name][sel] for name in ("fz", "fy", "mz", "fx") if name in ch}
+    halves = {}
+    for label, sign in (("rising", 1), ("falling", -1)):
+        m = d == sign
+        if np.count_nonzero(m) == 0:
+            halves[label] = None
+            continue
+        curve, _ = _bin_curve(sweep, x[m], {k: v[m] for k, v in data.items()}, bin_width, settings.min_samples_per_bin)
+        halves[label] = curve if curve.n_points else None
+    hyst = _hysteresis(halves["rising"], halves["falling"])
+    drops = {REASON_SPARSE: 0, REASON_STEP_MOVE: 0}
+    held = d == 0
+    if np.count_nonzero(held) > 0.5 * d.size:
+        # A stepped sweep: the held steps are the steady-state data; the moves between them
+        # are transitions.
+        drops[REASON_STEP_MOVE] = int(np.count_nonzero(~held))
+        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x[held], {k: v[held] for k, v in data.items()},
+                                                  bin_width, settings.min_samples_per_bin)
+    else:
+        # A continuous sweep: undo the lag of each moving half (rising samples saw x − lag,
+        # falling x + lag), then bin everything together; held samples need no shift.
+        shift = 0.0 if hyst is None or hyst.slip_lag is None else hyst.slip_lag
+        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x - shift * d, data, bin_width,
+                                                  settings.min_samples_per_bin)
+    if steady.n_points == 0:
+        return None, drops
+    lines = run.line_numbers[sel]
+    t = ch["time"][sel]
+    main = data["fy" if sweep == "slip_angle" else "fx"]
+    offsets = _offsets(steady) if sweep == "slip_angle" else None
+    pressure = float(np.mean(ch["pressure"][sel])) if "pressure" in ch else None
+    speed = float(np.mean(ch["speed"][sel])) if "speed" in ch else None
+    moving = d[d != 0]
+    reversals = int(np.count_nonzero(np.diff(moving) != 0))
+    point = OperatingPoint(
+        specimen=spec.specimen, run_index=spec.index, source_file=spec.file, sweep=sweep,
+        rolling_direction=spec.rolling_direction, tested_at=spec.tested_at,
+        load_n=load, camber_deg=camber, pressure_kpa=spec.pressure_kpa,
+        mean_load_n=float(np.mean(data["fz"])), measured_pressure_kpa=pressure, mean_speed_kmh=speed,
+        curve=steady, rising=halves["rising"], falling=halves["falling"], hysteresis=hyst, offsets=offsets,
+        n_sweeps=(reversals + 1) / 2.0, raw_x=_frozen(x), raw_main=_frozen(main),
+        first_line=int(lines.min()), last_line=int(lines.max()), n_samples_kept=int(x.size),
+        time_span_s=(float(t.min()), float(t.max())),
+    )
+    findings = _coverage(point, settings, rated_load_n)
+    return _replace_findings(point, findings), drops
+
+
+def _replace_findings(point: OperatingPoint, findings) -> OperatingPoint:
+    from dataclasses import replace
+    return replace(point, findings=tuple(findings))
+
+
+def _coverage(p: OperatingPoint, settings: ConditioningSettings, rated_load_n: float | None) -> list[Finding]:
+    out = []
+    c = p.curve
+    where = f"{p.load_n / 1000:.1f} kN, camber {p.camber_deg:g}°"
+    if c.n_points < settings.min_points_per_curve:
+        out.append(Finding(BLOCKING, f"{where}: only {c.n_points} slip points (at least {settings.min_points_per_curve} needed to fit)"))
+    lateral = p.sweep == "slip_angle"
+    unit = "°" if lateral else ""
+    need = settings.min_slip_range_deg if lateral else MIN_SLIP_RATIO_RANGE
+    reach = min(-c.x.min(), c.x.max())
+    if reach < need:
+        out.append(Finding(FINDING, f"{where}: slip range reaches only ±{reach:.3g}{unit} (at least ±{need:g}{unit} expected)"))
+    main = c.main
+    for side, m in (("positive", c.x > 0), ("negative", c.x < 0)):
+        if np.count_nonzero(m) < 3:
+            out.append(Finding(FINDING, f"{where}: no {side} slip measured"))
+            continue
+        xs, ys = c.x[m], np.abs(main[m])
+        outer = np.argmax(np.abs(xs))
+        if np.argmax(ys) == outer:
+            out.append(Finding(FINDING, f"{where}: the sweep does not pass the peak on the {side} side; "
+                                        "peak friction there is a lower bound"))
+    if rated_load_n and p.load_n > rated_load_n * 1.001:
+        out.append(Finding(FINDING, f"{where}: test load is above the rated load of {rated_load_n:.0f} N "
+                                    f"({100 * (p.load_n / rated_load_n - 1):.0f} % over)"))
+    if p.measured_pressure_kpa is not None:
+        dev = 100 * (p.measured_pressure_kpa / p.pressure_kpa - 1)
+        if abs(dev) > settings.pressure_tolerance_pct:
+            out.append(Finding(FINDING, f"{where}: measured pressure {p.measured_pressure_kpa:.0f} kPa is {dev:+.1f} % "
+                                        f"from the nominal {p.pressure_kpa:.0f} kPa"))
+    if p.rising is None or p.falling is None:
+        out.append(Finding(NOTE, f"{where}: only one sweep direction measured; relaxation lag is not cancelled"))
+    return out
+
+
+def _verdict(points, run_findings) -> tuple[str, list[str]]:
+    if not points:
+        return UNUSABLE, ["no operating point survived conditioning"]
+    blocking = [f.text for p in points for f in p.findings if f.severity == BLOCKING]
+    if len(blocking) == len(points):
+        return UNUSABLE, blocking
+    reasons = blocking + [f.text for p in points for f in p.findings if f.severity == FINDING]
+    reasons += [f.text for f in run_findings if f.severity == FINDING]
+    return (WITH_FINDINGS, reasons) if reasons else (SOUND, [])
+
+
+# --- levels --------------------------------------------------------------------------------
+
+def _levels(values: np.ndarray, hints, resolution: float) -> tuple[np.ndarray, bool]:
+    """Return the set-point levels: the hints, or levels detected from a histogram."""
+    if hints:
+        return np.asarray(sorted(hints), dtype=float), False
+    return detect_levels(values, resolution), True
+
+
+def detect_levels(values: np.ndarray, resolution: float) -> np.ndarray:
+    """Find the steady levels of a stepped channel: histogram peaks holding ≥ 3 % of the samples."""
+    resolution = max(float(resolution), 1e-9)
+    lo, hi = float(values.min()), float(values.max())
+    if hi - lo < resolution:
+        return np.array([float(np.median(values))])
+    edges = np.arange(lo, hi + resolution, resolution)
+    counts, edges = np.histogram(values, bins=edges)
+    levels = []
+    threshold = DETECT_MIN_SHARE * values.size
+    i = 0
+    while i < counts.size:
+        if counts[i] >= threshold:
+            j = i
+            while j + 1 < counts.size and counts[j + 1] >= threshold:
+                j += 1
+            block = (values >= edges[i]) & (values <= edges[j + 1])
+            levels.append(float(np.median(values[block])))
+            i = j + 1
+        else:
+            i += 1
+    return np.asarray(levels)
+
+
+def _assign(values, levels, tolerance):
+    idx = np.argmin(np.abs(values[:, None] - levels[None, :]), axis=1)
+    ok = np.abs(values - levels[idx]) <= tolerance[idx]
+    return idx, ok
+
+
+def _unmatched_levels(values, loads, tol_pct, n_total) -> list[tuple[float, int]]:
+    if values.size == 0:
+        return []
+    found = detect_levels(values, 0.03 * max(np.percentile(np.abs(values), 95), 1.0))
+    out = []
+    for level in found:
+        near = np.abs(values - level) <= tol_pct / 100.0 * max(abs(level), 1.0)
+        count = int(np.count_nonzero(near))
+        if count >= DETECT_MIN_SHARE * n_total and np.all(np.abs(loads - level) > tol_pct / 100.0 * loads):
+            out.append((float(level), count))
+    return out
+
+
+# --- sweeps and curves -----------------------------------------------------------------------
+
+def _sweep_direction(x: np.ndarray, min_step: float) -> np.ndarray:
+    """Label each sample +1 (rising), −1 (falling) or 0 (held still) by how the sweep moves there.
+
+    Movement is the change over ±2 samples; it must exceed both `min_step` and five times the
+    channel's own noise (from second differences, which a steady sweep rate does not affect),
+    so that noise on a held slip angle is not mistaken for a sweep.
+    """
+    n = x.size
+    d = np.zeros(n)
+    if n > 4:
+        d[2:-2] = x[4:] - x[:-4]
+    eps = min_step
+    if n > 3:
+        second = x[2:] - 2 * x[1:-1] + x[:-2]
+        sigma = 1.4826 * np.median(np.abs(second - np.median(second))) / np.sqrt(6.0)
+        eps = max(min_step, 5.0 * np.sqrt(2.0) * sigma)
+    return np.where(d > eps, 1, np.where(d < -eps, -1, 0)).astype(np.int8)
+
+
+def _after_stop(t: np.ndarray, direction: np.ndarray, window_s: float) -> np.ndarray:
+    """Flag held samples less than `window_s` after the sweep last moved (the lag is decaying)."""
+    moving = direction != 0
+    idx = np.where(moving, np.arange(t.size), -1)
+    np.maximum.accumulate(idx, out=idx)
+    last_move_t = np.where(idx >= 0, t[np.maximum(idx, 0)], -np.inf)
+    return ~moving & (t - last_move_t < window_s)
+
+
+def _run_in(x: np.ndarray, direction: np.ndarray, travel: float) -> np.ndarray:
+    """Flag the first `travel` of every moving stretch that starts from a hold (or the file start).
+
+    When a sweep starts from a held slip, the relaxation lag builds up over the first few tenths
+    of a degree; those samples belong to neither the lagging halves nor the steady state. A
+    reversal at the end of a half-sweep is not a start: the lag there is continuous.
+    """
+    moving = direction != 0
+    start = moving & np.r_[True, ~moving[:-1]]
+    seg = np.cumsum(start)
+    x0 = np.where(start, x, 0.0)
+    origin = x0[np.flatnonzero(start)][np.maximum(seg - 1, 0)] if np.any(start) else np.zeros_like(x)
+    return moving & (np.abs(x - origin) < travel)
+
+
+def _bin_curve(sweep, x, data, width, min_count) -> tuple[SlipCurve, int]:
+    bins = np.round(x / width).astype(np.int64)
+    uniq, inverse, counts = np.unique(bins, return_inverse=True, return_counts=True)
+    ok = counts >= min_count
+    sparse = int(counts[~ok].sum())
+
+    def mean(v):
+        return _frozen((np.bincount(inverse, weights=v, minlength=uniq.size) / counts)[ok])
+
+    curve = SlipCurve(sweep, mean(x), mean(data["fz"]),
+                      mean(data["fy"]) if "fy" in data else None,
+                      mean(data["mz"]) if "mz" in data else None,
+                      mean(data["fx"]) if "fx" in data else None,
+                      _frozen(counts[ok]), uniq[ok])
+    return curve, sparse
+
+
+def _line_near_zero(c: SlipCurve, y: np.ndarray | None) -> tuple[float, float] | None:
+    """Return (value at zero, slope) of a straight line through the points near zero slip.
+
+    Near zero slip means |x| ≤ 2° (slip angle) or 0.02 (slip ratio): wide enough to bridge the
+    gap a dropped run-in leaves in one half, narrow enough to stay close to linear.
+    """
+    if y is None:
+        return None
+    half = 2.0 if c.sweep == "slip_angle" else 0.02
+    near = np.abs(c.x) <= half
+    if np.count_nonzero(near) < 3 or not (np.any(c.x[near] < 0) and np.any(c.x[near] > 0)):
+        return None
+    slope, value = np.polyfit(c.x[near], y[near], 1)
+    return float(value), float(slope)
+
+
+def _hysteresis(rising, falling) -> Hysteresis | None:
+    if rising is None or falling is None:
+        return None
+    lr, lf = _line_near_zero(rising, rising.main), _line_near_zero(falling, falling.main)
+    if lr is None or lf is None:
+        return None
+    diff = lr[0] - lf[0]
+    mr, mf = _line_near_zero(rising, rising.mz_nm), _line_near_zero(falling, falling.mz_nm)
+    k = 0.5 * (lr[1] + lf[1])
+    # Rising half sees x − lag, falling half x + lag: F_r(0) − F_f(0) ≈ −2 k lag.
+    lag = None if k == 0 else float(-diff / (2.0 * k))
+    return Hysteresis(float(diff), None if mr is None or mf is None else float(mr[0] - mf[0]), lag)
+
+
+def _offsets(c: SlipCurve) -> ZeroSlipOffsets:
+    """Residual force and moment from straight lines through the steady curve near zero slip."""
+    fy_line = _line_near_zero(c, c.fy_n)
+    mz_line = _line_near_zero(c, c.mz_nm)
+    fy0 = None if fy_line is None else fy_line[0]
+    mz0 = None if mz_line is None else mz_line[0]
+    rcf = rat = None
+    if fy_line and mz_line and fy_line[1] != 0 and mz_line[1] != 0:
+        x_mz0 = -mz_line[0] / mz_line[1]  # slip angle where Mz = 0
+        x_fy0 = -fy_line[0] / fy_line[1]  # slip angle where Fy = 0
+        rcf = fy_line[0] + fy_line[1] * x_mz0
+        rat = mz_line[0] + mz_line[1] * x_fy0
+    return ZeroSlipOffsets(fy0, mz0, rcf, rat)
+
+
+# --- spikes --------------------------------------------------------------------------------
+
+def _spikes(x: np.ndarray, threshold: float) -> np.ndarray:
+    """Flag isolated spikes: samples far from the mean of their two neighbours.
+
+    The residual r_i = x_i − (x_{i−1} + x_{i+1})/2 removes the local trend, so a spike on the
+    steep part of a sweep is as visible as one on a plateau (a moving-median filter misses
+    it there). A sample is flagged when |r_i| exceeds `threshold` robust standard deviations
+    (1.4826·MAD of r over the run), is the largest |r| among its neighbours (so the two
+    neighbours, which see half of the spike, are kept) and its neighbours echo it with the
+    opposite sign (so a kink, where a sweep starts from a hold, is not taken for a spike).
+    """
+    if x.size < 3:
+        return np.zeros(x.size, dtype=bool)
+    r = np.zeros_like(x)
+    r[1:-1] = x[1:-1] - 0.5 * (x[:-2] + x[2:])
+    a = np.abs(r)
+    scale = 1.4826 * np.median(np.abs(r[1:-1] - np.median(r[1:-1]))) + 1e-12
+    local_max = np.zeros(x.size, dtype=bool)
+    local_max[1:-1] = (a[1:-1] >= a[:-2]) & (a[1:-1] >= a[2:])
+    # Both neighbours of a spike see about half of it with the opposite sign; a kink in the
+    # signal (a sweep starting from a hold) has neighbours near zero and is not a spike.
+    echoed = np.zeros(x.size, dtype=bool)
+    echoed[1:-1] = ((r[:-2] * r[1:-1] < 0) & (r[2:] * r[1:-1] < 0)
+                    & (np.minimum(a[:-2], a[2:]) > 0.25 * a[1:-1]))
+    return (a > threshold * scale) & local_max & echoed
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=float)
+    a.setflags(write=False)
+    return a
+
+
+def _frozen_bool(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=bool)
+    a.setflags(write=False)
+    return a

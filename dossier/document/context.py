@@ -1,0 +1,223 @@
+"""The one typed context every page renders from, site and PDF alike.
+
+:func:`make_context` gathers the results of every stage into a :class:`DossierContext`;
+:func:`with_narrative` adds the engineer's narrative, rendered against the facts.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+
+from markupsafe import Markup
+
+from .. import __version__
+
+from ..standards import axes
+
+from .cautions import CAUTIONS, CAUTIONS_ID
+from ..conditioning.steady_state import ConditionedRun, ConditioningAccount
+from ..conditioning.drift import DriftEstimate
+from .artifacts import FigureArtifact
+from ..model.fit import ChannelFit
+from ..project.manifest import Manifest, RunSpec, Specimen
+from ..project.catalogue import METRICS, MetricDefinition
+from ..metrics.evaluate import MetricValue
+from ..evaluation.identity import SpecimenIdentity, specimen_identity
+from ..conditioning.offsets import OffsetSplit
+from ..evaluation.vehicle import SIMPLIFICATIONS
+from ..common.names import slug
+
+
+@dataclass(frozen=True)
+class SpecimenView:
+    specimen: Specimen
+    page: str
+    accounts: tuple[ConditioningAccount, ...]
+    fits: tuple[ChannelFit, ...]  # fy, mz, fx as available
+    metrics: tuple[MetricValue, ...]
+    figures: tuple[FigureArtifact, ...]
+
+    identity: SpecimenIdentity | None = None
+
+    def metric(self, name: str, load_n: float) -> MetricValue | None:
+        return next((m for m in self.metrics if m.metric == name and math.isclose(m.load_n, load_n)), None)
+
+    @property
+    def loads(self) -> list[float]:
+        return sorted({m.load_n for m in self.metrics if METRICS[m.metric].per_load})
+
+    @property
+    def specimen_level(self) -> list[MetricValue]:
+        return [m for m in self.metrics if not METRICS[m.metric].per_load]
+
+    @property
+    def findings(self) -> list[str]:
+        return [f"{METRICS[m.metric].label} at {m.load_n / 1000:.1f} kN: {m.finding}" for m in self.metrics if m.finding]
+
+    @property
+    def fit(self) -> ChannelFit | None:
+        """The lateral-force fit, which the metrics come from."""
+        return next((f for f in self.fits if f.channel == "fy"), None)
+
+    def figures_of(self, channel: str) -> list[FigureArtifact]:
+        return [f for f in self.figures if f.filename.startswith(channel + "-")]
+
+
+@dataclass(frozen=True)
+class RunView:
+    """One rig run as the data-quality section shows it."""
+
+    run: ConditionedRun
+    spec: RunSpec
+    figures: tuple[FigureArtifact, ...]
+
+    @property
+    def account(self) -> ConditioningAccount:
+        return self.run.account
+
+
+@dataclass(frozen=True)
+class DossierContext:
+    """Everything a template may use. Templates get this one object as ``d``."""
+
+    manifest: Manifest
+    software_version: str
+    axis_convention: str
+    specimens: tuple[SpecimenView, ...]
+    summary_figures: tuple[FigureArtifact, ...]
+    metric_definitions: tuple[MetricDefinition, ...]
+    cautions: tuple[tuple[str, str], ...]
+    cautions_id: str
+    nominal_load_n: float
+    runs: tuple[RunView, ...] = ()
+    drift: DriftEstimate | None = None
+    drift_figures: tuple[FigureArtifact, ...] = ()
+    offset_splits: tuple[OffsetSplit, ...] = ()
+    quality_page: str = "data-quality.html"
+    comparison_page: str = "comparison.html"
+    vehicle_page: str = "vehicle.html"
+    verdicts: tuple = ()
+    standings: tuple = ()
+    recommendation: tuple = (None, "")
+    fitments: tuple = ()
+    comparison_figures: dict = field(default_factory=dict)
+    vehicle_simplifications: tuple[str, ...] = SIMPLIFICATIONS
+    narrative: dict = field(default_factory=dict)  # part -> rendered HTML (Markup)
+    downloads_page: str = "downloads.html"
+
+    @property
+    def signoff(self):
+        return self.manifest.signoff
+
+    @property
+    def status_label(self) -> str:
+        return {"draft": "DRAFT", "in review": "IN REVIEW", "released": "RELEASED"}[self.signoff.status]
+
+    @property
+    def vehicle(self):
+        return self.manifest.vehicle
+
+    @property
+    def targets(self):
+        return self.manifest.targets
+
+    def verdict(self, target, specimen_id):
+        return next((v for v in self.verdicts if v.target is target and v.specimen == specimen_id), None)
+
+    @property
+    def judged_specimens(self) -> list[str]:
+        return list(dict.fromkeys(v.specimen for v in self.verdicts))
+
+    def fitment(self, front: str, rear: str):
+        return next((b for b in self.fitments if b.front == front and b.rear == rear), None)
+
+    @property
+    def fitment_ids(self) -> list[str]:
+        return list(dict.fromkeys(b.front for b in self.fitments))
+
+    @property
+    def open_findings(self) -> list[str]:
+        """Everything a reviewer should see before signing, gathered from every stage."""
+        out = []
+        for v in self.verdicts:
+            if v.verdict in ("marginal", "does not meet"):
+                out.append(f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN "
+                           f"{v.verdict} the target {v.target.window} {v.unit} ({v.target.reference}): {v.reason}")
+        for view in self.specimens:
+            if view.identity:
+                out += [f"{view.specimen.id}: {f}" for f in view.identity.findings]
+            out += [f"{view.specimen.id}: {f}" for f in view.findings]
+            warnings = sum(len(f.warnings) for f in view.fits)
+            if warnings:
+                out.append(f"{view.specimen.id}: {warnings} fit warning(s) (poorly determined or correlated coefficients); "
+                           "see the fit reports")
+        for r in self.runs:
+            if r.account.verdict != "sound":
+                out.append(f"run {r.account.run_index} ({r.account.source_file}): {r.account.verdict}")
+        if self.drift:
+            mu = next((m for m in self.drift.metrics if m.metric == "peak_friction"), None)
+            if mu and abs(mu.over_session_pct) > 1.0:
+                out.append(f"the rig's force level drifted {mu.over_session_pct:+.1f} % over the session "
+                           f"({'corrected' if self.drift.corrected else 'not corrected'})")
+        return out
+
+    @property
+    def document(self):
+        return self.manifest.document
+
+    @property
+    def headline(self) -> list[MetricDefinition]:
+        return [m for m in self.metric_definitions if m.headline]
+
+    @property
+    def headline_groups(self) -> list[tuple[str, list[MetricDefinition]]]:
+        """The headline metrics in two tables, so that each fits a page width."""
+        titles = {"cornering": "Cornering and aligning", "camber_longitudinal": "Camber and longitudinal"}
+        out = []
+        for key, title in titles.items():
+            defs = [m for m in self.headline if m.group == key]
+            if defs:
+                out.append((title, defs))
+        return out
+
+    def summary_metrics(self, specimen_id: str, definitions=None) -> list[MetricValue | None]:
+        """Headline metrics of a specimen at the nominal load, in registry order (None: not measured)."""
+        view = next(v for v in self.specimens if v.specimen.id == specimen_id)
+        return [view.metric(m.name, self.nominal_load_n) for m in (definitions or self.headline)]
+
+
+def with_narrative(ctx: DossierContext, texts: dict[str, tuple[str, str]]) -> DossierContext:
+    """Return `ctx` with the narrative parts rendered (sandboxed template, then Markdown)."""
+    from dataclasses import replace
+
+    from .narrative import render_narrative
+
+    rendered = {part: Markup(render_narrative(rel, text, ctx)) for part, (rel, text) in texts.items()}
+    return replace(ctx, narrative=rendered)
+
+
+def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
+                 summary_figures, nominal_load_n: float, quality_figures=None, drift=None, drift_figures=(),
+                 offset_splits=(), judged=(), standings=(), recommendation=(None, ""), fitments=(),
+                 comparison_figures=None) -> DossierContext:
+    accounts = [c.account for c in conditioned]
+    quality_figures = quality_figures or {}
+    runs = tuple(RunView(c, manifest.runs[c.account.run_index], tuple(quality_figures.get(c.account.run_index, ())))
+                 for c in conditioned)
+    views = []
+    for s in manifest.specimens:
+        views.append(SpecimenView(
+            specimen=s, page=f"specimen-{slug(s.id)}.html",
+            accounts=tuple(a for a in accounts if a.specimen == s.id),
+            fits=tuple(next((m.channels for m in models if m.specimen == s.id), ())),
+            metrics=tuple(m for m in metrics if m.specimen == s.id),
+            figures=tuple(specimen_figures.get(s.id, ())),
+            identity=specimen_identity(s, manifest),
+        ))
+    return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
+                          tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n, runs, drift,
+                          tuple(drift_figures), tuple(offset_splits), verdicts=tuple(judged),
+                          standings=tuple(standings), recommendation=recommendation, fitments=tuple(fitments),
+                          comparison_figures=dict(comparison_figures or {}))

@@ -1,0 +1,39 @@
+"""Number formatting for the dossier: the filters every page and the narrative use.
+
+A number is formatted in one place so that the same value reads the same in a table, in the
+text and in the PDF: decimals by unit, thin-space thousands, an en dash for "no value".
+"""
+
+from __future__ import annotations
+
+import math
+
+DECIMALS = {"N/deg": 0, "1/deg": 4, "1": 3, "deg": 2, "mm": 1, "N·m/deg": 2, "N·m": 1, "N": 0, "1/kN": 4}
+
+
+def fmt_metric(value: float | None, unit: str) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:,.{DECIMALS.get(unit, 3)}f}".replace(",", "\u2009")
+
+
+def fmt_ci(ci, unit: str) -> str:
+    if not ci:
+        return "not estimable"
+    return f"{fmt_metric(ci[0], unit)} … {fmt_metric(ci[1], unit)}"
+
+
+def fmt_sig(value: float | None, digits: int = 4) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:.{digits}g}"
+
+
+def fmt_kn(value_n: float) -> str:
+    return f"{value_n / 1000:.1f}"
+
+
+def fmt_fixed(value: float | None, decimals: int = 1, signed: bool = False) -> str:
+    if value is None or not math.isfinite(value):
+        return "–"
+    return f"{value:{'+' if signed else ''}.{decimals}f}".replace("-", "−")

@@ -1,0 +1,203 @@
+"""The build, as a recipe: gather everything first, then write.
+
+load the project → condition → drift → offsets → fit and metrics → judge and compare → fitments →
+figures → context and narrative → results and provenance → site → PDF volumes (annexes, then the
+report that attaches them) → integrity manifest → write.
+
+:func:`assemble` is the pure core: it returns every file of the dossier as bytes and writes
+nothing (its cache is a memo of results it could recompute). :func:`build` is the loader, that
+core and the atomic writer. Every stage's results are cached by content (:mod:`.cache`), and the
+fits, metrics, figures and volumes are shared with worker processes (:mod:`.workers`).
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..common.errors import StageError
+from ..conditioning.drift import DriftEstimate, correct_points, estimate_drift
+from ..conditioning.offsets import split_offsets
+from ..conditioning.steady_state import UNUSABLE, ConditionedRun, condition_run
+from ..document.context import make_context, with_narrative
+from ..document.narrative import narrative_texts
+from ..document.pages import make_environment
+from ..document.pdf import pdf_job, render_pdf
+from ..document.site import render_site
+from ..document.theme import Theme, load_theme
+from ..document.volumes import ANNEXES, REPORT
+from ..evaluation.acceptance import verdicts as judge_targets
+from ..evaluation.comparison import compare_candidates
+from ..evaluation.vehicle import fitment_matrix
+from ..ingest.rig_table import parse_run
+from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n
+from ..project.load import Project, load_project
+from ..publish.environment import embedded_font_record, environment_record
+from ..publish.integrity import manifest_bytes, sha256, with_manifest
+from ..publish.layout import (ATTACHED_MANIFEST, BUILD_KEY, ENVIRONMENT_NAME, FONTS_NAME, INPUTS, PROVENANCE_NAME,
+                              RESULTS_NAME)
+from ..publish.provenance import Evidence, provenance_bytes, provenance_record
+from ..publish.results import coefficient_files, conditioned_data_files, results_record
+from ..publish.writer import json_bytes, refuse_sealed, write_dossier
+from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
+from .figure_jobs import figure_tasks, place_figures, run_figure_tasks
+from .freshness import build_key, output_is_current
+from .specimens import fit_specimens
+from .workers import WorkerPool
+
+
+@dataclass(frozen=True)
+class Dossier:
+    """Every file of a dossier (relative path -> bytes), as :func:`assemble` made them."""
+
+    files: dict[str, bytes]
+    n_fits: int
+    n_metrics: int
+
+
+@dataclass(frozen=True)
+class BuildSummary:
+    out_dir: Path
+    n_files: int
+    n_fits: int
+    n_metrics: int
+    reused: bool = False  # nothing changed: the output was left as it was
+    cache_hits: int = 0
+    cache_misses: int = 0
+
+
+def check(project: Project, cache: Cache | None = None) -> list[ConditionedRun]:
+    """Parse and condition every rig file of the loaded `project`, without fitting or writing.
+
+    With a `cache`, a run whose file bytes, run entry, conditioning settings and rated load are
+    unchanged is taken from the cache instead of parsed again.
+    """
+    manifest = project.manifest
+    cache = cache or Cache(None)
+
+    def conditioned_run(spec) -> ConditionedRun:
+        rated = rated_load_n(manifest.specimen(spec.specimen))
+        raw = project.files[spec.file]
+        key = digest("conditioned", spec, manifest.conditioning, rated, raw)
+        run = cache.get_or_compute(key, lambda: condition_run(parse_run(raw, spec), manifest.conditioning, rated))
+        return with_content_key(run, key)
+
+    conditioned = [conditioned_run(spec) for spec in manifest.runs]
+    for c in conditioned:
+        if c.account.verdict == UNUSABLE:
+            a = c.account
+            raise StageError(f"{a.source_file}: unusable after conditioning: {'; '.join(a.verdict_reasons)} "
+                             f"(dropped: {_dropped_text(a.dropped)}); check runs[{a.run_index}].load_setpoints "
+                             "and the [conditioning] settings")
+    return conditioned
+
+
+def build(project: Path | Project, out_dir: Path | None = None, theme_name: str = "default", *,
+          use_cache: bool = True, workers: int | None = None) -> BuildSummary:
+    """Build the dossier of `project` (a folder with ``dossier.toml``, or a loaded project) into `out_dir`.
+
+    With `use_cache`, results of unchanged stages come from ``PROJECT/.dossier-cache`` and a
+    rebuild whose every input, theme file and code file is unchanged leaves the output as it is.
+    `workers` processes (this one included; default: one per CPU) share the fits, metrics,
+    figures and PDF volumes; the output does not depend on their number.
+    """
+    if not isinstance(project, Project):
+        project = load_project(project)
+    out_dir = Path(out_dir) if out_dir else project.folder / "dossier-out"
+    refuse_sealed(out_dir)
+    theme = load_theme(theme_name)
+    key = build_key(project.files, theme.files, theme_name)
+    if use_cache and output_is_current(out_dir, key):
+        return BuildSummary(out_dir, -1, -1, -1, reused=True)
+    cache = Cache(project.folder / CACHE_DIR if use_cache else None)
+    with WorkerPool(workers or os.cpu_count() or 1) as pool:
+        if cache.folder is None or not cache.folder.is_dir():
+            pool.warm_up()  # nothing cached: every stage has work for the workers
+        dossier = assemble(project, theme, cache=cache, pool=pool)
+    # Start writing files now that all data is gathered.
+    write_dossier(out_dir, dossier.files, extra={BUILD_KEY: (key + "\n").encode()})
+    cache.prune()
+    return BuildSummary(out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits,
+                        cache_misses=cache.misses)
+
+
+def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Dossier:
+    """Every file of the dossier of `project` with `theme`, as bytes; nothing is written."""
+    manifest = project.manifest
+    cache = cache or Cache(None)
+    pool = pool or WorkerPool(1)
+    conditioned = check(project, cache)
+    measured = [p for c in conditioned for p in c.points]
+    fz0_n = nominal_load_n(manifest)
+    drift: DriftEstimate | None = None
+    if manifest.drift:
+        drift = estimate_drift(measured, manifest.drift.control, fz0_n)
+    points = measured
+    if drift and manifest.drift.correct:
+        points, drift = correct_points(measured, drift)
+    offset_splits = split_offsets(points)
+    p0_kpa = nominal_pressure_kpa(manifest)
+    models, metrics = fit_specimens(points, manifest, fz0_n, p0_kpa, cache=cache, pool=pool)
+    judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
+    standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
+    fitments = fitment_matrix(manifest, models)
+
+    style = theme.figure_style
+    tasks = figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa,
+                         style)
+    rendered = cache.get_or_compute(digest("figures", [(place, name, args[:-1]) for place, name, args in tasks],
+                                           style),
+                                    lambda: run_figure_tasks(tasks, pool))
+    specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(tasks, rendered)
+    facts = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
+                         quality_figures, drift, drift_figures, offset_splits,
+                         judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
+                         comparison_figures=comparison_figures)  # without the narrative: what the annexes show
+    ctx = with_narrative(facts, narrative_texts(manifest.narrative, project.files))
+    all_fits = [f for m in models for f in m.channels]
+    results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
+                             recommendation, fitments)
+    evidence = Evidence(tuple(conditioned), tuple(points), tuple(models), tuple(metrics), drift,
+                        tuple(offset_splits), tuple(judged), tuple(standings), recommendation, tuple(fitments),
+                        {name: sha256(data) for name, data in project.files.items()})
+    provenance = provenance_bytes(provenance_record(manifest, evidence))
+    data_files = {RESULTS_NAME: json_bytes(results), PROVENANCE_NAME: provenance,
+                  ENVIRONMENT_NAME: json_bytes(environment_record(theme.name)),
+                  **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
+    env = make_environment(theme, project.templates, cache.compiled_templates())
+    site = render_site(ctx, env, theme, data_files)
+    templates = {**theme.files, **{f"templates/{k}": v for k, v in project.templates.items()}}
+    annexes = render_volumes(ANNEXES, facts, env, site, templates, cache, pool)
+    archived = {f"{INPUTS}/{k}": v for k, v in project.files.items()}
+    # The report carries every other file of the dossier but the site, and the integrity manifest
+    # of all of them, so that the PDF alone can be checked and rebuilt from.
+    carried = {**data_files, **annexes, **archived}
+    others = {**{f"site/{k}": v for k, v in site.items()}, **carried}
+    report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool,
+                            {**carried, ATTACHED_MANIFEST: manifest_bytes(others)})
+    files = {**others, **report}
+    files[FONTS_NAME] = json_bytes(embedded_font_record({**annexes, **report}))
+    return Dossier(with_manifest(files), len(all_fits), len(metrics))
+
+
+def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[str, bytes], cache: Cache,
+                   pool: WorkerPool, attachments: dict[str, bytes] | None = None) -> dict[str, bytes]:
+    """Render PDF volumes from `ctx`; file name -> bytes.
+
+    Each volume is cached under everything it is made from: the volume, the context (whose
+    figures carry their bytes), the template and stylesheet files and the attachments. Only
+    volumes missing from the cache have their pages rendered, in the pool's workers.
+    """
+    made_from = digest("pdf", ctx, templates, attachments or {})
+    keys = {v.filename: digest("pdf", v, made_from) for v in volumes}
+    out = {name: cache.get(key) for name, key in keys.items()}
+    todo = [pdf_job(ctx, env, v, site, attachments) for v in volumes if out[v.filename] is MISSING]
+    for job, pdf in zip(todo, pool.map(render_pdf, todo, cost=lambda job: len(job.html))):
+        cache.put(keys[job.volume.filename], pdf)
+        out[job.volume.filename] = pdf
+    return out
+
+
+def _dropped_text(dropped: dict[str, int]) -> str:
+    return ", ".join(f"{v} {k}" for k, v in dropped.items() if v) or "none"

@@ -1,0 +1,70 @@
+"""The figure stage of the build as independent jobs, drawn in the pool's workers."""
+
+from __future__ import annotations
+
+from ..project.catalogue import METRICS
+from .specimens import points_of
+from .workers import WorkerPool
+
+
+def figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa, style):
+    """Every figure of the dossier as (place, function name, arguments): independent jobs."""
+    tasks = []
+    for m in models:
+        for fit in m.channels:
+            own = points_of(fit, points)
+            tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
+            other = [p for p in own if not p.at_nominal(fit.p0_kpa)]
+            if other:
+                tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
+            tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
+    for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail"):
+        if any(m.metric == name for m in metrics):
+            tasks.append((("summary",), "load_trend_figure",
+                          (name, METRICS[name].label, METRICS[name].unit, [m for m in metrics if m.metric == name], style)))
+    for c in conditioned:
+        tasks.append((("quality", c.account.run_index), "time_history_figure", (c, style)))
+        lateral = [p for p in c.points if p.rising is not None and p.falling is not None]
+        if lateral:
+            nearest = min(lateral, key=lambda p: (abs(p.load_n - fz0_n), p.camber_deg != 0.0))
+            tasks.append((("quality", c.account.run_index), "hysteresis_figure", (nearest, style)))
+    if drift:
+        tasks.append((("drift",), "drift_figure", (drift, style)))
+    if models:
+        tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "fy", fz0_n, p0_kpa, style)))
+        if any(m.mz for m in models):
+            tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "mz", fz0_n, p0_kpa, style)))
+            tasks.append((("comparison", "comparison"), "gough_figure", (models, fz0_n, style)))
+    if standings:
+        tasks.append((("comparison", "comparison"), "difference_figure", (standings, style)))
+    if fitments and manifest.vehicle:
+        tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (fitments, manifest.vehicle, style)))
+    return tasks
+
+def _render_task(task):
+    from ..document import figures
+
+    _, name, args = task
+    return getattr(figures, name)(*args)
+
+# Relative drawing time of each kind of figure (measured on the demo), to start the dearest first.
+FIGURE_COST = {"time_history_figure": 1.5, "conditions_figure": 1.4, "residual_figure": 1.0, "channel_figure": 0.9}
+
+def run_figure_tasks(tasks, pool: WorkerPool) -> list:
+    """Render every figure in the pool's workers (the SVG bytes do not depend on their number)."""
+    return pool.map(_render_task, tasks, cost=lambda task: FIGURE_COST.get(task[1], 1.0))
+
+def place_figures(tasks, rendered):
+    specimen, summary, quality, drift, comparison = {}, [], {}, [], {"comparison": [], "vehicle": []}
+    for (place, _, _), fig in zip(tasks, rendered):
+        if place[0] == "specimen":
+            specimen.setdefault(place[1], []).append(fig)
+        elif place[0] == "summary":
+            summary.append(fig)
+        elif place[0] == "quality":
+            quality.setdefault(place[1], []).append(fig)
+        elif place[0] == "drift":
+            drift.append(fig)
+        else:
+            comparison[place[1]].append(fig)
+    return specimen, summary, quality, drift, comparison

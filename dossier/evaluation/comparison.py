@@ -1,0 +1,158 @@
+"""Comparison: every candidate against the baseline, with intervals and the rig's repeatability.
+
+A difference of a metric (candidate − baseline) has a 95 % interval from both specimens'
+standard errors (independent fits). Where the control tire was re-tested, the scatter of its
+repeats about the drift line is the rig's repeatability for cornering stiffness and peak
+friction; a difference counts as real when its interval excludes zero *and* it exceeds twice
+that repeatability (common practice). The summary in words is built from these numbers only.
+"""
+
+from __future__ import annotations
+
+from ..project.manifest import Manifest
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..evaluation.acceptance import FAILS, MARGINAL, MEETS, Verdict
+from ..conditioning.drift import DriftEstimate
+from ..project.catalogue import METRICS
+from ..metrics.evaluate import MetricValue
+
+COMPARED = ("cornering_stiffness", "cornering_coefficient", "peak_lateral_friction", "slip_angle_at_peak",
+            "pneumatic_trail", "camber_stiffness", "longitudinal_slip_stiffness", "peak_driving_friction",
+            "peak_braking_friction")
+REPEATABILITY_OF = {"cornering_stiffness": "cornering_stiffness_n_per_deg", "cornering_coefficient":
+                    "cornering_stiffness_n_per_deg", "peak_lateral_friction": "peak_friction"}
+
+
+@dataclass(frozen=True)
+class Difference:
+    metric: str
+    unit: str
+    load_n: float
+    candidate: str
+    baseline: str
+    candidate_value: float
+    baseline_value: float
+    diff: float
+    diff_ci95: tuple[float, float] | None
+    diff_pct: float
+    repeatability_pct: float | None  # 1σ of the control repeats, % of their mean
+    significant: bool
+    normalised: float | None = None  # diff / target half-width (or tolerance), for the chart
+    normalised_by: str = ""
+
+
+@dataclass(frozen=True)
+class Standing:
+    """A candidate's standing: its differences, its verdict counts and a sentence built from them."""
+
+    candidate: str
+    differences: tuple[Difference, ...]
+    meets: int
+    marginal: int
+    fails: int
+    text: str
+
+
+def repeatability_pct(drift: DriftEstimate | None) -> dict[str, float]:
+    """1σ scatter of the control repeats about the drift line, % of the mean (needs ≥ 3 repeats)."""
+    if drift is None or len(drift.repeats) < 3:
+        return {}
+    t = np.array([(r.tested_at - drift.reference_time).total_seconds() / 3600.0 for r in drift.repeats])
+    out = {}
+    for name in ("cornering_stiffness_n_per_deg", "peak_friction"):
+        y = np.array([getattr(r, name) for r in drift.repeats], dtype=float)
+        k = np.polyfit(t, y, 1)
+        resid = y - np.polyval(k, t)
+        out[name] = float(100.0 * np.sqrt(np.sum(resid**2) / (y.size - 2)) / np.mean(y))
+    return out
+
+
+def compare(baseline: str, candidates: list[str], metrics: list[MetricValue], load_n: float,
+            drift: DriftEstimate | None, verdicts: list[Verdict]) -> list[Standing]:
+    """Compare every candidate with the baseline at `load_n`; one Standing per candidate."""
+    rep = repeatability_pct(drift)
+    at = {(m.specimen, m.metric): m for m in metrics if math.isclose(m.load_n, load_n)}
+    windows = {}
+    for v in verdicts:
+        t = v.target
+        if t.minimum is not None and t.maximum is not None and math.isclose(t.load_n, load_n):
+            windows[t.metric] = (0.5 * (t.maximum - t.minimum), f"half the target window of {t.metric}")
+    out = []
+    for c in candidates:
+        diffs = []
+        for name in COMPARED:
+            a, b = at.get((c, name)), at.get((baseline, name))
+            if a is None or b is None:
+                continue
+            d = a.value - b.value
+            ci = None
+            if a.stderr is not None and b.stderr is not None:
+                sd = math.hypot(a.stderr, b.stderr)
+                ci = (d - 1.96 * sd, d + 1.96 * sd)
+            pct = 100.0 * d / b.value if b.value else float("nan")
+            r = rep.get(REPEATABILITY_OF.get(name, ""))
+            excludes_zero = ci is not None and (ci[0] > 0 or ci[1] < 0)
+            beyond_rig = r is None or abs(pct) > 2.0 * r * math.sqrt(2.0)  # difference of two tests
+            norm, by = None, ""
+            if name in windows:
+                norm, by = d / windows[name][0], windows[name][1]
+            elif r:
+                norm, by = pct / (2.0 * r * math.sqrt(2.0)), "twice the rig repeatability of the difference"
+            diffs.append(Difference(name, a.unit, load_n, c, baseline, a.value, b.value, d, ci, pct, r,
+                                    excludes_zero and beyond_rig, norm, by))
+        mine = [v for v in verdicts if v.specimen == c]
+        counts = {k: sum(1 for v in mine if v.verdict == k) for k in (MEETS, MARGINAL, FAILS)}
+        out.append(Standing(c, tuple(diffs), counts[MEETS], counts[MARGINAL], counts[FAILS],
+                            _sentence(c, baseline, diffs, mine, counts)))
+    return out
+
+
+def _sentence(c, baseline, diffs, mine, counts) -> str:
+    real = [d for d in diffs if d.significant]
+    parts = []
+    for d in real[:4]:
+        parts.append(f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f} %")
+    same = [METRICS[d.metric].label.lower() for d in diffs if not d.significant][:3]
+    text = f"{c} against {baseline}: "
+    text += ("real differences in " + ", ".join(parts)) if parts else "no difference beyond the uncertainty"
+    if same:
+        text += "; within the uncertainty: " + ", ".join(same)
+    if mine:
+        text += (f". Targets: {counts[MEETS]} met, {counts[MARGINAL]} marginal, {counts[FAILS]} not met"
+                 f" of {len(mine)}")
+        bad = [f"{METRICS[v.target.metric].label.lower()} ({v.verdict})" for v in mine if v.verdict in (MARGINAL, FAILS)]
+        if bad:
+            text += ": " + ", ".join(bad)
+    return text + "."
+
+
+def recommend(standings: list[Standing]) -> tuple[str | None, str]:
+    """Pick the candidate with no target failed, then fewest marginal, then most met; say why."""
+    if not standings:
+        return None, "no candidate to compare"
+    ranked = sorted(standings, key=lambda s: (s.fails, s.marginal, -s.meets, s.candidate))
+    best = ranked[0]
+    if best.fails:
+        return None, (f"no candidate meets every target; the closest is {best.candidate} "
+                      f"({best.fails} not met, {best.marginal} marginal)")
+    why = f"{best.candidate} meets {best.meets} target(s)"
+    why += f" with {best.marginal} marginal" if best.marginal else " with none marginal"
+    others = [s for s in ranked[1:]]
+    if others:
+        why += "; " + "; ".join(f"{s.candidate}: {s.meets} met, {s.marginal} marginal, {s.fails} not met" for s in others)
+    return best.candidate, why
+
+
+def compare_candidates(manifest: Manifest, metrics, fz0_n, drift, judged):
+    """Every candidate against the baseline at the nominal load, and the recommended candidate."""
+    base = next((s.id for s in manifest.specimens if s.role == "baseline"), None)
+    candidates = [s.id for s in manifest.specimens if s.role == "candidate"]
+    if base is None or not candidates:
+        return [], (None, "no baseline and candidates to compare")
+    standings = compare(base, candidates, metrics, fz0_n, drift, judged)
+    return standings, recommend(standings)

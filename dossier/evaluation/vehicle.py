@@ -1,0 +1,127 @@
+"""Vehicle balance from tire data: the steady-state understeer gradient of a two-axle vehicle.
+
+Gillespie, *Fundamentals of Vehicle Dynamics* (SAE, 1992), ch. 6; Milliken & Milliken, *Race Car
+Vehicle Dynamics* (1995). Linear range only: K = Wf/Cαf − Wr/Cαr in deg/g with axle loads (N)
+and axle cornering stiffnesses (N/deg); K > 0 understeer, K < 0 oversteer. Characteristic speed
+(K > 0) V = sqrt(57.3 L g / K); critical speed (K < 0) V = sqrt(−57.3 L g / K); yaw-rate gain
+r/δ = (V/L) / (1 + K V² / (57.3 L g)). Simplifications (stated in the dossier): no roll steer,
+compliance steer, lateral load transfer or aligning-torque effects; tires in their linear range.
+"""
+
+from __future__ import annotations
+
+from ..metrics.evaluate import single_metric
+from ..model.fit import SpecimenModel
+from ..project.manifest import Manifest
+from ..standards.units import STANDARD_GRAVITY_M_PER_S2
+
+import math
+from dataclasses import dataclass
+
+DEG_PER_RAD = 180.0 / math.pi  # the "57.3" of the handbook formulas
+NEUTRAL_BAND_DEG_PER_G = 0.05  # |K| below this is called neutral (common practice)
+
+SIMPLIFICATIONS = (
+    "steady-state cornering in the tires' linear range (small slip angles, lateral acceleration well below the limit)",
+    "each tire at its static load: no lateral load transfer, no roll steer, no compliance steer",
+    "no aligning-torque, camber-thrust or traction effects; the rig's cornering stiffness stands for the road's",
+)
+
+
+@dataclass(frozen=True)
+class AxleFitment:
+    """What is fitted on one axle: the specimen and how many tires carry the axle."""
+
+    specimen: str
+    tires: int  # 2 for singles, 4 for duals, 2 for wide-base singles
+    kind: str  # "single", "dual" or "wide-base single"
+
+
+@dataclass(frozen=True)
+class Balance:
+    """The linear handling of one front/rear fitment."""
+
+    front: str
+    rear: str
+    front_tire_load_n: float
+    rear_tire_load_n: float
+    front_axle_stiffness_n_per_deg: float
+    rear_axle_stiffness_n_per_deg: float
+    understeer_gradient_deg_per_g: float
+    understeer_gradient_ci95: tuple[float, float] | None
+    characteristic_speed_kmh: float | None  # K > 0
+    critical_speed_kmh: float | None  # K < 0
+    character: str  # "understeer", "neutral", "oversteer"
+    extrapolated: bool = False
+
+
+def understeer_gradient_deg_per_g(front_axle_load_n: float, rear_axle_load_n: float,
+                                  front_axle_stiffness_n_per_deg: float, rear_axle_stiffness_n_per_deg: float) -> float:
+    """K = Wf/Cαf − Wr/Cαr in deg/g (Gillespie 1992, ch. 6); loads in N, stiffnesses in N/deg per axle."""
+    return front_axle_load_n / front_axle_stiffness_n_per_deg - rear_axle_load_n / rear_axle_stiffness_n_per_deg
+
+
+def characteristic_speed_kmh(k_deg_per_g: float, wheelbase_m: float) -> float | None:
+    """V = sqrt(57.3 L g / K) for K > 0, km/h."""
+    return None if k_deg_per_g <= 0 else 3.6 * math.sqrt(DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+
+
+def critical_speed_kmh(k_deg_per_g: float, wheelbase_m: float) -> float | None:
+    """V = sqrt(−57.3 L g / K) for K < 0, km/h."""
+    return None if k_deg_per_g >= 0 else 3.6 * math.sqrt(-DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+
+
+def yaw_rate_gain_per_s(speed_kmh: float, k_deg_per_g: float, wheelbase_m: float) -> float:
+    """r/δ = (V/L)/(1 + K V²/(57.3 L g)) in (rad/s) per rad of road-wheel steer."""
+    v = speed_kmh / 3.6
+    denom = 1.0 + k_deg_per_g * v * v / (DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2)
+    return float("inf") if denom <= 0 else (v / wheelbase_m) / denom
+
+
+def character(k_deg_per_g: float) -> str:
+    if abs(k_deg_per_g) < NEUTRAL_BAND_DEG_PER_G:
+        return "neutral"
+    return "understeer" if k_deg_per_g > 0 else "oversteer"
+
+
+def balance(front: AxleFitment, rear: AxleFitment, front_axle_load_n: float, rear_axle_load_n: float,
+            wheelbase_m: float, stiffness_n_per_deg, extrapolated=lambda specimen, load: False) -> Balance:
+    """Understeer gradient of a fitment; `stiffness_n_per_deg(specimen, tire_load_n)` → (value, stderr | None)."""
+    fl = front_axle_load_n / front.tires
+    rl = rear_axle_load_n / rear.tires
+    cf, sf = stiffness_n_per_deg(front.specimen, fl)
+    cr, sr = stiffness_n_per_deg(rear.specimen, rl)
+    caf, car = front.tires * cf, rear.tires * cr
+    k = understeer_gradient_deg_per_g(front_axle_load_n, rear_axle_load_n, caf, car)
+    ci = None
+    if sf is not None and sr is not None:
+        # delta method: dK/dCαf = −Wf/Cαf², dK/dCαr = +Wr/Cαr²; the two tires' errors independent
+        # unless the same specimen is on both axles (then fully correlated: worst case, added linearly).
+        gf = -front_axle_load_n / caf**2 * front.tires * sf
+        gr = rear_axle_load_n / car**2 * rear.tires * sr
+        sd = abs(gf) + abs(gr) if front.specimen == rear.specimen else math.hypot(gf, gr)
+        ci = (k - 1.96 * sd, k + 1.96 * sd)
+    return Balance(front.specimen, rear.specimen, fl, rl, caf, car, k, ci,
+                   characteristic_speed_kmh(k, wheelbase_m), critical_speed_kmh(k, wheelbase_m), character(k),
+                   extrapolated(front.specimen, fl) or extrapolated(rear.specimen, rl))
+
+
+def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
+    """Understeer gradient of every front × rear pairing of the fitted specimens (no controls)."""
+    v = manifest.vehicle
+    if v is None:
+        return []
+    by_id = {m.specimen: m for m in models if m.fy is not None}
+    ids = [s.id for s in manifest.specimens if s.role != "control" and s.id in by_id]
+
+    def stiffness(sid, load):
+        mv = single_metric(by_id[sid], "cornering_stiffness", load)
+        return mv.value, mv.stderr
+
+    def extrapolated(sid, load):
+        lo, hi = by_id[sid].fy.load_range_n
+        return not (0.98 * lo <= load <= 1.02 * hi)
+
+    return [balance(AxleFitment(f, v.front.tires, v.front.kind), AxleFitment(r, v.rear.tires, v.rear.kind),
+                    v.front_axle_load_n, v.rear_axle_load_n, v.wheelbase_m, stiffness, extrapolated)
+            for f in ids for r in ids]

@@ -1,0 +1,433 @@
+"""Metrics: the numbers the trade reads, from the fitted models, each with a 95 % interval.
+
+Every metric is declared once in :data:`METRICS`: name, label, unit, definition, how it is
+computed, the source that defines it, which fitted channels it needs, and the function that
+computes it. The glossary, the tables and ``results.json`` all read this registry; adding a
+metric is one entry here.
+
+Intervals come from the fit covariance by the delta method: the metric's gradient with
+respect to the fitted coefficients, ``var = gᵀ Σ g``, summed over the channels it uses (the
+channels are treated as independent: Mz0 is fitted given Fy0), times the Student-t quantile
+of the fit. Metrics are evaluated at zero camber and the nominal pressure p0, at any load:
+loads outside the fitted range are labelled extrapolation.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from ..conditioning import estimates
+from ..conditioning.steady_state import OperatingPoint
+from ..model.fit import SpecimenModel
+from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
+
+SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
+SLIP_STEP_RATIO = 1e-5
+GRID_DEG = 0.05
+GRID_RATIO = 0.001
+
+
+Values = dict[str, dict[str, float]]  # channel -> coefficient values
+
+
+@dataclass(frozen=True)
+class MetricValue:
+    """One metric of one specimen at one operating condition."""
+
+    metric: str
+    unit: str
+    specimen: str
+    load_n: float
+    camber_deg: float
+    pressure_kpa: float
+    value: float
+    stderr: float | None
+    ci95: tuple[float, float] | None
+    basis: str  # "model"
+    extrapolated: bool
+    note: str = ""
+    crosscheck: float | None = None  # model-free estimate from the conditioned data
+    crosscheck_diff_pct: float | None = None
+    finding: str = ""
+
+
+# --- evaluation helpers -----------------------------------------------------------------------
+
+def _fy(m: SpecimenModel, x, load, v: Values):
+    return m.fy.predict(x, load, values=v["fy"])
+
+
+def _mz(m: SpecimenModel, x, load, v: Values):
+    return m.mz.predict(x, load, values=v["mz"])
+
+
+def _fx(m: SpecimenModel, x, load, v: Values):
+    return m.fx.predict(x, load, values=v["fx"])
+
+
+def _slope(f, h):
+    return float(_slopes(f, h))
+
+
+def _slopes(f, h):
+    """Central-difference slope at zero of `f`; element-wise when `f` returns an array."""
+    return (f(h) - f(-h)) / (2 * h)
+
+
+def _value_at(f, x: float) -> float:
+    """A vectorised `f` at one point."""
+    return float(np.asarray(f(np.array([x])), dtype=float)[0])
+
+
+def _side_peak(f, edge: float, sign: float, step: float) -> tuple[float, float, bool]:
+    """Return (|y|max, |x| at it, reached inside the range) of f on one side of zero, up to `edge`."""
+    grid = np.arange(0.0, edge + step / 2, step)
+    y = np.abs(f(sign * grid))
+    i = int(np.argmax(y))
+    if i == 0 or i == grid.size - 1:
+        return float(y[i]), float(grid[i]), False
+    x, top = _refine_max(lambda a: np.abs(f(sign * a)), grid[i - 1], grid[i + 1])
+    return top, x, True
+
+
+REFINE_POINTS = 129  # points of the fine grid inside a bracket (searches refine in one vectorised call)
+
+
+def _refine_max(f, lo: float, hi: float) -> tuple[float, float]:
+    """Where the smooth, vectorised `f` is largest between `lo` and `hi` (a bracket of its maximum),
+    and its value there: the best point of a fine grid, a finer grid around it, then the vertex of
+    the parabola through the best point and its neighbours."""
+    for _ in range(2):
+        x = np.linspace(lo, hi, REFINE_POINTS)
+        y = np.asarray(f(x), dtype=float)
+        j = int(np.clip(np.argmax(y), 1, x.size - 2))
+        lo, hi = float(x[j - 1]), float(x[j + 1])
+    curvature = y[j - 1] - 2.0 * y[j] + y[j + 1]
+    best_x, best_y = float(x[j]), float(y[j])
+    if curvature < 0.0:
+        vertex = best_x + 0.5 * (y[j - 1] - y[j + 1]) / curvature * (x[1] - x[0])
+        at_vertex = _value_at(f, vertex)
+        if at_vertex >= best_y:
+            return vertex, at_vertex
+    return best_x, best_y
+
+
+def _refine_root(f, lo: float, hi: float) -> float:
+    """The root of the smooth, vectorised `f` between `lo` and `hi` (where it changes sign): the
+    sign change on a fine grid, again on a finer grid inside it, then two secant steps."""
+    for _ in range(2):
+        x = np.linspace(lo, hi, REFINE_POINTS)
+        y = np.asarray(f(x), dtype=float)
+        if y[0] == 0.0:
+            return float(x[0])
+        change = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
+        j = int(change[0]) if change.size else x.size - 2
+        lo, hi = float(x[j]), float(x[j + 1])
+    a, b, fa, fb = lo, hi, float(y[j]), float(y[j + 1])
+    for _ in range(2):
+        if fb == fa:
+            break
+        c = b - fb * (b - a) / (fb - fa)
+        fc = _value_at(f, c)
+        if fc == 0.0:
+            return c
+        if np.sign(fc) == np.sign(fa):
+            a, fa = c, fc
+        else:
+            b, fb = c, fc
+    return a - fa * (b - a) / (fb - fa) if fb != fa else 0.5 * (a + b)
+
+
+_PEAK_MEMO: dict = {}
+
+
+def _memo_peak(channel: str, m: SpecimenModel, load, v: Values, sign: float, step: float):
+    """One side's peak of a channel, remembered for the evaluation under way.
+
+    Several metrics read the same peak (friction, where it occurs, retention), and the interval
+    of each perturbs the same coefficients by the same steps: the search runs once per distinct
+    set of coefficient values. The memo holds the fit it was computed for (so that its id cannot be
+    reused) and is emptied at the start of every evaluation.
+    """
+    fit = m.get(channel)
+    key = (channel, id(fit), float(load), sign, tuple(v[channel].values()))
+    hit = _PEAK_MEMO.get(key)
+    if hit is None:
+        lo, hi = fit.slip_range
+        hit = (fit, _side_peak(lambda x: fit.predict(x, load, values=v[channel]), hi if sign > 0 else -lo, sign, step))
+        _PEAK_MEMO[key] = hit
+    return hit[1]
+
+
+def _lateral_peak(m, load, v, sign):
+    return _memo_peak("fy", m, load, v, sign, GRID_DEG)
+
+
+def _mz_peak(m, load, v, sign):
+    return _memo_peak("mz", m, load, v, sign, GRID_DEG)
+
+
+def _fx_peak(m, load, v, sign):
+    return _memo_peak("fx", m, load, v, sign, GRID_RATIO)
+
+
+def cornering_stiffness(m, load, v):
+    return -_slope(lambda a: _fy(m, a, load, v), SLIP_STEP_DEG)
+
+
+def _linear_range_side(m, load, v, sign):
+    k = -cornering_stiffness(m, load, v)  # dFy/dα, N/deg (negative in ISO 8855)
+    f0 = float(_fy(m, 0.0, load, v))
+    lo, hi = m.fy.slip_range
+    edge = hi if sign > 0 else -lo
+
+    def excess(a):
+        lin = k * sign * a
+        return np.abs(_fy(m, sign * a, load, v) - f0 - lin) - LINEAR_RANGE_FRACTION * np.abs(lin)
+
+    grid = np.arange(0.05, edge, 0.05)
+    vals = excess(grid)
+    above = np.flatnonzero(vals > 0)
+    if above.size == 0:
+        return None
+    i = above[0]
+    if i == 0:
+        return float(grid[0])
+    return _refine_root(excess, grid[i - 1], grid[i])
+
+
+def _both(fn):
+    def mean(m, load, v):
+        a, b = fn(m, load, v, 1.0), fn(m, load, v, -1.0)
+        return None if a is None or b is None else 0.5 * (a + b)
+    return mean
+
+
+def _retention_side(m, load, v, sign):
+    peak, _, _ = _lateral_peak(m, load, v, sign)
+    lo, hi = m.fy.slip_range
+    edge = hi if sign > 0 else lo
+    return float(abs(_fy(m, edge, load, v)) / peak)
+
+
+def aligning_stiffness(m, load, v):
+    return _slope(lambda a: _mz(m, a, load, v), SLIP_STEP_DEG)
+
+
+def pneumatic_trail_mm(m, load, v):
+    dfy = -cornering_stiffness(m, load, v)
+    return 1000.0 * -aligning_stiffness(m, load, v) / dfy if dfy else None
+
+
+def _root_near_zero(f, half=3.0):
+    grid = np.linspace(-half, half, 121)
+    y = np.asarray(f(grid), dtype=float)
+    s = np.flatnonzero(np.sign(y[:-1]) != np.sign(y[1:]))
+    if s.size == 0:
+        return None
+    i = s[np.argmin(np.abs(grid[s]))]
+    return _refine_root(f, grid[i], grid[i + 1])
+
+
+def residual_cornering_force(m, load, v):
+    a = _root_near_zero(lambda x: _mz(m, x, load, v))
+    return None if a is None else float(_fy(m, a, load, v))
+
+
+def residual_aligning_moment(m, load, v):
+    a = _root_near_zero(lambda x: _fy(m, x, load, v))
+    return None if a is None else float(_mz(m, a, load, v))
+
+
+def camber_stiffness(m, load, v):
+    if not any(c.status == "fitted" and c.name in ("pVy3", "pVy4", "pHy3", "pKy3") for c in m.fy.coefficients):
+        return None  # no cambered data: camber dependence held at its default
+    h = 1e-3
+    return float((m.fy.predict(0.0, load, h, values=v["fy"]) - m.fy.predict(0.0, load, -h, values=v["fy"])) / (2 * h))
+
+
+def slip_stiffness(m, load, v):
+    return _slope(lambda k: _fx(m, k, load, v), SLIP_STEP_RATIO)
+
+
+def _peak_mu_at(m, load, v):
+    return 0.5 * (_lateral_peak(m, load, v, 1.0)[0] + _lateral_peak(m, load, v, -1.0)[0]) / load
+
+
+def friction_load_sensitivity(m, load, v):
+    fz0 = m.fy.fz0_n
+    h = 0.05 * fz0
+    return float((_peak_mu_at(m, fz0 + h, v) - _peak_mu_at(m, fz0 - h, v)) / (2 * h / 1000.0))
+
+
+def load_at_max_cornering_stiffness(m, load, v):
+    fz0 = m.fy.fz0_n
+
+    def stiffness(fz):  # the cornering stiffness for an array of loads
+        return -_slopes(lambda a: _fy(m, a, np.asarray(fz, dtype=float), v), SLIP_STEP_DEG)
+
+    grid = np.linspace(0.2 * fz0, 4.0 * fz0, 381)
+    i = int(np.argmax(stiffness(grid)))
+    if i == 0 or i == grid.size - 1:
+        return float(grid[i])  # the stiffness still rises at the end of the searched range
+    return _refine_max(stiffness, grid[i - 1], grid[i + 1])[0]
+
+
+# How each metric of the catalogue (:mod:`dossier.project.catalogue`) is computed: metric name ->
+# f(models, load_n, coefficient values) -> value or None.
+COMPUTE: dict[str, Callable[[SpecimenModel, float, Values], float | None]] = {
+    "cornering_stiffness": cornering_stiffness,
+    "cornering_coefficient": lambda m, L, v: cornering_stiffness(m, L, v) / L,
+    "peak_lateral_friction": lambda m, L, v: _peak_mu_at(m, L, v),
+    "peak_lateral_friction_positive_slip": lambda m, L, v: _lateral_peak(m, L, v, 1.0)[0] / L,
+    "peak_lateral_friction_negative_slip": lambda m, L, v: _lateral_peak(m, L, v, -1.0)[0] / L,
+    "slip_angle_at_peak": lambda m, L, v: 0.5 * (_lateral_peak(m, L, v, 1.0)[1] + _lateral_peak(m, L, v, -1.0)[1]),
+    "slip_angle_at_peak_positive_slip": lambda m, L, v: _lateral_peak(m, L, v, 1.0)[1],
+    "slip_angle_at_peak_negative_slip": lambda m, L, v: _lateral_peak(m, L, v, -1.0)[1],
+    "linear_range": _both(_linear_range_side),
+    "post_peak_retention": _both(_retention_side),
+    "aligning_stiffness": aligning_stiffness,
+    "pneumatic_trail": pneumatic_trail_mm,
+    "peak_aligning_moment": lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[0] + _mz_peak(m, L, v, -1.0)[0]),
+    "slip_angle_at_peak_aligning_moment": lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[1] + _mz_peak(m, L, v, -1.0)[1]),
+    "residual_cornering_force": residual_cornering_force,
+    "residual_aligning_moment": residual_aligning_moment,
+    "camber_stiffness": camber_stiffness,
+    "camber_coefficient": lambda m, L, v: None if camber_stiffness(m, L, v) is None else camber_stiffness(m, L, v) / L,
+    "longitudinal_slip_stiffness": slip_stiffness,
+    "peak_driving_friction": lambda m, L, v: _fx_peak(m, L, v, 1.0)[0] / L,
+    "slip_ratio_at_peak_driving": lambda m, L, v: _fx_peak(m, L, v, 1.0)[1],
+    "peak_braking_friction": lambda m, L, v: _fx_peak(m, L, v, -1.0)[0] / L,
+    "slip_ratio_at_peak_braking": lambda m, L, v: _fx_peak(m, L, v, -1.0)[1],
+    "friction_load_sensitivity": friction_load_sensitivity,
+    "load_at_max_cornering_stiffness": load_at_max_cornering_stiffness,
+}
+if set(COMPUTE) != set(METRICS):  # the catalogue and the functions must name the same metrics
+    raise ImportError(f"metrics without a function or functions without a metric: {sorted(set(COMPUTE) ^ set(METRICS))}")
+
+
+# --- evaluation ----------------------------------------------------------------------------
+
+# Metrics whose value is a bound when the sweep does not pass the peak: channel and sides checked.
+_BOTH = (1.0, -1.0)
+PEAK_BOUND: dict[str, tuple[str, tuple[float, ...]]] = {
+    **{n: ("fy", _BOTH) for n in ("peak_lateral_friction", "peak_lateral_friction_positive_slip",
+                                  "peak_lateral_friction_negative_slip", "slip_angle_at_peak",
+                                  "slip_angle_at_peak_positive_slip", "slip_angle_at_peak_negative_slip",
+                                  "post_peak_retention")},
+    "peak_driving_friction": ("fx", (1.0,)), "slip_ratio_at_peak_driving": ("fx", (1.0,)),
+    "peak_braking_friction": ("fx", (-1.0,)), "slip_ratio_at_peak_braking": ("fx", (-1.0,)),
+}
+
+def metric_values(models: SpecimenModel, load_n: float, points: list[OperatingPoint] = (),
+                  crosscheck_threshold_pct: float = 5.0) -> list[MetricValue]:
+    """Return every per-load metric the specimen's models support at `load_n`, with intervals.
+
+    `points` are the specimen's conditioned operating points; where one was measured at this
+    load at the nominal condition, model-free estimates are attached to the cornering stiffness
+    and peak friction, and a difference above `crosscheck_threshold_pct` becomes a finding.
+    """
+    return _evaluate(models, load_n, [m for m in METRICS.values() if m.per_load], points, crosscheck_threshold_pct)
+
+
+def specimen_metrics(models: SpecimenModel) -> list[MetricValue]:
+    """Return the per-specimen metrics (load sensitivity) at the nominal load."""
+    if models.fy is None:
+        return []
+    return _evaluate(models, models.fy.fz0_n, [m for m in METRICS.values() if not m.per_load], (), 5.0)
+
+
+def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValue]:
+    _PEAK_MEMO.clear()
+    base: Values = {c: models.get(c).values for c in ("fy", "mz", "fx") if models.get(c) is not None}
+    ref = models.fy or models.fx
+    out = []
+    found: dict[tuple[str, float], bool] = {}
+
+    def reached(kind: str, sign: float) -> bool:
+        """Whether the model's peak lies inside the measured range on that side (computed once)."""
+        if (kind, sign) not in found:
+            side = _lateral_peak if kind == "fy" else _fx_peak
+            found[(kind, sign)] = side(models, load_n, base, sign)[2]
+        return found[(kind, sign)]
+
+    nominal_pts = [p for p in points if p.load_n == load_n and p.sweep == "slip_angle"
+                   and p.rolling_direction == "forward" and ref is not None and p.at_nominal(ref.p0_kpa)]
+    for d in definitions:
+        if any(models.get(c) is None for c in d.channels):
+            continue
+        value = COMPUTE[d.name](models, load_n, base)
+        if value is None:
+            continue
+        fits = [models.get(c) for c in d.channels]
+        lo = max(f.load_range_n[0] for f in fits)
+        hi = min(f.load_range_n[1] for f in fits)
+        at = value if d.name == "load_at_max_cornering_stiffness" else load_n
+        extrapolated = not (lo * 0.98 <= at <= hi * 1.02)
+        sd = _delta_stderr(models, d, load_n, base)
+        notes = []
+        if d.name in PEAK_BOUND:
+            kind, signs = PEAK_BOUND[d.name]
+            if not all(reached(kind, sgn) for sgn in signs):
+                notes.append("peak not reached inside the measured slip range: value is a bound")
+                if d.name.startswith(("slip_angle", "slip_ratio")) or d.name == "post_peak_retention":
+                    sd = None  # the location of a peak that was not reached has no interval
+        if extrapolated:
+            notes.append("outside the measured load range: extrapolated")
+        t95 = max(f.t95 for f in fits)
+        ci = None if sd is None else (value - t95 * sd, value + t95 * sd)
+        cc = diff = None
+        finding = ""
+        if nominal_pts and d.name in ("cornering_stiffness", "peak_lateral_friction"):
+            fn = estimates.cornering_stiffness_n_per_deg if d.name == "cornering_stiffness" else estimates.peak_friction
+            vals = [fn(p.curve) for p in nominal_pts]
+            vals = [x for x in vals if x is not None]
+            if vals:
+                cc = float(np.mean(vals))
+                diff = 100.0 * (value / cc - 1.0)
+                if abs(diff) > threshold:
+                    finding = (f"model and data disagree by {diff:+.1f} % (threshold {threshold:g} %): "
+                               "check the fit near zero slip / at the peak")
+        ref_fit = fits[0]
+        out.append(MetricValue(d.name, d.unit, models.specimen, float(load_n), 0.0, ref_fit.p0_kpa, float(value), sd, ci,
+                               "model", extrapolated, "; ".join(notes), cc, diff, finding))
+    return out
+
+
+def _delta_stderr(models: SpecimenModel, d: MetricDefinition, load_n: float, base: Values) -> float | None:
+    var = 0.0
+    any_finite = False
+    for channel in d.channels:
+        fit = models.get(channel)
+        names = fit.fitted_names
+        cov = fit.covariance
+        finite = np.array([np.isfinite(cov[i, i]) for i in range(len(names))], dtype=bool)
+        if not np.any(finite):
+            continue
+        any_finite = True
+        g = np.zeros(len(names))
+        for i, name in enumerate(names):
+            if not finite[i]:
+                continue
+            cv = base[channel]
+            h = max(0.05 * np.sqrt(cov[i, i]), 1e-9 * max(abs(cv[name]), 1.0))
+            up = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] + h}})
+            dn = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] - h}})
+            if up is None or dn is None:
+                return None
+            g[i] = (up - dn) / (2 * h)
+        sub = np.ix_(finite, finite)
+        var += float(g[finite] @ cov[sub] @ g[finite])
+    return float(np.sqrt(max(var, 0.0))) if any_finite else None
+
+
+def single_metric(models: SpecimenModel, name: str, load_n: float) -> MetricValue | None:
+    """Return one metric at one load (for vehicle balance), or None if the models cannot give it."""
+    d = METRICS[name]
+    if any(models.get(c) is None for c in d.channels):
+        return None
+    found = _evaluate(models, load_n, [d], (), 5.0)
+    return found[0] if found else None

@@ -1,0 +1,2 @@
+"""The model: the Magic Formula equations and their fitting, with the fit statistics.
+"""

@@ -1,0 +1,111 @@
+"""Cross-reference checks of a validated manifest: what one key says about another.
+
+Duplicate ids, references to unknown specimens, a sweep's required channels, target windows,
+sign-off, drift control, vehicle geometry. Pure: nothing here reads a file (the loader checks
+that the files the manifest names exist and reads them, :mod:`dossier.project.load`).
+"""
+
+from __future__ import annotations
+
+from ..standards import sidewall
+from ..common.errors import Problem
+from .manifest import REQUIRED_CHANNELS, SWEEP_CHANNELS, quantity_value
+from .validation import suggest
+
+def check_references(data: dict, problems: list[Problem]) -> None:
+    """Append a located problem for every inconsistency between the keys of `data`."""
+    specimens = data.get("specimens") or []
+    ids = [s["id"] for s in specimens if s and s.get("id")]
+    seen: set[str] = set()
+    for i, s in enumerate(specimens):
+        if s and s.get("id") in seen:
+            problems.append(Problem(f"specimens[{i}].id", f"duplicate specimen id {s['id']!r}"))
+        if s and s.get("id"):
+            seen.add(s["id"])
+    for i, s in enumerate(specimens):
+        if s and s.get("size") and sidewall.parse_size(s["size"]) is None:
+            problems.append(Problem(f"specimens[{i}].size", f"cannot read {s['size']!r} as a size designation; "
+                                    "expected e.g. '225/45 R17 94W', 'LT265/75R16 123/120R' or '295/75R22.5 144/141L'"))
+        if s and s.get("tin"):
+            try:
+                sidewall.parse_tin(s["tin"])
+            except sidewall.SidewallError as exc:
+                problems.append(Problem(f"specimens[{i}].tin", str(exc)))
+    baselines = [s for s in specimens if s and s.get("role") == "baseline"]
+    if specimens and len(baselines) > 1:
+        problems.append(Problem("specimens", f"at most one specimen may have role 'baseline'; got {len(baselines)}"))
+    for i, run in enumerate(data.get("runs") or []):
+        if not run:
+            continue
+        sid = run.get("specimen")
+        if sid and ids and sid not in ids:
+            problems.append(Problem(f"runs[{i}].specimen", f"no specimen with id {sid!r}{suggest(sid, ids)}; known ids: {', '.join(ids)}"))
+        columns = run.get("columns") or {}
+        if run.get("columns") is not None:
+            sweep = run.get("sweep") or "slip_angle"
+            for ch in REQUIRED_CHANNELS + SWEEP_CHANNELS.get(sweep, ()):
+                if ch not in columns:
+                    problems.append(Problem(f"runs[{i}].columns.{ch}",
+                                            f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})"))
+        cambers = run.get("camber_setpoints_deg") or []
+        if run.get("columns") is not None and len(cambers) > 1 and "inclination" not in columns:
+            problems.append(Problem(f"runs[{i}].columns.inclination",
+                                    f"is required when the run has {len(cambers)} camber set-points"))
+        if run.get("delimiter") and run.get("decimal") and run["delimiter"] == run["decimal"]:
+            problems.append(Problem(f"runs[{i}].decimal", f"cannot equal the delimiter {run['delimiter']!r}"))
+    for i, t in enumerate(data.get("targets") or []):
+        if not t:
+            continue
+        kinds = [k for k in ("minimum", "maximum") if t.get(k) is not None]
+        nominal = t.get("nominal") is not None or t.get("tolerance") is not None
+        if nominal and kinds:
+            problems.append(Problem(f"targets[{i}]", "give either minimum/maximum or nominal and tolerance, not both"))
+        elif nominal and (t.get("nominal") is None or t.get("tolerance") is None):
+            problems.append(Problem(f"targets[{i}]", "nominal and tolerance go together; one of them is missing"))
+        elif not nominal and not kinds:
+            problems.append(Problem(f"targets[{i}]", "needs a window: minimum, maximum, or nominal and tolerance"))
+        elif t.get("minimum") is not None and t.get("maximum") is not None and t["minimum"] > t["maximum"]:
+            problems.append(Problem(f"targets[{i}].minimum", f"is above the maximum ({t['minimum']!r} > {t['maximum']!r})"))
+        for j, sid in enumerate(t.get("specimens") or []):
+            if sid and ids and sid not in ids:
+                problems.append(Problem(f"targets[{i}].specimens[{j}]", f"no specimen with id {sid!r}{suggest(sid, ids)}"))
+    so = data.get("signoff")
+    if so and so.get("status") == "released":
+        approvers = [p for p in (so.get("people") or []) if p and p.get("role") == "approver" and p.get("date")]
+        if not approvers:
+            problems.append(Problem("signoff.people", "a released revision needs an approver with a date"))
+    revs = [r.get("revision") for r in (data.get("revisions") or []) if r]
+    doc = data.get("document") or {}
+    if revs and doc.get("revision") and doc["revision"] not in revs:
+        problems.append(Problem("revisions", f"has no entry for the document's revision {doc['revision']!r}"))
+    v = data.get("vehicle")
+    if v:
+        by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
+        by_load = v.get("front_axle_load") is not None or v.get("rear_axle_load") is not None
+        if by_mass == by_load:
+            problems.append(Problem("vehicle", "give either mass and cg_to_front_axle, or front_axle_load and rear_axle_load"))
+        elif by_mass and (v.get("mass") is None or v.get("cg_to_front_axle") is None):
+            problems.append(Problem("vehicle", "mass and cg_to_front_axle go together; one of them is missing"))
+        elif by_load and (v.get("front_axle_load") is None or v.get("rear_axle_load") is None):
+            problems.append(Problem("vehicle", "front_axle_load and rear_axle_load go together; one of them is missing"))
+        elif by_mass and v.get("wheelbase") and v.get("cg_to_front_axle"):
+            L = quantity_value(v["wheelbase"], "length")
+            b = quantity_value(v["cg_to_front_axle"], "length")
+            if not 0 < b < L:
+                problems.append(Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m"))
+    drift = data.get("drift")
+    if drift and drift.get("control") and ids:
+        ctl = drift["control"]
+        roles = {s["id"]: s.get("role") for s in specimens if s and s.get("id")}
+        if ctl not in roles:
+            problems.append(Problem("drift.control", f"no specimen with id {ctl!r}{suggest(ctl, ids)}"))
+        elif roles[ctl] != "control":
+            problems.append(Problem("drift.control", f"specimen {ctl!r} must have role 'control'; got {roles[ctl]!r}"))
+        untimed = [i for i, r in enumerate(data.get("runs") or []) if r and not r.get("tested_at")]
+        if untimed:
+            problems.append(Problem(f"runs[{untimed[0]}].tested_at",
+                                    "is required for every run when [drift] is set (drift is estimated over time)"))
+    used = {r.get("specimen") for r in (data.get("runs") or []) if r}
+    for i, s in enumerate(specimens):
+        if s and s.get("id") and s["id"] not in used and data.get("runs"):
+            problems.append(Problem(f"specimens[{i}]", f"specimen {s['id']!r} has no rig run; add a [[runs]] entry or remove it"))

@@ -1,0 +1,282 @@
+"""The manifest's typed result: what a project declares, as immutable dataclasses.
+
+:func:`typed_manifest` turns a validated document (see :mod:`dossier.project.schema`) into a
+:class:`Manifest`, converting every quantity into the internal units.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ..standards import units
+from ..standards.statics import static_axle_loads_n
+
+MANIFEST_NAME = "dossier.toml"
+ROLES = ("baseline", "candidate", "control")
+STATUSES = ("draft", "in review", "released")
+SIGNOFF_ROLES = ("author", "checker", "approver")
+NARRATIVE_PARTS = ("summary", "test_notes", "conclusions")
+
+# Channels a rig file may carry: channel -> quantity (for its unit).
+CHANNELS: dict[str, str] = {
+    "time": "time",
+    "slip_angle": "angle",
+    "inclination": "angle",
+    "slip_ratio": "slip_ratio",
+    "fz": "force",
+    "fy": "force",
+    "fx": "force",
+    "mz": "moment",
+    "mx": "moment",
+    "my": "moment",
+    "pressure": "pressure",
+    "speed": "speed",
+}
+SWEEPS = ("slip_angle", "slip_ratio")
+# Channels every run needs, and those its sweep needs in addition.
+REQUIRED_CHANNELS = ("time", "fz")
+SWEEP_CHANNELS = {"slip_angle": ("slip_angle", "fy"), "slip_ratio": ("slip_ratio", "fx")}
+
+
+
+@dataclass(frozen=True)
+class DocumentInfo:
+    title: str
+    number: str
+    revision: str
+    customer: str
+    program: str
+    supplier: str | None
+    authors: tuple[str, ...]
+    date: dt.date
+
+
+@dataclass(frozen=True)
+class Specimen:
+    id: str
+    role: str
+    size: str
+    construction: str
+    rated_load_n: float | None
+    unloaded_radius_m: float | None = None
+    tin: str | None = None
+
+
+@dataclass(frozen=True)
+class ColumnSpec:
+    name: str
+    unit: str
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    index: int
+    specimen: str
+    file: str  # relative to the project folder, POSIX separators
+    lab: str
+    axis_convention: str
+    delimiter: str
+    decimal: str
+    header_line: int
+    skip_after_header: int
+    columns: dict[str, ColumnSpec]
+    load_setpoints_n: tuple[float, ...] | None  # None: detect the load steps from the data
+    camber_setpoints_deg: tuple[float, ...] | None  # None: detect (or 0 without an inclination channel)
+    pressure_kpa: float
+    sweep: str = "slip_angle"
+    rolling_direction: str = "forward"
+    tested_at: dt.datetime | None = None
+
+    @property
+    def location(self) -> str:
+        return f"runs[{self.index}]"
+
+
+@dataclass(frozen=True)
+class ConditioningSettings:
+    settling_s: float = 1.0
+    load_tolerance_pct: float = 8.0
+    camber_tolerance_deg: float = 0.3
+    slip_bin_deg: float = 0.5
+    slip_ratio_bin: float = 0.01
+    slip_settling_s: float = 0.5
+    sweep_run_in_deg: float = 1.0
+    sweep_run_in_ratio: float = 0.02
+    min_samples_per_bin: int = 3
+    spike_threshold_mad: float = 6.0
+    min_slip_range_deg: float = 6.0
+    min_points_per_curve: int = 12
+    pressure_tolerance_pct: float = 3.0
+
+
+@dataclass(frozen=True)
+class Target:
+    index: int
+    metric: str
+    load_n: float
+    minimum: float | None
+    maximum: float | None
+    camber_deg: float
+    pressure_kpa: float | None
+    reference: str
+    specimens: tuple[str, ...] | None  # None: every specimen that is not a control
+
+    @property
+    def window(self) -> str:
+        if self.minimum is not None and self.maximum is not None:
+            return f"{self.minimum:g} … {self.maximum:g}"
+        return f"≥ {self.minimum:g}" if self.minimum is not None else f"≤ {self.maximum:g}"
+
+
+@dataclass(frozen=True)
+class AxleSpec:
+    tires: int
+    kind: str
+
+
+@dataclass(frozen=True)
+class VehicleSpec:
+    name: str
+    wheelbase_m: float
+    front_axle_load_n: float
+    rear_axle_load_n: float
+    front: AxleSpec
+    rear: AxleSpec
+    speeds_kmh: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class Person:
+    name: str
+    role: str
+    organisation: str | None
+    date: dt.date | None
+
+
+@dataclass(frozen=True)
+class SignOff:
+    status: str
+    people: tuple[Person, ...]
+
+    @property
+    def released(self) -> bool:
+        return self.status == "released"
+
+    @property
+    def approver(self) -> Person | None:
+        return next((p for p in self.people if p.role == "approver" and p.date), None)
+
+
+@dataclass(frozen=True)
+class Revision:
+    revision: str
+    date: dt.date
+    description: str
+
+
+@dataclass(frozen=True)
+class MetricSettings:
+    loads_n: tuple[float, ...] = ()
+    crosscheck_threshold_pct: float = 5.0
+
+
+@dataclass(frozen=True)
+class DriftSettings:
+    control: str
+    correct: bool = False
+
+
+@dataclass(frozen=True)
+class FitSettings:
+    nominal_load_n: float | None = None
+    nominal_pressure_kpa: float | None = None
+    leave_one_load_out: bool = True
+    loss: str = "soft_l1"
+    max_evaluations: int = 4000
+
+
+@dataclass(frozen=True)
+class Manifest:
+    project_dir: Path
+    document: DocumentInfo
+    specimens: tuple[Specimen, ...]
+    runs: tuple[RunSpec, ...]
+    conditioning: ConditioningSettings = field(default_factory=ConditioningSettings)
+    fit: FitSettings = field(default_factory=FitSettings)
+    drift: DriftSettings | None = None
+    metrics: MetricSettings = field(default_factory=MetricSettings)
+    targets: tuple[Target, ...] = ()
+    vehicle: VehicleSpec | None = None
+    signoff: SignOff = field(default_factory=lambda: SignOff("draft", ()))
+    revisions: tuple[Revision, ...] = ()
+    narrative: dict[str, str] = field(default_factory=dict)  # part -> relative path
+    sha256: str = ""  # of the manifest file as read
+
+    def specimen(self, specimen_id: str) -> Specimen:
+        return next(s for s in self.specimens if s.id == specimen_id)
+
+
+def typed_manifest(data: dict, project_dir: Path) -> Manifest:
+    """The :class:`Manifest` of a document that passed validation."""
+    d = data["document"]
+    document = DocumentInfo(d["title"], d["number"], d["revision"], d["customer"], d["program"],
+                            d["supplier"], tuple(d["authors"]), d["date"])
+    specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"],
+                               s["unloaded_radius_m"], s["tin"])
+                      for s in data["specimens"])
+    runs = []
+    for i, r in enumerate(data["runs"]):
+        loads = None
+        if r["load_setpoints"]:
+            force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
+            loads = tuple(v * force_factor for v in r["load_setpoints"]["values"])
+        pressure_factor = units.factor_to_internal("pressure", r["pressure"]["unit"])
+        runs.append(RunSpec(
+            index=i, specimen=r["specimen"], file=r["file"], lab=r["lab"] or "",
+            axis_convention=r["axis_convention"], delimiter=r["delimiter"], decimal=r["decimal"],
+            header_line=r["header_line"], skip_after_header=r["skip_after_header"],
+            columns={k: ColumnSpec(v["name"], v["unit"]) for k, v in r["columns"].items()},
+            load_setpoints_n=loads,
+            camber_setpoints_deg=tuple(r["camber_setpoints_deg"]) if r["camber_setpoints_deg"] else None,
+            pressure_kpa=r["pressure"]["value"] * pressure_factor,
+            sweep=r["sweep"], rolling_direction=r["rolling_direction"], tested_at=r["tested_at"],
+        ))
+    cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
+    fit = FitSettings(**data["fit"]) if data.get("fit") else FitSettings()
+    drift = DriftSettings(**data["drift"]) if data.get("drift") else None
+    met = data.get("metrics")
+    metrics = MetricSettings(tuple(met["loads_n"] or ()), met["crosscheck_threshold_pct"]) if met else MetricSettings()
+    targets = tuple(_target(i, t) for i, t in enumerate(data.get("targets") or []))
+    so = data.get("signoff")
+    signoff = SignOff(so["status"], tuple(Person(p["name"], p["role"], p["organisation"], p["date"])
+                                         for p in so["people"])) if so else SignOff("draft", ())
+    revisions = tuple(Revision(r["revision"], r["date"], r["description"]) for r in data.get("revisions") or [])
+    narrative = {k: v for k, v in (data.get("narrative") or {}).items() if v}
+    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics, targets,
+                    _vehicle(data["vehicle"]) if data.get("vehicle") else None, signoff, revisions, narrative)
+
+
+def _target(i: int, t: dict) -> Target:
+    lo, hi = t["minimum"], t["maximum"]
+    if t["nominal"] is not None:
+        lo, hi = t["nominal"] - t["tolerance"], t["nominal"] + t["tolerance"]
+    return Target(i, t["metric"], t["load_n"], lo, hi, t["camber_deg"], t["pressure_kpa"], t["reference"],
+                  tuple(t["specimens"]) if t["specimens"] else None)
+
+
+def quantity_value(q: dict, quantity: str) -> float:
+    """A validated ``{ value, unit }`` table in the internal unit of `quantity`."""
+    return q["value"] * units.factor_to_internal(quantity, q["unit"])
+
+
+def _vehicle(v: dict) -> VehicleSpec:
+    L = quantity_value(v["wheelbase"], "length")
+    if v["mass"]:
+        front, rear = static_axle_loads_n(quantity_value(v["mass"], "mass"), L, quantity_value(v["cg_to_front_axle"], "length"))
+    else:
+        front, rear = quantity_value(v["front_axle_load"], "force"), quantity_value(v["rear_axle_load"], "force")
+    speeds = tuple(v["speeds_kmh"]) if v["speeds_kmh"] else tuple(float(x) for x in range(20, 201, 10))
+    return VehicleSpec(v["name"], L, front, rear, AxleSpec(v["front"]["tires"], v["front"]["kind"]),
+                       AxleSpec(v["rear"]["tires"], v["rear"]["kind"]), speeds)
