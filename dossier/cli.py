@@ -28,12 +28,22 @@ def cli() -> None:
 
 @cli.command()
 @click.argument("project", type=click.Path(path_type=Path))
-@click.option("--out", "out_dir", type=click.Path(path_type=Path), default=None,
-              help="Output folder (default: PROJECT/dossier-out). Replaced only if made by dossier.")
+@click.option(
+    "--out",
+    "out_dir",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Output folder (default: PROJECT/dossier-out). Replaced only if made by dossier.",
+)
 @click.option("--theme", default="default", show_default=True, help="Theme name.")
 @click.option("--no-cache", is_flag=True, help="Recompute every stage (ignore PROJECT/.dossier-cache).")
-@click.option("--workers", type=click.IntRange(1, 64), default=None,
-              help="Processes for fits, metrics, figures and PDF volumes, this one included (default: one per CPU); the output does not depend on it.")
+@click.option(
+    "--workers",
+    type=click.IntRange(1, 64),
+    default=None,
+    help="Processes for fits, metrics, figures and PDF volumes, this one included (default: "
+    "one per CPU); the output does not depend on it.",
+)
 def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, workers: int | None) -> None:
     """Build the dossier of PROJECT (a folder with dossier.toml)."""
     from .project.load import load_project
@@ -52,9 +62,11 @@ def build(project: Path, out_dir: Path | None, theme: str, no_cache: bool, worke
     if summary.reused:
         click.echo(f"{summary.out_dir}: up to date (inputs, theme and software unchanged; output verified)")
         return
-    click.echo(f"dossier written to {summary.out_dir}: {summary.n_fits} fitted channel(s), {summary.n_metrics} metric "
-               f"values, {summary.n_files} files (site/index.html, dossier.pdf, results.json); "
-               f"cache: {summary.cache_hits} reused, {summary.cache_misses} computed")
+    click.echo(
+        f"dossier written to {summary.out_dir}: {summary.n_fits} fitted channel(s), {summary.n_metrics} metric "
+        f"values, {summary.n_files} files (site/index.html, dossier.pdf, results.json); "
+        f"cache: {summary.cache_hits} reused, {summary.cache_misses} computed"
+    )
 
 
 @cli.command()
@@ -67,8 +79,10 @@ def check(project: Path) -> None:
     conditioned = run_check(load_project(project))
     for c in conditioned:
         a = c.account
-        click.echo(f"{a.source_file}: {a.n_samples} samples, {a.n_kept} kept, "
-                   f"{a.operating_points_found} operating point(s): {a.verdict}")
+        click.echo(
+            f"{a.source_file}: {a.n_samples} samples, {a.n_kept} kept, "
+            f"{a.operating_points_found} operating point(s): {a.verdict}"
+        )
         for reason in a.verdict_reasons:
             click.echo(f"    {reason}")
     click.echo(f"{project}: manifest and {len(conditioned)} rig file(s) OK")
@@ -76,8 +90,13 @@ def check(project: Path) -> None:
 
 @cli.command()
 @click.argument("target", type=click.Path(path_type=Path))
-@click.option("--public-key", "public_keys", type=click.Path(path_type=Path), multiple=True,
-              help="PEM file of an Ed25519 public key you trust (the supplier's, the approver's); repeat for each.")
+@click.option(
+    "--public-key",
+    "public_keys",
+    type=click.Path(path_type=Path),
+    multiple=True,
+    help="PEM file of an Ed25519 public key you trust (the supplier's, the approver's); repeat for each.",
+)
 @click.option("--rebuild", is_flag=True, help="Also rebuild from the archived inputs and compare every file.")
 def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
     """Check a built dossier TARGET (its folder, or its report PDF alone).
@@ -110,16 +129,24 @@ def verify(target: Path, public_keys: tuple[Path, ...], rebuild: bool) -> None:
     if report.state == integrity.FAILED or (rebuilt and not rebuilt.reproduced):
         raise VerifyError(f"{target}: verification failed")
     if report.state == integrity.UNCHECKED:
-        raise UncheckedError(f"{target}: the files are intact and the signatures consistent, but not every signer "
-                             "was checked: pass --public-key with the public key of each signer you trust")
-    click.echo(f"{target}: all files match the integrity manifest"
-               + ("; every signature checked against a key given" if report.signatures else ""))
+        raise UncheckedError(
+            f"{target}: the files are intact and the signatures consistent, but not every signer "
+            "was checked: pass --public-key with the public key of each signer you trust"
+        )
+    click.echo(
+        f"{target}: all files match the integrity manifest"
+        + ("; every signature checked against a key given" if report.signatures else "")
+    )
 
 
 @cli.command()
 @click.argument("out", type=click.Path(path_type=Path))
-@click.option("--private-key", type=click.Path(path_type=Path), required=True,
-              help="PEM file of the supplier's Ed25519 private key (read, never copied).")
+@click.option(
+    "--private-key",
+    type=click.Path(path_type=Path),
+    required=True,
+    help="PEM file of the supplier's Ed25519 private key (read, never copied).",
+)
 @click.option("--signer", default=None, help="Name of the person sealing (default: the first author).")
 @click.option("--organisation", default=None, help="Their organisation (default: the supplier).")
 def seal(out: Path, private_key: Path, signer: str | None, organisation: str | None) -> None:
@@ -142,32 +169,68 @@ def digest(out: Path) -> None:
 
 @cli.command()
 @click.argument("out", type=click.Path(path_type=Path), required=False)
-@click.option("--private-key", type=click.Path(path_type=Path), required=True,
-              help="PEM file of the approver's own Ed25519 private key (read, never copied).")
-@click.option("--statement", type=click.Choice(["approved", "approved with deviation", "rejected"]), required=True,
-              help="What the approver states about this revision.")
+@click.option(
+    "--private-key",
+    type=click.Path(path_type=Path),
+    required=True,
+    help="PEM file of the approver's own Ed25519 private key (read, never copied).",
+)
+@click.option(
+    "--statement",
+    type=click.Choice(["approved", "approved with deviation", "rejected"]),
+    required=True,
+    help="What the approver states about this revision.",
+)
 @click.option("--reason", default="", help="Why (required for a deviation or a rejection).")
 @click.option("--signer", required=True, help="The approver's name.")
 @click.option("--organisation", default="", help="The approver's organisation.")
-@click.option("--digest", "digest_hex", default=None,
-              help="Countersign this digest (from `dossier digest`) instead of a dossier folder; needs --document, --revision and --signature-out.")
+@click.option(
+    "--digest",
+    "digest_hex",
+    default=None,
+    help="Countersign this digest (from `dossier digest`) instead of a dossier folder; needs "
+    "--document, --revision and --signature-out.",
+)
 @click.option("--document", default=None, help="With --digest: the document number.")
 @click.option("--revision", default=None, help="With --digest: the revision.")
-@click.option("--signature-out", type=click.Path(path_type=Path), default=None,
-              help="With --digest: where to write the signature file (then put it into the dossier's signatures/).")
-def countersign(out: Path | None, private_key: Path, statement: str, reason: str, signer: str, organisation: str,
-                digest_hex: str | None, document: str | None, revision: str | None,
-                signature_out: Path | None) -> None:
+@click.option(
+    "--signature-out",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="With --digest: where to write the signature file (then put it into the dossier's signatures/).",
+)
+def countersign(
+    out: Path | None,
+    private_key: Path,
+    statement: str,
+    reason: str,
+    signer: str,
+    organisation: str,
+    digest_hex: str | None,
+    document: str | None,
+    revision: str | None,
+    signature_out: Path | None,
+) -> None:
     """Countersign a sealed dossier OUT as the customer's approver, with your own key."""
-    from .publish.archive import countersign as run_countersign
     from .common.errors import UserError as _UserError
+    from .publish.archive import countersign as run_countersign
 
     if (out is None) == (digest_hex is None):
         raise _UserError("countersign: give either the dossier folder OUT or --digest (not both)")
     if digest_hex is not None and signature_out is None:
         raise _UserError("--signature-out: needed with --digest (where to write the signature file)")
-    path = run_countersign(private_key, statement, reason, signer, organisation, folder=out, digest_hex=digest_hex,
-                           document=document, revision=revision, out=signature_out)
+    path = run_countersign(
+        private_key,
+        statement,
+        reason,
+        signer,
+        organisation,
+        folder=out,
+        digest_hex=digest_hex,
+        document=document,
+        revision=revision,
+        out=signature_out,
+    )
     click.echo(f"countersigned ({statement}): {path}")
 
 
@@ -190,8 +253,10 @@ def keygen(private_key: Path, public_key: Path) -> None:
     from .publish.archive import keygen as run_keygen
 
     run_keygen(private_key, public_key)
-    click.echo(f"private key: {private_key} (keep it on your machine, out of any dossier folder)\n"
-               f"public key: {public_key} (give it to whoever verifies your signatures)")
+    click.echo(
+        f"private key: {private_key} (keep it on your machine, out of any dossier folder)\n"
+        f"public key: {public_key} (give it to whoever verifies your signatures)"
+    )
 
 
 @cli.command()
@@ -230,7 +295,7 @@ def main(argv: list[str] | None = None) -> int:
             except UserError as exc:
                 click.echo(f"error: {exc}", err=True)
                 return exc.exit_code
-            except Exception:  # noqa: BLE001 - the last line of defence
+            except Exception:
                 click.echo("internal error (a bug in dossier; please report it with the text below):", err=True)
                 click.echo(traceback.format_exc(), err=True)
                 return EXIT_INTERNAL
@@ -239,8 +304,6 @@ def main(argv: list[str] | None = None) -> int:
             interrupts.acknowledge(exc)
             click.echo(guard.message(command), err=True)
             return interrupts.exit_code(exc)
-
-
 
 
 def run() -> None:

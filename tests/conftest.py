@@ -38,7 +38,7 @@ def demo_builds(tmp_path_factory):
         out, err = proc.communicate()
         results.append((proc.returncode, out, err))
     third = run_dossier("build", project, "--out", base / "seed3", "--workers", "2", hash_seed=3)
-    for code, out, err in (*results, third):
+    for code, _, err in (*results, third):
         assert code == 0, err
     assert "0 computed" in third[1], third[1]  # every stage came from the cache
     return {name: base / name for name in ("seed1", "seed2", "seed3")}

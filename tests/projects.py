@@ -30,8 +30,18 @@ def lag(x: np.ndarray, tau_s: float) -> np.ndarray:
     return y
 
 
-def sweep_samples(loads_n, fy_of_slip_and_load, *, settle_s=1.0, ramp_s=1.0, sweep_deg=12.0,
-                  rate_deg_s=4.0, noise_n=0.0, seed=0, tau_s=None):
+def sweep_samples(
+    loads_n,
+    fy_of_slip_and_load,
+    *,
+    settle_s=1.0,
+    ramp_s=1.0,
+    sweep_deg=12.0,
+    rate_deg_s=4.0,
+    noise_n=0.0,
+    seed=0,
+    tau_s=None,
+):
     """Return (time_s, slip_deg, fz_n, fy_n) arrays of a stepped-load, triangular-slip program.
 
     With `tau_s`, the force follows the slip through a first-order lag (relaxation length / speed).
@@ -49,8 +59,9 @@ def sweep_samples(loads_n, fy_of_slip_and_load, *, settle_s=1.0, ramp_s=1.0, swe
         hold = load * (1 + 0.04 * np.exp(-np.arange(n_hold) / 6.0) * np.cos(np.arange(n_hold)))
         quarter = sweep_deg / rate_deg_s
         tt = np.arange(0, 4 * quarter, dt)
-        tri = sweep_deg * np.where(tt < quarter, tt / quarter,
-                          np.where(tt < 3 * quarter, 2 - tt / quarter, tt / quarter - 4))
+        tri = sweep_deg * np.where(
+            tt < quarter, tt / quarter, np.where(tt < 3 * quarter, 2 - tt / quarter, tt / quarter - 4)
+        )
         fz = np.concatenate([ramp, hold, np.full(tri.size, float(load))])
         slip = np.concatenate([np.zeros(n_ramp + n_hold), tri])
         felt = slip if tau_s is None else lag(slip, tau_s)
@@ -64,8 +75,9 @@ def sweep_samples(loads_n, fy_of_slip_and_load, *, settle_s=1.0, ramp_s=1.0, swe
     return tuple(np.concatenate(x) for x in (t_all, a_all, fz_all, fy_all))
 
 
-def write_csv(path: Path, header: list[str], columns: list[np.ndarray], *, delimiter=",", decimal=".",
-              preamble: list[str] = ()):
+def write_csv(
+    path: Path, header: list[str], columns: list[np.ndarray], *, delimiter=",", decimal=".", preamble: list[str] = ()
+):
     path.parent.mkdir(parents=True, exist_ok=True)
     lines = list(preamble) + [delimiter.join(header)]
     for row in zip(*columns):
@@ -92,19 +104,43 @@ def specimen_block(sid: str, role: str = "baseline", size: str = "225/45 R17 94W
     return f'\n[[specimens]]\nid = "{sid}"\nrole = "{role}"\nsize = "{size}"\n'
 
 
-def run_block(sid: str, file: str, loads, load_unit="N", convention="SAE J670", delimiter=",", decimal=".",
-              units=None, pressure="250", pressure_unit="kPa") -> str:
+def run_block(
+    sid: str,
+    file: str,
+    loads,
+    load_unit="N",
+    convention="SAE J670",
+    delimiter=",",
+    decimal=".",
+    units=None,
+    pressure="250",
+    pressure_unit="kPa",
+) -> str:
     units = {"time": "s", "slip_angle": "deg", "fz": "N", "fy": "N", **(units or {})}
     cols = "\n".join(f'{ch} = {{ name = "{ch.upper()}", unit = "{u}" }}' for ch, u in units.items())
-    return (f'\n[[runs]]\nspecimen = "{sid}"\nfile = "{file}"\naxis_convention = "{convention}"\n'
-            f'delimiter = "{delimiter}"\ndecimal = "{decimal}"\n'
-            f'load_setpoints = {{ values = [{", ".join(str(v) for v in loads)}], unit = "{load_unit}" }}\n'
-            f'pressure = {{ value = {pressure}, unit = "{pressure_unit}" }}\n'
-            f'[runs.columns]\n{cols}\n')
+    return (
+        f'\n[[runs]]\nspecimen = "{sid}"\nfile = "{file}"\naxis_convention = "{convention}"\n'
+        f'delimiter = "{delimiter}"\ndecimal = "{decimal}"\n'
+        f'load_setpoints = {{ values = [{", ".join(str(v) for v in loads)}], unit = "{load_unit}" }}\n'
+        f'pressure = {{ value = {pressure}, unit = "{pressure_unit}" }}\n'
+        f"[runs.columns]\n{cols}\n"
+    )
 
 
-def operating_point(x, load_n, *, fy=None, mz=None, fx=None, camber_deg=0.0, pressure_kpa=250.0,
-                    sweep="slip_angle", specimen="S", run_index=0, fz=None):
+def operating_point(
+    x,
+    load_n,
+    *,
+    fy=None,
+    mz=None,
+    fx=None,
+    camber_deg=0.0,
+    pressure_kpa=250.0,
+    sweep="slip_angle",
+    specimen="S",
+    run_index=0,
+    fz=None,
+):
     """A conditioned operating point made directly from arrays (for fit-stage tests)."""
     from dossier.conditioning.steady_state import OperatingPoint, SlipCurve
 
@@ -113,9 +149,28 @@ def operating_point(x, load_n, *, fy=None, mz=None, fx=None, camber_deg=0.0, pre
     curve = SlipCurve(sweep, x, fz, fy, mz, fx, np.ones(x.size))
     main = fy if sweep == "slip_angle" else fx
     return OperatingPoint(
-        specimen=specimen, run_index=run_index, source_file="synthetic", sweep=sweep, rolling_direction="forward",
-        tested_at=None, load_n=float(load_n), camber_deg=float(camber_deg), pressure_kpa=float(pressure_kpa),
-        mean_load_n=float(np.mean(fz)), measured_pressure_kpa=None, mean_speed_kmh=None, curve=curve,
-        rising=None, falling=None, hysteresis=None, offsets=None, n_sweeps=1.0, raw_x=x,
-        raw_main=np.asarray(main, dtype=float), first_line=2, last_line=2 + x.size, n_samples_kept=x.size,
-        time_span_s=(0.0, 1.0))
+        specimen=specimen,
+        run_index=run_index,
+        source_file="synthetic",
+        sweep=sweep,
+        rolling_direction="forward",
+        tested_at=None,
+        load_n=float(load_n),
+        camber_deg=float(camber_deg),
+        pressure_kpa=float(pressure_kpa),
+        mean_load_n=float(np.mean(fz)),
+        measured_pressure_kpa=None,
+        mean_speed_kmh=None,
+        curve=curve,
+        rising=None,
+        falling=None,
+        hysteresis=None,
+        offsets=None,
+        n_sweeps=1.0,
+        raw_x=x,
+        raw_main=np.asarray(main, dtype=float),
+        first_line=2,
+        last_line=2 + x.size,
+        n_samples_kept=x.size,
+        time_span_s=(0.0, 1.0),
+    )

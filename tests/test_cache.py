@@ -4,10 +4,10 @@ import json
 import shutil
 
 import pytest
+from test_document import make_project
 
 from dossier.engine.build import build
 from dossier.engine.freshness import up_to_date
-from test_document import make_project
 
 
 def _results(out):
@@ -33,7 +33,9 @@ def test_a_changed_rig_file_is_refitted_never_served_stale(tmp_path):
     summary = build(root, tmp_path / "o", workers=1)
     after = _results(tmp_path / "o")
     assert not summary.reused and summary.cache_misses >= 3  # fit, metrics, figures, PDF
-    cs = lambda r: next(m["value"] for m in r["metrics"] if m["metric"] == "cornering_stiffness" and m["load_n"] == 4000)  # noqa: E731
+    cs = lambda r: next(
+        m["value"] for m in r["metrics"] if m["metric"] == "cornering_stiffness" and m["load_n"] == 4000
+    )
     assert cs(after) == pytest.approx(1.1 * cs(before), rel=0.01)
     # and it equals a build without any cache
     build(root, tmp_path / "nocache", use_cache=False, workers=1)
@@ -43,7 +45,7 @@ def test_a_changed_rig_file_is_refitted_never_served_stale(tmp_path):
 def test_narrative_change_refits_nothing_and_shows_the_new_text(tmp_path):
     root = make_project(tmp_path / "p")
     build(root, tmp_path / "o", workers=1)
-    pdfs = lambda: {p.name: p.read_bytes() for p in (tmp_path / "o").glob("*.pdf")}  # noqa: E731
+    pdfs = lambda: {p.name: p.read_bytes() for p in (tmp_path / "o").glob("*.pdf")}
     before = pdfs()
     (root / "notes/summary.md").write_text("New words, {{ value('A', 'cornering_stiffness') }}.\n", encoding="utf-8")
     summary = build(root, tmp_path / "o", workers=1)
@@ -79,7 +81,9 @@ def test_parallel_build_from_a_script_on_standard_input(tmp_path):
     import sys
 
     root = make_project(tmp_path / "p")
-    script = f"from dossier.engine.build import build\nbuild(r'{root}', r'{tmp_path / 'o'}', use_cache=False, workers=2)\n"
+    script = (
+        f"from dossier.engine.build import build\nbuild(r'{root}', r'{tmp_path / 'o'}', use_cache=False, workers=2)\n"
+    )
     done = subprocess.run([sys.executable, "-"], input=script, text=True, capture_output=True)
     assert done.returncode == 0, done.stderr[-2000:]
     assert (tmp_path / "o/dossier.pdf").is_file()
@@ -89,8 +93,8 @@ def test_the_worker_pool_keeps_order_and_reports_the_first_failing_job():
     # Jobs shared between this process and a worker come back in the order given, whatever order
     # they ran in (dearest first); a job's own error reaches the caller. Date codes: DOT TIN
     # format of 49 CFR 574.5 (week and year), as the sidewall tests use.
-    from dossier.standards.sidewall import SidewallError, parse_tin
     from dossier.engine.workers import WorkerPool
+    from dossier.standards.sidewall import SidewallError, parse_tin
 
     tins = [f"DOT XXXX XXX {week:02d}{year:02d}" for week in (1, 17, 33, 52) for year in (19, 23, 26)]
     with WorkerPool(2) as pool:

@@ -2,13 +2,17 @@ import subprocess
 import sys
 
 import projects as P
+
 from dossier.cli import main
 from dossier.common.errors import EXIT_INPUT, EXIT_OK
 
 
 def _run(*args):
-    return subprocess.run([sys.executable, "-c", "import sys; from dossier.cli import main; sys.exit(main())", *args],
-                          capture_output=True, text=True)
+    return subprocess.run(
+        [sys.executable, "-c", "import sys; from dossier.cli import main; sys.exit(main())", *args],
+        capture_output=True,
+        text=True,
+    )
 
 
 def test_bad_manifest_exits_3_with_located_message_and_no_traceback(tmp_path):
@@ -29,8 +33,9 @@ def test_missing_project_folder(tmp_path):
 def test_bad_rig_file_exits_3_and_writes_nothing(tmp_path):
     (tmp_path / "rig").mkdir()
     (tmp_path / "rig/a.csv").write_text("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n", encoding="utf-8")
-    (tmp_path / "dossier.toml").write_text(P.MANIFEST_HEAD + P.specimen_block("A")
-                                           + P.run_block("A", "rig/a.csv", [4000]), encoding="utf-8")
+    (tmp_path / "dossier.toml").write_text(
+        P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000]), encoding="utf-8"
+    )
     out = tmp_path / "out"
     assert main(["build", str(tmp_path), "--out", str(out)]) == EXIT_INPUT
     assert not out.exists()

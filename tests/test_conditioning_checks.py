@@ -1,31 +1,34 @@
 """Conditioning against synthetic runs whose lag, offsets, spikes, drift and coverage are known."""
 
-
 from pathlib import Path
+
 import numpy as np
+import projects as P
 import pytest
 
-import projects as P
-from dossier.conditioning.steady_state import REASON_SPIKE, condition_run
-from dossier.conditioning.drift import correct_points, estimate_drift
 from dossier.common.errors import ManifestError, RigDataError
-from dossier.ingest.rig_table import parse_run
-from dossier.project.manifest import ConditioningSettings
-from dossier.project.load import load_project
+from dossier.conditioning.drift import correct_points, estimate_drift
 from dossier.conditioning.offsets import split_offsets
+from dossier.conditioning.steady_state import REASON_SPIKE, condition_run
+from dossier.ingest.rig_table import parse_run
+from dossier.project.load import load_project
+from dossier.project.manifest import ConditioningSettings
 
 FZ0 = 4000.0
 
 
 def tire(offset_n=0.0, scale=1.0, mu=1.0):
     """A smooth tire: Fy = −μ Fz tanh(α / 5°)·scale + offset (ISO 8855 sign), peak beyond 12°."""
+
     def fy(slip_deg, fz_n):
         return scale * (-mu * fz_n * np.tanh(np.asarray(slip_deg) / 5.0)) + offset_n
+
     return fy
 
 
-def write_run(root, name, loads, fy, *, spikes=(), seed=1, noise=10.0, tau_s=None, sweep_deg=12.0,
-              convention="SAE J670"):
+def write_run(
+    root, name, loads, fy, *, spikes=(), seed=1, noise=10.0, tau_s=None, sweep_deg=12.0, convention="SAE J670"
+):
     t, a, fz, f = P.sweep_samples(loads, fy, noise_n=noise, seed=seed, tau_s=tau_s, sweep_deg=sweep_deg)
     f = f.copy()
     for i in spikes:
@@ -42,7 +45,9 @@ def manifest(root, runs_text, specimens=(("A", "baseline"),), extra=""):
 
 
 def conditioned(root, m, i=0, settings=None, rated=None):
-    return condition_run(parse_run((Path(root) / m.runs[i].file).read_bytes(), m.runs[i]), settings or m.conditioning, rated)
+    return condition_run(
+        parse_run((Path(root) / m.runs[i].file).read_bytes(), m.runs[i]), settings or m.conditioning, rated
+    )
 
 
 def test_known_lag_is_reported_and_removed_from_the_steady_curve(tmp_path):
@@ -75,7 +80,8 @@ def test_ply_steer_and_conicity_from_both_rolling_directions(tmp_path):
     write_run(tmp_path, "f", [FZ0], tire(offset_n=conicity + ply), seed=2)
     write_run(tmp_path, "r", [FZ0], tire(offset_n=conicity - ply), seed=3)
     runs = P.run_block("A", "rig/f.csv", [FZ0]) + P.run_block("A", "rig/r.csv", [FZ0]).replace(
-        'axis_convention', 'rolling_direction = "reverse"\naxis_convention')
+        "axis_convention", 'rolling_direction = "reverse"\naxis_convention'
+    )
     m = manifest(tmp_path, runs)
     points = [p for i in range(2) for p in conditioned(tmp_path, m, i).points]
     (split,) = split_offsets(points)
@@ -97,8 +103,12 @@ def test_control_tire_drift_is_estimated_and_corrected(tmp_path):
     # tested_at must sit in the run table, before [runs.columns]
     runs = runs.replace("\n[runs.columns]\n", "\n[runs.columns]\n")
     text_runs = _move_tested_at(runs)
-    m = manifest(tmp_path, text_runs, specimens=(("CTL", "control"), ("B", "candidate")),
-                 extra='\n[drift]\ncontrol = "CTL"\ncorrect = true\n')
+    m = manifest(
+        tmp_path,
+        text_runs,
+        specimens=(("CTL", "control"), ("B", "candidate")),
+        extra='\n[drift]\ncontrol = "CTL"\ncorrect = true\n',
+    )
     points = [p for i in range(4) for p in conditioned(tmp_path, m, i).points]
     est = estimate_drift(points, "CTL", FZ0)
     (mu,) = [d for d in est.metrics if d.metric == "peak_friction"]
@@ -151,10 +161,14 @@ def test_slip_ratio_sweeps_are_conditioned_by_slip_ratio(tmp_path):
     # A longitudinal run: Fx against slip ratio −0.3 … +0.3 at 4 kN (stiffness 20 Fz per unit slip).
     def fx(kappa, fz):
         return 1.05 * fz * np.tanh(20.0 * np.asarray(kappa) / 1.05)
+
     t, s, fz, f = P.sweep_samples([FZ0], fx, sweep_deg=0.3, rate_deg_s=0.1, noise_n=8.0)
     P.write_csv(tmp_path / "rig/x.csv", ["TIME", "SLIP_RATIO", "FZ", "FX"], [t, s, -fz, f])
-    block = P.run_block("A", "rig/x.csv", [FZ0], units={"slip_ratio": "1", "fx": "N"}).replace(
-        'fy = { name = "FY", unit = "N" }\n', "").replace("axis_convention", 'sweep = "slip_ratio"\naxis_convention')
+    block = (
+        P.run_block("A", "rig/x.csv", [FZ0], units={"slip_ratio": "1", "fx": "N"})
+        .replace('fy = { name = "FY", unit = "N" }\n', "")
+        .replace("axis_convention", 'sweep = "slip_ratio"\naxis_convention')
+    )
     block = block.replace('slip_angle = { name = "SLIP_ANGLE", unit = "deg" }\n', "")
     m = manifest(tmp_path, block)
     (p,) = conditioned(tmp_path, m).points
@@ -165,12 +179,15 @@ def test_slip_ratio_sweeps_are_conditioned_by_slip_ratio(tmp_path):
     assert slope == pytest.approx(20.0 * FZ0, rel=0.05)
 
 
-@pytest.mark.parametrize("body, message, line", [
-    ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n", "expected 4 fields; found 3 (truncated line?)", 3),
-    ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000,nan\n", "expected a finite number; found 'nan'", 3),
-    ("TIME,SLIP_ANGLE,FZ,FY\n0,-3,-4000,0\n0.08,0,-4000,1\n0.04,3,-4000,2\n", "time goes backwards", 4),
-    ("TIME,SLIP_ANGLE,FZ\n0,0,-4000\n", "no column named 'FY' for channel 'fy'", 1),
-])
+@pytest.mark.parametrize(
+    "body, message, line",
+    [
+        ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n", "expected 4 fields; found 3 (truncated line?)", 3),
+        ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000,nan\n", "expected a finite number; found 'nan'", 3),
+        ("TIME,SLIP_ANGLE,FZ,FY\n0,-3,-4000,0\n0.08,0,-4000,1\n0.04,3,-4000,2\n", "time goes backwards", 4),
+        ("TIME,SLIP_ANGLE,FZ\n0,0,-4000\n", "no column named 'FY' for channel 'fy'", 1),
+    ],
+)
 def test_bad_rig_files_name_file_and_line(tmp_path, body, message, line):
     (tmp_path / "rig").mkdir()
     (tmp_path / "rig/a.csv").write_text(body, encoding="utf-8")
@@ -184,8 +201,12 @@ def test_bad_rig_files_name_file_and_line(tmp_path, body, message, line):
 def test_drift_needs_test_times(tmp_path):
     write_run(tmp_path, "a", [FZ0], tire())
     with pytest.raises(ManifestError, match=r"runs\[0\]\.tested_at: is required for every run when \[drift\] is set"):
-        manifest(tmp_path, P.run_block("A", "rig/a.csv", [FZ0]), specimens=(("A", "control"),),
-                 extra='\n[drift]\ncontrol = "A"\n')
+        manifest(
+            tmp_path,
+            P.run_block("A", "rig/a.csv", [FZ0]),
+            specimens=(("A", "control"),),
+            extra='\n[drift]\ncontrol = "A"\n',
+        )
 
 
 def test_stepped_sweeps_use_the_held_steps(tmp_path):

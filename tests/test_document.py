@@ -3,29 +3,29 @@
 import re
 
 import numpy as np
+import projects as P
 import pytest
 from pypdf import PdfReader
 
-import projects as P
-from dossier.engine.build import build
-from dossier.common.errors import StageError, UserError
-from dossier.common.errors import NarrativeError
+from dossier.common.errors import NarrativeError, StageError, UserError
 from dossier.document.narrative import render_markdown
+from dossier.engine.build import build
 
 LOADS = [2000, 4000, 6000]
-RELEASED = '''
+RELEASED = """
 [signoff]
 status = "released"
 [[signoff.people]]
 name = "A. Approver"
 role = "approver"
 date = 2026-11-25
-'''
+"""
 
 
 def tire(scale=1.0):
     def fy(slip_deg, fz_n):
         return scale * -1.0 * fz_n * np.sin(1.4 * np.arctan(0.25 * np.asarray(slip_deg)))
+
     return fy
 
 
@@ -34,9 +34,13 @@ def make_project(root, scale=1.0, narrative="Stiffness {{ value('A', 'cornering_
     P.write_csv(root / "rig/a.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz, -fy])
     (root / "notes").mkdir(parents=True, exist_ok=True)
     (root / "notes/summary.md").write_text(narrative, encoding="utf-8")
-    text = (P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", LOADS)
-            + '\n[narrative]\nsummary = "notes/summary.md"\n[fit]\nnominal_load_n = 4000\nleave_one_load_out = false\n'
-            + extra)
+    text = (
+        P.MANIFEST_HEAD
+        + P.specimen_block("A")
+        + P.run_block("A", "rig/a.csv", LOADS)
+        + '\n[narrative]\nsummary = "notes/summary.md"\n[fit]\nnominal_load_n = 4000\nleave_one_load_out = false\n'
+        + extra
+    )
     (root / "dossier.toml").write_text(text, encoding="utf-8")
     return root
 
@@ -90,7 +94,7 @@ def test_narrative_follows_the_data(small, tmp_path):
     build(root2, tmp_path / "o2")
     html2 = (tmp_path / "o2/site/index.html").read_text(encoding="utf-8")
     value2 = re.search(r"Stiffness ([\d\u2009]+) N/deg", html2).group(1)
-    as_int = lambda s: int(s.replace("\u2009", ""))  # noqa: E731
+    as_int = lambda s: int(s.replace("\u2009", ""))
     assert as_int(value2) == pytest.approx(1.1 * as_int(value), rel=0.01)
     # the same number appears in the tables
     assert f">{value}<br>" in html.replace("\n", "") or f">{value}<" in html
@@ -147,7 +151,9 @@ def test_draft_mark_and_released_signoff(tmp_path):
     # the manifest's line is the supplier's word: until the approver countersigns, every place that
     # names the approver says the customer's approval is not signed
     assert "Approved by" not in html and html.count("ustomer approval: not signed") == 2
-    unsigned = make_project(tmp_path / "u", extra='\n[signoff]\nstatus = "released"\n[[signoff.people]]\nname = "X"\nrole = "approver"\n')
+    unsigned = make_project(
+        tmp_path / "u", extra='\n[signoff]\nstatus = "released"\n[[signoff.people]]\nname = "X"\nrole = "approver"\n'
+    )
     with pytest.raises(UserError, match="a released revision needs an approver with a date"):
         build(unsigned, tmp_path / "ou")
 
@@ -155,10 +161,11 @@ def test_draft_mark_and_released_signoff(tmp_path):
 def test_links_into_another_volume_become_plain_text():
     from dossier.document.pdf import unlink_missing_anchors
 
-    page = (b'<h2 id="fit">Fit</h2><a href="#fit">here</a> '
-            b'<a class="prov-link" href="#prov-fit-A-fy" title="source">pDy1</a> <a href="site.html#x">site</a>')
+    page = (
+        b'<h2 id="fit">Fit</h2><a href="#fit">here</a> '
+        b'<a class="prov-link" href="#prov-fit-A-fy" title="source">pDy1</a> <a href="site.html#x">site</a>'
+    )
     out = unlink_missing_anchors(page)
     assert b'<a href="#fit">here</a>' in out  # the anchor is in this volume: still a link
     assert b'<span class="prov-link" title="source">pDy1</span>' in out  # in another volume: text
     assert b'<a href="site.html#x">site</a>' in out  # not an in-page link: untouched
-

@@ -8,9 +8,9 @@ import jsonschema
 import pytest
 from pypdf import PdfReader
 
-from dossier.engine.build import build
-from dossier.document.cautions import CAUTIONS
 from dossier.common.errors import OutputError, UserError
+from dossier.document.cautions import CAUTIONS
+from dossier.engine.build import build
 from dossier.publish.layout import MARKER
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -30,22 +30,43 @@ def test_site_pages_work_from_disk(demo_out):
         assert page.is_file()
         assert f'href="specimen-{sid.lower()}.html"' in index
     assert "http://" not in index and "https://" not in index  # nothing fetched from the network
-    for img in ("figures/cornering-coefficient-load.svg", "figures/fy-prd-a.svg", "figures/mz-prd-a.svg", "figures/fy-residuals-prd-a.svg", "static/screen.css"):
+    for img in (
+        "figures/cornering-coefficient-load.svg",
+        "figures/fy-prd-a.svg",
+        "figures/mz-prd-a.svg",
+        "figures/fy-residuals-prd-a.svg",
+        "static/screen.css",
+    ):
         assert (site / img).is_file()
-    assert 'alt="' in index and "<th scope=\"col\">" in index
+    assert 'alt="' in index and '<th scope="col">' in index
     for title, _ in CAUTIONS:
         assert title in index
 
 
 def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
     expected = {
-        "dossier.pdf": ("Contents", "Executive summary", "Conclusions", "Testing in brief", "Test notes",
-                        "Sign-off and revisions", "Annex A", "Annex D"),
-        "annex-a-results.pdf": ("Findings at the nominal load", "Candidates against the baseline",
-                                "What it means for the vehicle"),
+        "dossier.pdf": (
+            "Contents",
+            "Executive summary",
+            "Conclusions",
+            "Testing in brief",
+            "Test notes",
+            "Sign-off and revisions",
+            "Annex A",
+            "Annex D",
+        ),
+        "annex-a-results.pdf": (
+            "Findings at the nominal load",
+            "Candidates against the baseline",
+            "What it means for the vehicle",
+        ),
         "annex-b-specimens.pdf": ("Specimen PRD-A", "Specimen CND-C", "Fit report: lateral force Fy0"),
-        "annex-c-rig-runs.pdf": ("Soundness of the rig data", "Verdict per run", "Drift seen on the control tire CTL-1",
-                                 "Ply-steer and conicity"),
+        "annex-c-rig-runs.pdf": (
+            "Soundness of the rig data",
+            "Verdict per run",
+            "Drift seen on the control tire CTL-1",
+            "Ply-steer and conicity",
+        ),
         "annex-d-provenance.pdf": ("How the numbers were made", "Metric definitions", "Where every number came from"),
     }
     report = PdfReader(demo_out / "dossier.pdf")
@@ -62,7 +83,8 @@ def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
         if name != "dossier.pdf":
             # the report carries every annex, byte for byte as written beside it
             assert report.attachments[name][0] == (demo_out / name).read_bytes()
-    # the narrative (summary, conclusions, test notes) is in the report only, so that editing it re-renders the report only
+    # the narrative (summary, conclusions, test notes) is in the report only, so that editing it
+    # re-renders the report only
     for name in expected:
         if name != "dossier.pdf":
             text = "\n".join(p.extract_text() for p in PdfReader(demo_out / name).pages)
@@ -92,9 +114,12 @@ def test_fit_recovers_the_demo_truth_within_3_percent(demo_out):
         # is not corrected, so its pooled repeats carry their mean drift factor.
         factors = [r["drift_factor"] for r in doc["session"]["runs"] if r["specimen"] == sid]
         level = sum(factors) / len(factors) if sid == "CTL-1" else 1.0
-        for load, true_cs, true_mu in zip(t["loads_n"], t["cornering_stiffness_n_per_deg"],
-                                          t["peak_mu_mean_of_both_directions"]):
-            found = {m["metric"]: m["value"] for m in results["metrics"] if m["specimen"] == sid and m["load_n"] == load}
+        for load, true_cs, true_mu in zip(
+            t["loads_n"], t["cornering_stiffness_n_per_deg"], t["peak_mu_mean_of_both_directions"]
+        ):
+            found = {
+                m["metric"]: m["value"] for m in results["metrics"] if m["specimen"] == sid and m["load_n"] == load
+            }
             assert found["cornering_stiffness"] == pytest.approx(true_cs * level, rel=0.03), (sid, load)
             assert found["peak_lateral_friction"] == pytest.approx(true_mu * level, rel=0.02), (sid, load)
             checked += 1
@@ -118,8 +143,9 @@ def test_a_failing_build_leaves_the_previous_output_intact(demo_out, tmp_path):
     shutil.copytree(demo_out, out)
     before = (out / "results.json").read_bytes()
     manifest = project / "dossier.toml"
-    manifest.write_text(manifest.read_text(encoding="utf-8").replace('revision = "A"', 'revison = "A"'),
-                        encoding="utf-8")
+    manifest.write_text(
+        manifest.read_text(encoding="utf-8").replace('revision = "A"', 'revison = "A"'), encoding="utf-8"
+    )
     with pytest.raises(UserError, match="did you mean 'revision'"):
         build(project, out)
     assert (out / "results.json").read_bytes() == before
@@ -187,7 +213,7 @@ def test_every_number_derives_from_the_rig_files_and_the_drift_from_the_control_
         assert found, ident
         if kind in ("metric", "coefficient"):
             specimen = ident.split("-")[1].replace("_", "-")
-            mine = {f for f in files_of.get(specimen, ()) }
+            mine = {f for f in files_of.get(specimen, ())}
             assert found & mine, ident
             if specimen != "CTL-1":  # drift-corrected: also from the control tire's runs that scaled it
                 assert found & control_files, ident

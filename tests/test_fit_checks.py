@@ -1,10 +1,10 @@
 """The fit stage against known truths: exact recovery, interval coverage, and a published tire."""
 
+import bnp1987
 import numpy as np
+import projects as P
 import pytest
 
-import bnp1987
-import projects as P
 from dossier.model import magic_formula as mf
 from dossier.model.fit import fit_channel
 from dossier.project.manifest import FitSettings
@@ -13,10 +13,32 @@ FZ0, P0 = 4000.0, 250.0
 LOADS = (2000.0, 4000.0, 6000.0, 8000.0)
 SLIP = np.arange(-12.0, 12.01, 0.5)
 # A plausible passenger-car tire (invented, ISO 8855 signs), used as the synthetic truth.
-TRUE_FY = {"pCy1": 1.35, "pDy1": 1.05, "pDy2": -0.08, "pEy1": -0.4, "pEy2": -0.3, "pEy3": 0.05,
-           "pKy1": -22.0, "pKy2": 1.9, "pHy1": 0.002, "pHy2": 0.001, "pVy1": 0.02, "pVy2": -0.01}
-TRUE_FX = {"pCx1": 1.65, "pDx1": 1.2, "pDx2": -0.07, "pEx1": 0.3, "pEx2": 0.1, "pEx4": 0.05,
-           "pKx1": 22.0, "pKx2": 2.0, "pHx1": 0.001, "pVx1": 0.005}
+TRUE_FY = {
+    "pCy1": 1.35,
+    "pDy1": 1.05,
+    "pDy2": -0.08,
+    "pEy1": -0.4,
+    "pEy2": -0.3,
+    "pEy3": 0.05,
+    "pKy1": -22.0,
+    "pKy2": 1.9,
+    "pHy1": 0.002,
+    "pHy2": 0.001,
+    "pVy1": 0.02,
+    "pVy2": -0.01,
+}
+TRUE_FX = {
+    "pCx1": 1.65,
+    "pDx1": 1.2,
+    "pDx2": -0.07,
+    "pEx1": 0.3,
+    "pEx2": 0.1,
+    "pEx4": 0.05,
+    "pKx1": 22.0,
+    "pKx2": 2.0,
+    "pHx1": 0.001,
+    "pVx1": 0.005,
+}
 EXACT = FitSettings(loss="linear", max_evaluations=20000)
 
 
@@ -37,8 +59,10 @@ def test_noise_free_lateral_data_give_the_coefficients_back():
 
 def test_noise_free_longitudinal_data_give_the_coefficients_back():
     kappa = np.arange(-0.25, 0.2501, 0.01)
-    pts = [P.operating_point(kappa, L, fx=mf.fx0(kappa, L, TRUE_FX, FZ0), sweep="slip_ratio", pressure_kpa=P0)
-           for L in LOADS]
+    pts = [
+        P.operating_point(kappa, L, fx=mf.fx0(kappa, L, TRUE_FX, FZ0), sweep="slip_ratio", pressure_kpa=P0)
+        for L in LOADS
+    ]
     fit = fit_channel(pts, "fx", EXACT, FZ0, P0)
     for name, true in TRUE_FX.items():
         assert fit.values[name] == pytest.approx(true, rel=1e-6, abs=1e-9), name
@@ -82,8 +106,12 @@ def bnp_fx(kappa_pct, fz_kn):
 
 
 def _bnp_points(loads):
-    return [P.operating_point(SLIP, L, fy=-bnp1987.lateral_force_n(SLIP, L / 1000.0),
-                              mz=-bnp_mz(SLIP, L / 1000.0)[0], pressure_kpa=P0) for L in loads]
+    return [
+        P.operating_point(
+            SLIP, L, fy=-bnp1987.lateral_force_n(SLIP, L / 1000.0), mz=-bnp_mz(SLIP, L / 1000.0)[0], pressure_kpa=P0
+        )
+        for L in loads
+    ]
 
 
 def _slope(fit, load, h=1e-3):
@@ -122,8 +150,10 @@ def test_published_1987_tire_aligning_moment_through_our_model():
 
 def test_published_1987_tire_longitudinal_through_our_model():
     kappa = np.arange(-0.25, 0.2501, 0.005)
-    pts = [P.operating_point(kappa, L, fx=bnp_fx(100 * kappa, L / 1000.0)[0], sweep="slip_ratio", pressure_kpa=P0)
-           for L in LOADS]
+    pts = [
+        P.operating_point(kappa, L, fx=bnp_fx(100 * kappa, L / 1000.0)[0], sweep="slip_ratio", pressure_kpa=P0)
+        for L in LOADS
+    ]
     fit = fit_channel(pts, "fx", FitSettings(loss="linear"), FZ0, P0)
     h = 1e-5
     stiffness = (fit.predict(h, FZ0) - fit.predict(-h, FZ0)) / (2 * h)

@@ -1,13 +1,14 @@
-import numpy as np
 from pathlib import Path
+
+import numpy as np
+import projects as P
 import pytest
 
-import projects as P
-from dossier.conditioning.steady_state import REASON_SETTLING, REASON_SPIKE, REASON_TRANSITION, condition_run
 from dossier.common.errors import RigDataError
+from dossier.conditioning.steady_state import REASON_SETTLING, REASON_SPIKE, REASON_TRANSITION, condition_run
 from dossier.ingest.rig_table import parse_run
-from dossier.project.manifest import ConditioningSettings
 from dossier.project.load import load_project
+from dossier.project.manifest import ConditioningSettings
 
 
 def _project(tmp_path, body: str, run_kwargs=None):
@@ -21,8 +22,9 @@ def _project(tmp_path, body: str, run_kwargs=None):
 
 def test_semicolons_decimal_commas_and_iso_signs(tmp_path):
     body = "TIME;SLIP_ANGLE;FZ;FY\n0,0;-2,5;4,0;1,2\n0,04;2,5;4,1;-2,4\n"
-    m, spec = _project(tmp_path, body, dict(convention="ISO 8855", delimiter=";", decimal=",",
-                                            units={"fz": "kN", "fy": "kN"}))
+    m, spec = _project(
+        tmp_path, body, dict(convention="ISO 8855", delimiter=";", decimal=",", units={"fz": "kN", "fy": "kN"})
+    )
     run = parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
     np.testing.assert_allclose(run.channels["slip_angle"], [-2.5, 2.5])
     np.testing.assert_allclose(run.channels["fz"], [4000, 4100])
@@ -34,8 +36,7 @@ def test_bad_number_names_file_line_and_column(tmp_path):
     m, spec = _project(tmp_path, "TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000,12O\n")
     with pytest.raises(RigDataError) as exc:
         parse_run((Path(m.project_dir) / spec.file).read_bytes(), spec)
-    assert str(exc.value) == ("rig/a.csv, line 3, column 'FY': expected a number with decimal mark '.'; "
-                              "found '12O'")
+    assert str(exc.value) == ("rig/a.csv, line 3, column 'FY': expected a number with decimal mark '.'; found '12O'")
 
 
 def test_missing_column_lists_the_header(tmp_path):
@@ -86,10 +87,9 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     from dataclasses import replace
 
     from dossier.conditioning.steady_state import SlipCurve
-    from dossier.model.fit import fit_lateral
-    from dossier.project.manifest import FitSettings
-    from dossier.model.fit import SpecimenModel
     from dossier.metrics.evaluate import metric_values
+    from dossier.model.fit import SpecimenModel, fit_lateral
+    from dossier.project.manifest import FitSettings
 
     run, _ = _synthetic(tmp_path)
     points = list(condition_run(run, ConditioningSettings()).points)
@@ -98,8 +98,9 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     for p in points:
         k = rng.permutation(p.curve.n_points)
         c = p.curve
-        shuffled.append(replace(p, curve=SlipCurve(c.sweep, c.x[k], c.fz_n[k], c.fy_n[k], None, None,
-                                                   c.samples_per_bin[k])))
+        shuffled.append(
+            replace(p, curve=SlipCurve(c.sweep, c.x[k], c.fz_n[k], c.fy_n[k], None, None, c.samples_per_bin[k]))
+        )
     a = metric_values(SpecimenModel("A", fit_lateral(points, FitSettings(), 3000.0), None, None), 2000.0)
     b = metric_values(SpecimenModel("A", fit_lateral(shuffled[::-1], FitSettings(), 3000.0), None, None), 2000.0)
     for x, y in zip(a, b):

@@ -16,15 +16,16 @@ import time
 from pathlib import Path
 
 import pytest
-
-from dossier.common import interrupts
-from dossier.engine.build import build
-from dossier.engine.cache import Cache, digest
-from dossier.common.errors import EXIT_SIGINT, EXIT_SIGTERM
 from test_document import make_project
 
-pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").is_file() or not hasattr(os, "killpg"),
-                                reason="needs /proc and process groups (Linux)")
+from dossier.common import interrupts
+from dossier.common.errors import EXIT_SIGINT, EXIT_SIGTERM
+from dossier.engine.build import build
+from dossier.engine.cache import Cache, digest
+
+pytestmark = pytest.mark.skipif(
+    not Path("/proc/self/stat").is_file() or not hasattr(os, "killpg"), reason="needs /proc and process groups (Linux)"
+)
 
 STOPPED = "interrupted: the build was stopped; the previous output is unchanged"
 FINAL_MARKER = "replaced by the next build"  # the writer's marker once every file is in its folder
@@ -65,7 +66,7 @@ def _processes(session: int) -> list[tuple[int, int, bytes]]:
             cmdline = (entry / "cmdline").read_bytes()
         except OSError:
             continue  # gone meanwhile
-        state, ppid, _pgrp, sid = stat[stat.rindex(")") + 2:].split()[:4]  # proc(5): after "(comm)"
+        state, ppid, _pgrp, sid = stat[stat.rindex(")") + 2 :].split()[:4]  # proc(5): after "(comm)"
         if int(sid) == session and state != "Z":
             found.append((int(entry.name), int(ppid), cmdline))
     return found
@@ -157,16 +158,22 @@ def test_ctrl_c_while_the_fork_server_imports_prints_no_traceback(previous, tmp_
 def test_ctrl_c_while_writing_removes_the_half_written_folder(previous, tmp_path):
     # Hold the build just before it swaps its finished folder in (the last check before the
     # swap sleeps), so that the signal finds the temporary folder complete beside the output.
-    prelude = ("import time, dossier.publish.writer as o\n"
-               "real_check = o.check\n"
-               "o.check = lambda: (time.sleep(300), real_check())\n")
+    prelude = (
+        "import time, dossier.publish.writer as o\n"
+        "real_check = o.check\n"
+        "o.check = lambda: (time.sleep(300), real_check())\n"
+    )
 
     def folder_written(project) -> bool:
-        return any(FINAL_MARKER in (p / ".dossier-output").read_text(encoding="utf-8")
-                   for p in tmp_path.glob(".out.building-*") if (p / ".dossier-output").is_file())
+        return any(
+            FINAL_MARKER in (p / ".dossier-output").read_text(encoding="utf-8")
+            for p in tmp_path.glob(".out.building-*")
+            if (p / ".dossier-output").is_file()
+        )
 
-    _interrupt_held_build(previous, tmp_path, prelude, folder_written, "the temporary output folder was complete",
-                          signal.SIGINT)
+    _interrupt_held_build(
+        previous, tmp_path, prelude, folder_written, "the temporary output folder was complete", signal.SIGINT
+    )
 
 
 def _interrupt_held_build(previous, tmp_path, prelude, ready, what, sig):
@@ -182,11 +189,19 @@ def _interrupt_held_build(previous, tmp_path, prelude, ready, what, sig):
 def test_sigterm_while_a_cache_entry_is_written_removes_its_temporary_file(previous, tmp_path):
     # Hold the first cache write half-way (its pickling sleeps), so that SIGTERM finds the
     # temporary file in the cache folder.
-    prelude = ("import pickle, time, types, dossier.engine.cache as c\n"
-               "c.pickle = types.SimpleNamespace(loads=pickle.loads, HIGHEST_PROTOCOL=pickle.HIGHEST_PROTOCOL,\n"
-               "                                 dump=lambda *a, **k: time.sleep(300))\n")
-    _interrupt_held_build(previous, tmp_path, prelude, lambda project: any((project / ".dossier-cache").rglob(".tmp-*")),
-                          "a cache entry was being written", signal.SIGTERM)
+    prelude = (
+        "import pickle, time, types, dossier.engine.cache as c\n"
+        "c.pickle = types.SimpleNamespace(loads=pickle.loads, HIGHEST_PROTOCOL=pickle.HIGHEST_PROTOCOL,\n"
+        "                                 dump=lambda *a, **k: time.sleep(300))\n"
+    )
+    _interrupt_held_build(
+        previous,
+        tmp_path,
+        prelude,
+        lambda project: any((project / ".dossier-cache").rglob(".tmp-*")),
+        "a cache entry was being written",
+        signal.SIGTERM,
+    )
 
 
 def test_a_finished_build_leaves_no_process_behind(previous, tmp_path):
@@ -206,6 +221,7 @@ def test_a_finished_build_leaves_no_process_behind(previous, tmp_path):
 
 # In this process: the guard's rules, each with a signal raised here (signal.raise_signal runs the
 # handler before the next statement).
+
 
 def _swallowed(signum) -> None:
     """Raise `signum` and swallow what its handler raises, as some library code does."""
@@ -262,18 +278,15 @@ def test_an_interruption_inside_a_finalizer_is_not_printed_and_comes_again(capsy
             signal.raise_signal(signal.SIGINT)  # its handler raises here, where Python cannot propagate it
             self.after = True
 
-    with interrupts.Guard():
-        with pytest.raises(interrupts.Interrupted):
-            Finalized()  # dropped at once: __del__ runs
-            _wait_for_the_repeat()
+    with interrupts.Guard(), pytest.raises(interrupts.Interrupted):
+        Finalized()  # dropped at once: __del__ runs
+        _wait_for_the_repeat()
     assert "Exception ignored" not in capsys.readouterr().err
 
 
 def test_a_signal_during_a_deferred_block_acts_once_the_block_is_done():
     done = []
-    with interrupts.Guard():
-        with pytest.raises(interrupts.Interrupted):
-            with interrupts.deferred():
-                signal.raise_signal(signal.SIGTERM)
-                done.append("the block ran to its end")
+    with interrupts.Guard(), pytest.raises(interrupts.Interrupted), interrupts.deferred():
+        signal.raise_signal(signal.SIGTERM)
+        done.append("the block ran to its end")
     assert done == ["the block ran to its end"]

@@ -1,8 +1,9 @@
+import bnp1987
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
-import bnp1987
 from dossier.model import magic_formula as mf
 
 
@@ -27,9 +28,9 @@ def test_published_1987_parameter_set_values():
     # Bakker, Nyborg & Pacejka, SAE 870421 (1987) Tables 2-3, recomputed at Fz = 4 kN
     # (values as reproduced in the domain primer §8).
     B, C, D, E = bnp1987.coefficients(4.0)
-    assert D == pytest.approx(3690.4, abs=0.05)
-    assert B * C * D == pytest.approx(1027.3, abs=0.05)
-    assert E == pytest.approx(-0.709, abs=5e-4)
+    assert pytest.approx(3690.4, abs=0.05) == D
+    assert pytest.approx(1027.3, abs=0.05) == B * C * D
+    assert pytest.approx(-0.709, abs=5e-4) == E
     assert bnp1987.lateral_force_n(2.0, 4.0) == pytest.approx(1911, abs=1)
     assert bnp1987.lateral_force_n(5.0, 4.0) == pytest.approx(3390, abs=1)
 

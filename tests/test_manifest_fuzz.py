@@ -2,20 +2,23 @@
 
 import tomllib
 
-from hypothesis import HealthCheck, given, settings, strategies as st
-
 import projects as P
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
 from dossier.common.errors import ManifestError
 from dossier.project.load import parse_manifest
 
 BASE = tomllib.loads(P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [2000, 4000]))
 
-scalars = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True),
-                    st.text(max_size=12))
-values = st.recursive(scalars.filter(lambda v: v is not None),
-                      lambda inner: st.one_of(st.lists(inner, max_size=3),
-                                              st.dictionaries(st.text(max_size=8), inner, max_size=3)),
-                      max_leaves=8)
+scalars = st.one_of(
+    st.none(), st.booleans(), st.integers(-(10**6), 10**6), st.floats(allow_nan=True), st.text(max_size=12)
+)
+values = st.recursive(
+    scalars.filter(lambda v: v is not None),
+    lambda inner: st.one_of(st.lists(inner, max_size=3), st.dictionaries(st.text(max_size=8), inner, max_size=3)),
+    max_leaves=8,
+)
 
 
 def _paths(doc, prefix=()):
@@ -32,7 +35,9 @@ def _paths(doc, prefix=()):
 ALL_PATHS = list(_paths(BASE))
 
 
-@settings(max_examples=200, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=200, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(edits=st.lists(st.tuples(st.sampled_from(ALL_PATHS), values), max_size=4))
 def test_mutated_manifests_load_or_fail_cleanly(tmp_path, edits):
     (tmp_path / "rig").mkdir(exist_ok=True)

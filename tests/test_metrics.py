@@ -1,17 +1,16 @@
 """Metrics against the published 1987 tire, interval coverage, extrapolation and the cross-check."""
 
-import numpy as np
-import pytest
-
 import bnp1987
+import numpy as np
 import projects as P
-from dossier.model import magic_formula as mf
-from dossier.model.fit import fit_channel
-from dossier.project.manifest import FitSettings
-from dossier.project.catalogue import METRICS
-from dossier.model.fit import SpecimenModel
-from dossier.metrics.evaluate import metric_values
+import pytest
 from test_fit_checks import FZ0, LOADS, P0, SLIP, TRUE_FY, bnp_mz, lateral_points
+
+from dossier.metrics.evaluate import metric_values
+from dossier.model import magic_formula as mf
+from dossier.model.fit import SpecimenModel, fit_channel
+from dossier.project.catalogue import METRICS
+from dossier.project.manifest import FitSettings
 
 LINEAR = FitSettings(loss="linear")
 
@@ -41,8 +40,9 @@ def test_metrics_of_the_published_1987_tire():
 def test_trail_of_the_published_1987_tire():
     # Zero-slip trail t0 = −(dMz/dα)/(dFy/dα) of the 1987 tire at 4 kN is 25.5 mm. Fitted at 4 kN
     # alone, the 2002 Mz0 comes out 3.9 % stiff at zero slip (see test_fit_checks): checked to 5 %.
-    pts = [P.operating_point(SLIP, FZ0, fy=-bnp1987.lateral_force_n(SLIP, 4.0), mz=-bnp_mz(SLIP, 4.0)[0],
-                             pressure_kpa=P0)]
+    pts = [
+        P.operating_point(SLIP, FZ0, fy=-bnp1987.lateral_force_n(SLIP, 4.0), mz=-bnp_mz(SLIP, 4.0)[0], pressure_kpa=P0)
+    ]
     fy = fit_channel(pts, "fy", LINEAR, FZ0, P0)
     mz = fit_channel(pts, "mz", LINEAR, FZ0, P0, 0.3, fy.values)
     got = _values(SpecimenModel("BNP", fy, mz, None), FZ0)

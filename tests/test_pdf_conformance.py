@@ -19,28 +19,70 @@ import sys
 import textwrap
 
 import pikepdf
+import projects as P
 import pytest
 from pikepdf.models.metadata import decode_pdf_date
-
-import projects as P
-from dossier.engine.build import build
 from test_document import LOADS, tire
+
+from dossier.engine.build import build
 
 ATTACHED_ONLY = "integrity/manifest-sha256.txt"  # the report's own manifest (every file but itself): no file beside it
 AUTHORS = ["A. Tester", "B. Prüfer"]  # two people, one name outside ASCII
 DOCUMENT_DATE = dt.date(2026, 11, 20)  # projects.MANIFEST_HEAD
-VOLUMES = ("dossier.pdf", "annex-a-results.pdf", "annex-b-specimens.pdf", "annex-c-rig-runs.pdf",
-           "annex-d-provenance.pdf")
+VOLUMES = (
+    "dossier.pdf",
+    "annex-a-results.pdf",
+    "annex-b-specimens.pdf",
+    "annex-c-rig-runs.pdf",
+    "annex-d-provenance.pdf",
+)
 # ISO 32000-1:2008 §12.6.4 action types that ISO 19005-2 §6.5.1 forbids (from memory)
-FORBIDDEN_ACTIONS = {"/Launch", "/Sound", "/Movie", "/ResetForm", "/ImportData", "/Hide", "/SetOCGState",
-                     "/Rendition", "/Trans", "/GoTo3DView", "/JavaScript", "/SetState", "/NoOp"}
+FORBIDDEN_ACTIONS = {
+    "/Launch",
+    "/Sound",
+    "/Movie",
+    "/ResetForm",
+    "/ImportData",
+    "/Hide",
+    "/SetOCGState",
+    "/Rendition",
+    "/Trans",
+    "/GoTo3DView",
+    "/JavaScript",
+    "/SetState",
+    "/NoOp",
+}
 # ISO 32000-1:2008 §11.3.5 Tables 136 and 137: the standard blend modes
-BLEND_MODES = {"/Normal", "/Compatible", "/Multiply", "/Screen", "/Overlay", "/Darken", "/Lighten", "/ColorDodge",
-               "/ColorBurn", "/HardLight", "/SoftLight", "/Difference", "/Exclusion", "/Hue", "/Saturation",
-               "/Color", "/Luminosity"}
+BLEND_MODES = {
+    "/Normal",
+    "/Compatible",
+    "/Multiply",
+    "/Screen",
+    "/Overlay",
+    "/Darken",
+    "/Lighten",
+    "/ColorDodge",
+    "/ColorBurn",
+    "/HardLight",
+    "/SoftLight",
+    "/Difference",
+    "/Exclusion",
+    "/Hue",
+    "/Saturation",
+    "/Color",
+    "/Luminosity",
+}
 # ISO 32000-2:2020 §7.11.3 Table 43 (AFRelationship values), as ISO 19005-3 §6.8 allows them (from memory)
-RELATIONSHIPS = {"/Source", "/Data", "/Alternative", "/Supplement", "/EncryptedPayload", "/FormData", "/Schema",
-                 "/Unspecified"}
+RELATIONSHIPS = {
+    "/Source",
+    "/Data",
+    "/Alternative",
+    "/Supplement",
+    "/EncryptedPayload",
+    "/FormData",
+    "/Schema",
+    "/Unspecified",
+}
 
 
 def _expected_relationship(name: str) -> str:
@@ -56,10 +98,16 @@ def built(tmp_path_factory):
     root = tmp_path_factory.mktemp("conformance") / "proj"
     t, a, fz, fy = P.sweep_samples(LOADS, tire(), noise_n=10.0, seed=4)
     P.write_csv(root / "rig/a.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz, -fy])
-    head = P.MANIFEST_HEAD.replace('authors = ["A. Tester"]', "authors = [" + ", ".join(f'"{n}"' for n in AUTHORS) + "]")
+    head = P.MANIFEST_HEAD.replace(
+        'authors = ["A. Tester"]', "authors = [" + ", ".join(f'"{n}"' for n in AUTHORS) + "]"
+    )
     assert head != P.MANIFEST_HEAD
-    text = (head + P.specimen_block("A") + P.run_block("A", "rig/a.csv", LOADS)
-            + "\n[fit]\nnominal_load_n = 4000\nleave_one_load_out = false\n")
+    text = (
+        head
+        + P.specimen_block("A")
+        + P.run_block("A", "rig/a.csv", LOADS)
+        + "\n[fit]\nnominal_load_n = 4000\nleave_one_load_out = false\n"
+    )
     (root / "dossier.toml").write_text(text, encoding="utf-8")
     out = root.parent / "out"
     build(root, out, use_cache=False)
@@ -75,10 +123,11 @@ def opened(built):
 def _dicts(pdf: pikepdf.Pdf):
     """Every dictionary of the file: indirect objects (stream dictionaries included) and the
     direct dictionaries nested in them (an annotation's /A action, for instance)."""
+
     def walk(obj, depth):
         if isinstance(obj, (pikepdf.Dictionary, pikepdf.Stream)):
             yield obj
-            children = [obj[key] for key in obj.keys()]
+            children = [obj[key] for key in obj.keys()]  # noqa: SIM118 - pikepdf objects
         elif isinstance(obj, pikepdf.Array):
             children = list(obj)
         else:
@@ -144,7 +193,7 @@ def test_xmp_identifies_pdf_a_3u(opened, name):
     assert stream.Type == "/Metadata" and stream.Subtype == "/XML"
     packet = stream.read_bytes()
     # ISO 19005-2 §6.6.2.1 (from memory): the packet header carries neither "bytes" nor "encoding"
-    header = packet[:packet.index(b"?>")]
+    header = packet[: packet.index(b"?>")]
     assert header.startswith(b"<?xpacket begin=") and b"bytes=" not in header and b"encoding=" not in header
     # ISO 19005-3 §6.6.4 (from memory): pdfaid:part 3, pdfaid:conformance U
     meta = _metadata(pdf)
@@ -169,7 +218,7 @@ def test_xmp_agrees_with_the_information_dictionary(opened, name):
     # metadata, is not before the modification; ours are all the document date at 12:00 UTC
     # (our rule: the same inputs give the same bytes, so the clock never enters the PDF)
     assert _xmp_date(meta.get("xmp:MetadataDate")) >= modified >= created
-    noon = dt.datetime.combine(DOCUMENT_DATE, dt.time(12, 0), tzinfo=dt.timezone.utc)
+    noon = dt.datetime.combine(DOCUMENT_DATE, dt.time(12, 0), tzinfo=dt.UTC)
     assert created == modified == _xmp_date(meta.get("xmp:MetadataDate")) == noon
 
 
@@ -197,8 +246,13 @@ def test_no_image_is_interpolated(opened):
 @pytest.mark.parametrize("name", VOLUMES)
 def test_every_font_is_embedded_and_maps_to_unicode(opened, name):
     pdf = opened[name]
-    fonts = [o for o in pdf.objects if isinstance(o, pikepdf.Dictionary) and o.get("/Type") == "/Font"
-             and o.get("/Subtype") not in ("/CIDFontType0", "/CIDFontType2")]  # descendants: through their Type 0
+    fonts = [
+        o
+        for o in pdf.objects
+        if isinstance(o, pikepdf.Dictionary)
+        and o.get("/Type") == "/Font"
+        and o.get("/Subtype") not in ("/CIDFontType0", "/CIDFontType2")
+    ]  # descendants: through their Type 0
     assert fonts, "no font: the checks below tested nothing"
     for font in fonts:
         subtype = font.Subtype
@@ -320,6 +374,7 @@ def test_embedded_fonts_are_recorded_by_program_hash(built, opened):
 
 # --- one volume rendered in separate processes: the bytes depend on neither clock nor hash seed --
 
+
 def _png_2x2() -> bytes:
     from PIL import Image
 
@@ -335,17 +390,27 @@ def _small_job():
     from dossier.document.volumes import REPORT
 
     png = base64.b64encode(_png_2x2()).decode()
-    svg = (f'<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" width="120" '
-           f'height="60" viewBox="0 0 120 60"><rect width="120" height="60" fill="#fff"/><image x="10" y="10" '
-           f'width="40" height="40" xlink:href="data:image/png;base64,{png}"/></svg>').encode()
-    html = ('<!DOCTYPE html><html lang="en"><head><meta charset="utf-8"><title>Small volume</title>'
-            + "".join(f'<meta name="author" content="{n}">' for n in AUTHORS)
-            + '</head><body><h1>Small volume</h1><p>Text in a font that gets subset: Fy, Mz, α.</p>'
-            '<img src="figures/f.svg" alt="a figure with a bitmap layer"></body></html>').encode()
+    svg = (
+        f'<svg xmlns="http://www.w3.org/2000/svg" xmlns:xlink="http://www.w3.org/1999/xlink" width="120" '
+        f'height="60" viewBox="0 0 120 60"><rect width="120" height="60" fill="#fff"/><image x="10" y="10" '
+        f'width="40" height="40" xlink:href="data:image/png;base64,{png}"/></svg>'
+    ).encode()
+    html = (
+        '<!DOCTYPE html><html lang="en"><head><meta charset="utf-8"><title>Small volume</title>'
+        + "".join(f'<meta name="author" content="{n}">' for n in AUTHORS)
+        + "</head><body><h1>Small volume</h1><p>Text in a font that gets subset: Fy, Mz, α.</p>"
+        '<img src="figures/f.svg" alt="a figure with a bitmap layer"></body></html>'
+    ).encode()
     shared = b"same bytes in two files\n"
-    attached = {"inputs/rig/a.csv": b"t,fy\n0,1\n", "inputs/dossier.toml": b"[document]\n", "inputs/notes/s.md": b"# s\n",
-                "integrity/manifest-sha256.txt": b"00  results.json\n", "annex-z.pdf": b"%PDF-1.7\n",
-                "results.json": shared, "conditioned/run-00.csv": shared}
+    attached = {
+        "inputs/rig/a.csv": b"t,fy\n0,1\n",
+        "inputs/dossier.toml": b"[document]\n",
+        "inputs/notes/s.md": b"# s\n",
+        "integrity/manifest-sha256.txt": b"00  results.json\n",
+        "annex-z.pdf": b"%PDF-1.7\n",
+        "results.json": shared,
+        "conditioned/run-00.csv": shared,
+    }
     return PdfJob(REPORT, html, {"figures/f.svg": svg}, attached, "T-0001", "A", DOCUMENT_DATE)
 
 
@@ -369,9 +434,14 @@ def small_renders(tmp_path_factory):
     job = _small_job()
     (folder / "job.pickle").write_bytes(pickle.dumps(job))
     env = {k: v for k, v in os.environ.items() if k != "SOURCE_DATE_EPOCH"}
-    procs = [subprocess.Popen([sys.executable, "-c", CHILD, str(folder / "job.pickle"), str(folder / f"{seed}.pdf"),
-                               str(offset)], env={**env, "PYTHONHASHSEED": str(seed)}, stderr=subprocess.PIPE)
-             for seed, offset in ((1, 0.0), (2, 40 * 86400.0))]
+    procs = [
+        subprocess.Popen(
+            [sys.executable, "-c", CHILD, str(folder / "job.pickle"), str(folder / f"{seed}.pdf"), str(offset)],
+            env={**env, "PYTHONHASHSEED": str(seed)},
+            stderr=subprocess.PIPE,
+        )
+        for seed, offset in ((1, 0.0), (2, 40 * 86400.0))
+    ]
     for proc in procs:
         _, err = proc.communicate()
         assert proc.returncode == 0, err.decode()
@@ -434,7 +504,7 @@ def test_volumes_are_tagged_with_headings_tables_and_described_figures(opened, n
             if element.S == "/Figure":
                 figures.append(element)
             kids = element.get("/K")
-            for kid in (kids if isinstance(kids, pikepdf.Array) else [kids]):
+            for kid in kids if isinstance(kids, pikepdf.Array) else [kids]:
                 walk(kid, depth + 1)
 
     walk(pdf.Root.StructTreeRoot.K[0])

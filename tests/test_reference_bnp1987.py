@@ -4,18 +4,18 @@ Source: Bakker, Nyborg & Pacejka, SAE 870421 (1987), Tables 2-3 (as reproduced i
 primer §8). At Fz = 4 kN: BCD = 1027.3 N/deg, D = 3690.4 N.
 """
 
+import bnp1987
 import numpy as np
+import projects as P
 import pytest
 
-import bnp1987
-import projects as P
-from dossier.standards import units
 from dossier.engine.build import check
 from dossier.engine.specimens import fit_specimens
+from dossier.metrics.evaluate import metric_values
+from dossier.model.fit import SpecimenModel
 from dossier.project.conditions import nominal_load_n
 from dossier.project.load import load_project
-from dossier.model.fit import SpecimenModel
-from dossier.metrics.evaluate import metric_values
+from dossier.standards import units
 
 LOADS_N = [2000, 4000, 6000, 8000]
 
@@ -32,15 +32,34 @@ def _project(tmp_path, style):
         lbf = units.LBF_IN_N
         # SAE J670: slip angle, Fy and Fz change sign relative to ISO 8855
         P.write_csv(tmp_path / "rig/bnp.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz / lbf, -fy / lbf])
-        run = P.run_block("REF", "rig/bnp.csv", [v / 1000 for v in LOADS_N], load_unit="kN",
-                          convention="SAE J670", units={"fz": "lbf", "fy": "lbf"})
+        run = P.run_block(
+            "REF",
+            "rig/bnp.csv",
+            [v / 1000 for v in LOADS_N],
+            load_unit="kN",
+            convention="SAE J670",
+            units={"fz": "lbf", "fy": "lbf"},
+        )
     else:
-        P.write_csv(tmp_path / "rig/bnp.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, a, fz / 1000, fy / 1000],
-                    delimiter=";", decimal=",")
-        run = P.run_block("REF", "rig/bnp.csv", LOADS_N, convention="ISO 8855", delimiter=";", decimal=",",
-                          units={"fz": "kN", "fy": "kN"})
+        P.write_csv(
+            tmp_path / "rig/bnp.csv",
+            ["TIME", "SLIP_ANGLE", "FZ", "FY"],
+            [t, a, fz / 1000, fy / 1000],
+            delimiter=";",
+            decimal=",",
+        )
+        run = P.run_block(
+            "REF",
+            "rig/bnp.csv",
+            LOADS_N,
+            convention="ISO 8855",
+            delimiter=";",
+            decimal=",",
+            units={"fz": "kN", "fy": "kN"},
+        )
     (tmp_path / "dossier.toml").write_text(
-        P.MANIFEST_HEAD + P.specimen_block("REF") + run + "\n[fit]\nnominal_load_n = 4000\n", encoding="utf-8")
+        P.MANIFEST_HEAD + P.specimen_block("REF") + run + "\n[fit]\nnominal_load_n = 4000\n", encoding="utf-8"
+    )
     return tmp_path
 
 

@@ -6,13 +6,13 @@ import json
 import shutil
 
 import pytest
+from test_document import make_project
 
+from dossier.cli import main
 from dossier.engine import rebuild
 from dossier.publish import archive
-from dossier.cli import main
-from dossier.publish.layout import ENVIRONMENT_NAME
 from dossier.publish.integrity import MANIFEST, with_manifest
-from test_document import make_project
+from dossier.publish.layout import ENVIRONMENT_NAME
 
 
 def test_three_builds_in_separate_processes_are_byte_identical_file_by_file(demo_builds):
@@ -30,8 +30,13 @@ def test_the_output_records_its_theme_and_the_versions_that_shape_its_bytes(demo
         assert env["software"][name] not in ("", "not installed"), name
     assert {"pango", "harfbuzz", "zlib"} <= env["text_libraries"].keys()
     fonts = json.loads((demo_builds["seed1"] / "pdf-fonts.json").read_text(encoding="utf-8"))
-    assert set(fonts) == {"dossier.pdf", "annex-a-results.pdf", "annex-b-specimens.pdf", "annex-c-rig-runs.pdf",
-                          "annex-d-provenance.pdf"}
+    assert set(fonts) == {
+        "dossier.pdf",
+        "annex-a-results.pdf",
+        "annex-b-specimens.pdf",
+        "annex-c-rig-runs.pdf",
+        "annex-d-provenance.pdf",
+    }
     for records in fonts.values():
         assert records and all(len(f["sha256"]) == 64 and f["name"] for f in records)
 

@@ -8,9 +8,32 @@ from dossier.standards.sidewall import LOAD_INDEX_KG, SPEED_SYMBOL_KMH, Sidewall
 
 # ISO 4000-1 / UN ECE R30 Annex 4 / R54 Annex IV load-index values as listed in the domain
 # primer §7 (from memory, matching several secondary tables).
-PRIMER_LOAD_INDEX = {60: 250, 70: 335, 75: 387, 80: 450, 83: 487, 85: 515, 90: 600, 91: 615, 94: 670, 95: 690,
-                     100: 800, 105: 925, 110: 1060, 115: 1215, 120: 1400, 125: 1650, 130: 1900, 135: 2180,
-                     140: 2500, 144: 2800, 145: 2900, 150: 3350, 155: 3875, 160: 4500}
+PRIMER_LOAD_INDEX = {
+    60: 250,
+    70: 335,
+    75: 387,
+    80: 450,
+    83: 487,
+    85: 515,
+    90: 600,
+    91: 615,
+    94: 670,
+    95: 690,
+    100: 800,
+    105: 925,
+    110: 1060,
+    115: 1215,
+    120: 1400,
+    125: 1650,
+    130: 1900,
+    135: 2180,
+    140: 2500,
+    144: 2800,
+    145: 2900,
+    150: 3350,
+    155: 3875,
+    160: 4500,
+}
 
 
 @pytest.mark.parametrize("li, kg", sorted(PRIMER_LOAD_INDEX.items()))
@@ -29,24 +52,48 @@ def test_load_index_follows_the_geometric_series():
 
 def test_speed_symbols():
     # ISO 4000-1 / UN ECE R30 speed symbols (domain primer §7)
-    assert SPEED_SYMBOL_KMH == {"L": 120, "M": 130, "N": 140, "P": 150, "Q": 160, "R": 170, "S": 180, "T": 190,
-                                "U": 200, "H": 210, "V": 240, "W": 270, "Y": 300}
+    assert SPEED_SYMBOL_KMH == {
+        "L": 120,
+        "M": 130,
+        "N": 140,
+        "P": 150,
+        "Q": 160,
+        "R": 170,
+        "S": 180,
+        "T": 190,
+        "U": 200,
+        "H": 210,
+        "V": 240,
+        "W": 270,
+        "Y": 300,
+    }
 
 
-@pytest.mark.parametrize("text, width, aspect, rim, li, dual, speed, reinforced, kmh", [
-    ("225/45 R17 94W", 225, 45, 17, 94, None, "W", False, 270),
-    ("P215/65R15 95H", 215, 65, 15, 95, None, "H", False, 210),
-    ("LT265/75R16 123/120R", 265, 75, 16, 123, 120, "R", False, 170),
-    ("255/35ZR19 96Y XL", 255, 35, 19, 96, None, "Y", True, 300),
-    ("295/75R22.5 144/141L", 295, 75, 22.5, 144, 141, "L", False, 120),
-    ("445/50R22.5", 445, 50, 22.5, None, None, None, False, None),
-    ("245/40 ZR18 97(Y)", 245, 40, 18, 97, None, "(Y)", False, 300),
-    ("205/55 R16 91V reinforced", 205, 55, 16, 91, None, "V", True, 240),
-])
+@pytest.mark.parametrize(
+    "text, width, aspect, rim, li, dual, speed, reinforced, kmh",
+    [
+        ("225/45 R17 94W", 225, 45, 17, 94, None, "W", False, 270),
+        ("P215/65R15 95H", 215, 65, 15, 95, None, "H", False, 210),
+        ("LT265/75R16 123/120R", 265, 75, 16, 123, 120, "R", False, 170),
+        ("255/35ZR19 96Y XL", 255, 35, 19, 96, None, "Y", True, 300),
+        ("295/75R22.5 144/141L", 295, 75, 22.5, 144, 141, "L", False, 120),
+        ("445/50R22.5", 445, 50, 22.5, None, None, None, False, None),
+        ("245/40 ZR18 97(Y)", 245, 40, 18, 97, None, "(Y)", False, 300),
+        ("205/55 R16 91V reinforced", 205, 55, 16, 91, None, "V", True, 240),
+    ],
+)
 def test_size_designations(text, width, aspect, rim, li, dual, speed, reinforced, kmh):
     s = parse_size(text)
-    assert (s.width_mm, s.aspect_pct, s.rim_in, s.load_index, s.load_index_dual, s.speed_symbol, s.reinforced,
-            s.max_speed_kmh) == (width, aspect, rim, li, dual, speed, reinforced, kmh)
+    assert (
+        s.width_mm,
+        s.aspect_pct,
+        s.rim_in,
+        s.load_index,
+        s.load_index_dual,
+        s.speed_symbol,
+        s.reinforced,
+        s.max_speed_kmh,
+    ) == (width, aspect, rim, li, dual, speed, reinforced, kmh)
 
 
 def test_nominal_dimensions_follow_the_designation_arithmetic():
@@ -62,12 +109,15 @@ def test_nominal_dimensions_follow_the_designation_arithmetic():
     assert parse_size("225/45 R17 94X") is None  # X is no speed symbol
 
 
-@pytest.mark.parametrize("tin, week, year", [
-    ("DOT N7RV 4K2X 2319", 23, 2019),  # 49 CFR 574.5: since 2000, four digits, week then year
-    ("DOT 4B 2T 1207", 12, 2007),
-    ("DOTXY12ABC0125", 1, 2025),
-    ("DOT XY12 ABC 279", 27, 1999),  # before 2000: three digits, week then the year's last digit
-])
+@pytest.mark.parametrize(
+    "tin, week, year",
+    [
+        ("DOT N7RV 4K2X 2319", 23, 2019),  # 49 CFR 574.5: since 2000, four digits, week then year
+        ("DOT 4B 2T 1207", 12, 2007),
+        ("DOTXY12ABC0125", 1, 2025),
+        ("DOT XY12 ABC 279", 27, 1999),  # before 2000: three digits, week then the year's last digit
+    ],
+)
 def test_tin_date_codes(tin, week, year):
     code = parse_tin(tin)
     assert (code.week, code.year) == (week, year)

@@ -5,13 +5,13 @@ import shutil
 
 import pytest
 from prov.model import ProvDocument
+from test_document import RELEASED, make_project
 
-from dossier.engine import rebuild
-from dossier.publish import archive
-from dossier.engine.build import build
 from dossier.cli import main
 from dossier.common.errors import OutputError, StateError
-from test_document import RELEASED, make_project
+from dossier.engine import rebuild
+from dossier.engine.build import build
+from dossier.publish import archive
 
 
 @pytest.fixture(scope="module")
@@ -97,8 +97,14 @@ def test_verify_lists_every_signature_and_checks_the_keys_given(sealed, tmp_path
     assert "NOT checked" in capsys.readouterr().out
     # the approver countersigns the same digest with their own key
     signed = _tampered(copy, tmp_path, lambda t: None)
-    path = archive.countersign(keys / "c.pem", "approved with deviation", "Mz at 8 kN above the window", "A. Approver",
-                               "Vehicle Maker", folder=signed)
+    path = archive.countersign(
+        keys / "c.pem",
+        "approved with deviation",
+        "Mz at 8 kN above the window",
+        "A. Approver",
+        "Vehicle Maker",
+        folder=signed,
+    )
     report = archive.verify(signed, [keys / "k.pub", keys / "c.pub"])
     assert report.ok, report.lines()
     roles = {s.role: s for s in report.signatures}
@@ -115,17 +121,55 @@ def test_countersigning_from_the_digest_alone(sealed, tmp_path, capsys):
     assert main(["digest", str(copy)]) == 0
     value = capsys.readouterr().out.split()[0]
     sig = tmp_path / "approval.json"
-    assert main(["countersign", "--digest", value, "--document", "T-0001", "--revision", "A",
-                 "--private-key", str(keys / "c.pem"), "--statement", "approved", "--signer", "A. Approver",
-                 "--signature-out", str(sig)]) == 0
+    assert (
+        main(
+            [
+                "countersign",
+                "--digest",
+                value,
+                "--document",
+                "T-0001",
+                "--revision",
+                "A",
+                "--private-key",
+                str(keys / "c.pem"),
+                "--statement",
+                "approved",
+                "--signer",
+                "A. Approver",
+                "--signature-out",
+                str(sig),
+            ]
+        )
+        == 0
+    )
     target = _tampered(copy, tmp_path, lambda t: shutil.copy(sig, t / "signatures" / "approver.json"))
     report = archive.verify(target, [keys / "k.pub", keys / "c.pub"])
     assert report.ok and report.approval == "customer approval: approved by A. Approver"
     # a signature of another document or revision is refused
     wrong = tmp_path / "wrong.json"
-    assert main(["countersign", "--digest", value, "--document", "T-0001", "--revision", "B",
-                 "--private-key", str(keys / "c.pem"), "--statement", "approved", "--signer", "A. Approver",
-                 "--signature-out", str(wrong)]) == 0
+    assert (
+        main(
+            [
+                "countersign",
+                "--digest",
+                value,
+                "--document",
+                "T-0001",
+                "--revision",
+                "B",
+                "--private-key",
+                str(keys / "c.pem"),
+                "--statement",
+                "approved",
+                "--signer",
+                "A. Approver",
+                "--signature-out",
+                str(wrong),
+            ]
+        )
+        == 0
+    )
     target = _tampered(copy, tmp_path, lambda t: shutil.copy(wrong, t / "signatures" / "approver.json"))
     assert "names T-0001 rev. B" in " ".join(archive.verify(target, [keys / "k.pub", keys / "c.pub"]).lines())
 
@@ -157,10 +201,15 @@ def test_editing_any_file_or_signature_field_fails_verification(sealed, tmp_path
             seal = json.loads((t / "signatures/supplier-seal.json").read_text(encoding="utf-8"))
             seal[field] = value
             (t / "signatures/supplier-seal.json").write_text(json.dumps(seal), encoding="utf-8")
+
         return mutate
 
-    for field, value in (("revision", "Z"), ("document", "OTHER"), ("signer", "Someone Else"),
-                         ("statement", "approved")):
+    for field, value in (
+        ("revision", "Z"),
+        ("document", "OTHER"),
+        ("signer", "Someone Else"),
+        ("statement", "approved"),
+    ):
         r = verify(seal_field(field, value))
         assert r.state == "failed" and "does not match its fields" in r.signatures[0].problem, field
     r = verify(lambda t: (t / "signatures/notes.txt").write_text("x", encoding="utf-8"))
@@ -177,7 +226,9 @@ def test_a_copy_resealed_with_a_strangers_key_is_not_valid(sealed, tmp_path, cap
         _flip(t / "site/index.html")
         (t / "signatures/supplier-seal.json").unlink()
         files = archive.read_folder(t)
-        (t / "manifest-sha256.txt").write_bytes(__import__("dossier.publish.integrity", fromlist=["x"]).manifest_bytes(files))
+        (t / "manifest-sha256.txt").write_bytes(
+            __import__("dossier.publish.integrity", fromlist=["x"]).manifest_bytes(files)
+        )
         archive.seal(t, stranger / "x.pem")
 
     forged = _tampered(copy, tmp_path, forge)
@@ -196,10 +247,36 @@ def test_sealing_rules_and_their_exit_codes(released, sealed, tmp_path):
     bad = _tampered(copy, tmp_path, lambda t: _flip(t / "results.json"))
     assert main(["verify", str(bad), "--public-key", str(keys / "k.pub")]) == 5
     unsealed = _tampered(copy, tmp_path, lambda t: shutil.rmtree(t / "signatures"))
-    assert main(["countersign", str(unsealed), "--private-key", str(keys / "c.pem"), "--statement", "approved",
-                 "--signer", "A. Approver"]) == 6
-    assert main(["countersign", str(copy), "--private-key", str(keys / "c.pem"), "--statement", "rejected",
-                 "--signer", "A. Approver"]) == 3  # a rejection needs a reason
+    assert (
+        main(
+            [
+                "countersign",
+                str(unsealed),
+                "--private-key",
+                str(keys / "c.pem"),
+                "--statement",
+                "approved",
+                "--signer",
+                "A. Approver",
+            ]
+        )
+        == 6
+    )
+    assert (
+        main(
+            [
+                "countersign",
+                str(copy),
+                "--private-key",
+                str(keys / "c.pem"),
+                "--statement",
+                "rejected",
+                "--signer",
+                "A. Approver",
+            ]
+        )
+        == 3
+    )  # a rejection needs a reason
 
 
 def test_only_released_revisions_are_sealed(tmp_path):
@@ -221,8 +298,14 @@ def test_the_report_pdf_alone_can_be_checked_and_rebuilt_from(released, tmp_path
     from dossier.document.pdfa import attachments
 
     carried = attachments(report.read_bytes())
-    assert {"inputs/dossier.toml", "inputs/rig/a.csv", "inputs/notes/summary.md", "results.json",
-            "integrity/manifest-sha256.txt", "environment.json"} <= carried.keys()
+    assert {
+        "inputs/dossier.toml",
+        "inputs/rig/a.csv",
+        "inputs/notes/summary.md",
+        "results.json",
+        "integrity/manifest-sha256.txt",
+        "environment.json",
+    } <= carried.keys()
     assert main(["verify", str(report), "--rebuild"]) == 0
     assert "every file reproduced byte for byte" in capsys.readouterr().out
     # a PDF whose attached rig file was changed is caught from the PDF alone
@@ -271,10 +354,18 @@ def test_commands_given_a_missing_or_foreign_folder_are_user_errors(released, tm
     foreign.mkdir()
     (foreign / "x.txt").write_text("x", encoding="utf-8")
     missing = tmp_path / "missing"
-    for args in (["diff", str(out), str(missing)], ["diff", str(foreign), str(out)], ["verify", str(missing)],
-                 ["verify", str(foreign)], ["digest", str(foreign)], ["export", str(missing), str(tmp_path / "b")],
-                 ["seal", str(foreign), "--private-key", str(keys / "k.pem")], ["check", str(missing)],
-                 ["build", str(foreign)], ["verify", str(tmp_path / "none.pdf")]):
+    for args in (
+        ["diff", str(out), str(missing)],
+        ["diff", str(foreign), str(out)],
+        ["verify", str(missing)],
+        ["verify", str(foreign)],
+        ["digest", str(foreign)],
+        ["export", str(missing), str(tmp_path / "b")],
+        ["seal", str(foreign), "--private-key", str(keys / "k.pem")],
+        ["check", str(missing)],
+        ["build", str(foreign)],
+        ["verify", str(tmp_path / "none.pdf")],
+    ):
         code = main(args)
         err = capsys.readouterr().err
         assert code in (3, 5), (args, code, err)

@@ -1,23 +1,24 @@
 import numpy as np
 import pytest
 
-from dossier.standards import axes
-
-from dossier.standards import units
+from dossier.standards import axes, units
 
 
-@pytest.mark.parametrize("quantity, unit, expected", [
-    ("force", "lbf", 4.448222),  # NIST SP 811 (2008) B.8: 1 lbf = 4.448 222 N
-    ("force", "kN", 1000.0),  # SI prefix
-    ("force", "kgf", 9.80665),  # NIST SP 811 B.8: kilogram-force = 9.806 65 N
-    ("moment", "lbf·in", 0.1129848),  # NIST SP 811 B.8: pound-force inch = 0.112 984 8 N·m
-    ("moment", "lbf·ft", 1.355818),  # NIST SP 811 B.8: pound-force foot = 1.355 818 N·m
-    ("pressure", "psi", 6.894757),  # NIST SP 811 B.8: 1 psi = 6.894 757 kPa
-    ("pressure", "bar", 100.0),  # NIST SP 811 B.8: 1 bar = 100 kPa
-    ("speed", "mph", 1.609344),  # NIST SP 811 B.8: mile per hour = 1.609 344 km/h
-    ("speed", "m/s", 3.6),  # definition
-    ("angle", "rad", 57.29578),  # NIST SP 811 B.8: 1 rad = 57.295 78 deg
-])
+@pytest.mark.parametrize(
+    "quantity, unit, expected",
+    [
+        ("force", "lbf", 4.448222),  # NIST SP 811 (2008) B.8: 1 lbf = 4.448 222 N
+        ("force", "kN", 1000.0),  # SI prefix
+        ("force", "kgf", 9.80665),  # NIST SP 811 B.8: kilogram-force = 9.806 65 N
+        ("moment", "lbf·in", 0.1129848),  # NIST SP 811 B.8: pound-force inch = 0.112 984 8 N·m
+        ("moment", "lbf·ft", 1.355818),  # NIST SP 811 B.8: pound-force foot = 1.355 818 N·m
+        ("pressure", "psi", 6.894757),  # NIST SP 811 B.8: 1 psi = 6.894 757 kPa
+        ("pressure", "bar", 100.0),  # NIST SP 811 B.8: 1 bar = 100 kPa
+        ("speed", "mph", 1.609344),  # NIST SP 811 B.8: mile per hour = 1.609 344 km/h
+        ("speed", "m/s", 3.6),  # definition
+        ("angle", "rad", 57.29578),  # NIST SP 811 B.8: 1 rad = 57.295 78 deg
+    ],
+)
 def test_unit_factors_match_nist_sp811(quantity, unit, expected):
     # NIST gives 7 significant digits: agree within half a unit in the last one.
     assert units.factor_to_internal(quantity, unit) == pytest.approx(expected, rel=5e-7)

@@ -4,12 +4,19 @@ import math
 
 import pytest
 
-from dossier.standards import units
 from dossier.evaluation.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
-from dossier.project.manifest import Target
+from dossier.evaluation.vehicle import (
+    AxleFitment,
+    balance,
+    character,
+    characteristic_speed_kmh,
+    critical_speed_kmh,
+    understeer_gradient_deg_per_g,
+    yaw_rate_gain_per_s,
+)
 from dossier.metrics.evaluate import MetricValue
-from dossier.evaluation.vehicle import (AxleFitment, balance, character, characteristic_speed_kmh, critical_speed_kmh,
-                             understeer_gradient_deg_per_g, yaw_rate_gain_per_s)
+from dossier.project.manifest import Target
+from dossier.standards import units
 
 DEG_PER_RAD = 180.0 / math.pi
 
@@ -34,8 +41,14 @@ def test_wong_worked_example_in_si_units_through_a_fitment():
     lbf, ft = units.LBF_IN_N, units.FOOT_IN_M
     front_n, rear_n = 4520 * lbf * 0.55, 4520 * lbf * 0.45
     per_tire = {"F": 8750 * lbf / DEG_PER_RAD, "R": 8600 * lbf / DEG_PER_RAD}  # N/deg
-    b = balance(AxleFitment("F", 2, "single"), AxleFitment("R", 2, "single"), front_n, rear_n, 10.5 * ft,
-                lambda sid, load: (per_tire[sid], None))
+    b = balance(
+        AxleFitment("F", 2, "single"),
+        AxleFitment("R", 2, "single"),
+        front_n,
+        rear_n,
+        10.5 * ft,
+        lambda sid, load: (per_tire[sid], None),
+    )
     assert b.understeer_gradient_deg_per_g == pytest.approx(1.364, abs=0.001)
     assert b.characteristic_speed_kmh == pytest.approx(130.7, abs=0.1)
     assert b.critical_speed_kmh is None and b.character == "understeer"
@@ -52,8 +65,9 @@ def test_dual_axle_against_wide_base_single_hand_computed():
         return {"steer": 2500 + 0.06 * load, "dual": 2000 + 0.05 * load, "wide": 3500 + 0.06 * load}[sid], None
 
     dual = balance(AxleFitment("steer", 2, "single"), AxleFitment("dual", 4, "dual"), front, rear, 3.8, stiffness)
-    wide = balance(AxleFitment("steer", 2, "single"), AxleFitment("wide", 2, "wide-base single"), front, rear, 3.8,
-                   stiffness)
+    wide = balance(
+        AxleFitment("steer", 2, "single"), AxleFitment("wide", 2, "wide-base single"), front, rear, 3.8, stiffness
+    )
     # by hand: steer tire 31 871.6 N → 4 412.30 N/deg per tire, 8 824.59 per axle; dual tire 28 194.1 N →
     # 3 409.71 N/deg, 13 638.82 per axle; K = 63 743.2/8 824.59 − 112 776.5/13 638.82 = −1.0454 deg/g
     caf = 2 * (2500 + 0.06 * 6500 * g / 2)
@@ -83,23 +97,37 @@ def _target(minimum=None, maximum=None, camber=0.0, pressure=None):
 
 
 def _value(v, ci, extrapolated=False):
-    return MetricValue("cornering_stiffness", "N/deg", "S", 4000.0, 0.0, 240.0, v, None if ci is None else 1.0, ci,
-                       "model", extrapolated)
+    return MetricValue(
+        "cornering_stiffness",
+        "N/deg",
+        "S",
+        4000.0,
+        0.0,
+        240.0,
+        v,
+        None if ci is None else 1.0,
+        ci,
+        "model",
+        extrapolated,
+    )
 
 
-@pytest.mark.parametrize("target, value, verdict", [
-    (_target(1000, 1200), _value(1100, (1050, 1150)), MEETS),
-    (_target(1000, 1200), _value(1100, (1000, 1200)), MEETS),  # interval touching both limits: inside
-    (_target(1000, 1200), _value(1190, (1150, 1230)), MARGINAL),  # straddles the maximum
-    (_target(1000, 1200), _value(1010, (990, 1030)), MARGINAL),  # straddles the minimum
-    (_target(1000, 1200), _value(1250, (1201, 1299)), FAILS),
-    (_target(minimum=1000), _value(999, (998, 1000)), MARGINAL),  # touches from below: not a bare pass
-    (_target(minimum=1000), _value(1100, None), MARGINAL),  # no interval: never a bare pass
-    (_target(maximum=1000), _value(900, (850, 950)), MEETS),
-    (_target(1000, 1200), None, NOT_MEASURED),  # missing metric
-    (_target(1000, 1200), _value(1100, (1050, 1150), extrapolated=True), NOT_MEASURED),  # outside the load range
-    (_target(1000, 1200, camber=-2.0), _value(1100, (1050, 1150)), NOT_MEASURED),
-    (_target(1000, 1200, pressure=280.0), _value(1100, (1050, 1150)), NOT_MEASURED),
-])
+@pytest.mark.parametrize(
+    "target, value, verdict",
+    [
+        (_target(1000, 1200), _value(1100, (1050, 1150)), MEETS),
+        (_target(1000, 1200), _value(1100, (1000, 1200)), MEETS),  # interval touching both limits: inside
+        (_target(1000, 1200), _value(1190, (1150, 1230)), MARGINAL),  # straddles the maximum
+        (_target(1000, 1200), _value(1010, (990, 1030)), MARGINAL),  # straddles the minimum
+        (_target(1000, 1200), _value(1250, (1201, 1299)), FAILS),
+        (_target(minimum=1000), _value(999, (998, 1000)), MARGINAL),  # touches from below: not a bare pass
+        (_target(minimum=1000), _value(1100, None), MARGINAL),  # no interval: never a bare pass
+        (_target(maximum=1000), _value(900, (850, 950)), MEETS),
+        (_target(1000, 1200), None, NOT_MEASURED),  # missing metric
+        (_target(1000, 1200), _value(1100, (1050, 1150), extrapolated=True), NOT_MEASURED),  # outside the load range
+        (_target(1000, 1200, camber=-2.0), _value(1100, (1050, 1150)), NOT_MEASURED),
+        (_target(1000, 1200, pressure=280.0), _value(1100, (1050, 1150)), NOT_MEASURED),
+    ],
+)
 def test_verdict_edges(target, value, verdict):
     assert judge(target, value, 240.0)[0] == verdict

@@ -70,7 +70,7 @@ class Guard:
         self._unraisable = None
         self._outer: Guard | None = None
 
-    def __enter__(self) -> "Guard":
+    def __enter__(self) -> Guard:
         global _active
         if _in_main_thread():  # only the main thread may set handlers (and only it runs them)
             self._previous = {s: signal.signal(s, self._handle) for s in EXIT_CODES}

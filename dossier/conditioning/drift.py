@@ -16,9 +16,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from ..common.errors import StageError
 from ..conditioning import estimates
 from ..conditioning.steady_state import OperatingPoint
-from ..common.errors import StageError
 
 TRACKED = ("cornering_stiffness_n_per_deg", "peak_friction")
 
@@ -68,16 +68,30 @@ class DriftEstimate:
 
 def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: float) -> DriftEstimate | None:
     """Estimate drift from the control specimen's repeats; None if it was tested fewer than twice."""
-    ctl = [p for p in points if p.specimen == control and p.sweep == "slip_angle" and p.camber_deg == 0.0
-           and p.rolling_direction == "forward" and p.tested_at is not None]
+    ctl = [
+        p
+        for p in points
+        if p.specimen == control
+        and p.sweep == "slip_angle"
+        and p.camber_deg == 0.0
+        and p.rolling_direction == "forward"
+        and p.tested_at is not None
+    ]
     if not ctl:
         return None
     loads = sorted({p.load_n for p in ctl}, key=lambda v: (abs(v - nominal_load_n), v))
     load = loads[0]
     at_load = sorted((p for p in ctl if p.load_n == load), key=lambda p: p.tested_at)
-    repeats = tuple(ControlRepeat(p.run_index, p.tested_at, load,
-                                  estimates.cornering_stiffness_n_per_deg(p.curve), estimates.peak_friction(p.curve))
-                    for p in at_load)
+    repeats = tuple(
+        ControlRepeat(
+            p.run_index,
+            p.tested_at,
+            load,
+            estimates.cornering_stiffness_n_per_deg(p.curve),
+            estimates.peak_friction(p.curve),
+        )
+        for p in at_load
+    )
     if len({r.tested_at for r in repeats}) < 2:
         return None
     t_ref = repeats[0].tested_at
@@ -106,10 +120,15 @@ def correct_points(points: list[OperatingPoint], estimate: DriftEstimate) -> tup
             continue
         k = estimate.force_scale_at(p.tested_at)
         corrections[p.run_index] = RunCorrection(p.run_index, p.specimen, p.tested_at, k)
-        out.append(replace(
-            p, curve=p.curve.scaled(k),
-            rising=None if p.rising is None else p.rising.scaled(k),
-            falling=None if p.falling is None else p.falling.scaled(k),
-            raw_main=p.raw_main * k, force_scale=k))
+        out.append(
+            replace(
+                p,
+                curve=p.curve.scaled(k),
+                rising=None if p.rising is None else p.rising.scaled(k),
+                falling=None if p.falling is None else p.falling.scaled(k),
+                raw_main=p.raw_main * k,
+                force_scale=k,
+            )
+        )
     ordered = tuple(sorted(corrections.values(), key=lambda c: c.tested_at))
     return out, replace(estimate, corrected=True, corrections=ordered)

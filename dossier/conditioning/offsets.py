@@ -41,9 +41,19 @@ def split_offsets(points: list[OperatingPoint]) -> list[OffsetSplit]:
         mr = [p.offsets.mz_at_zero_slip_nm for p in fwd[(sid, load, camber, "reverse")]]
         has_mz = all(v is not None for v in mf + mr)
         mzf, mzr = (_mean(mf), _mean(mr)) if has_mz else (None, None)
-        out.append(OffsetSplit(sid, load, camber, f, r, 0.5 * (f + r), 0.5 * (f - r),
-                               None if not has_mz else 0.5 * (mzf + mzr),
-                               None if not has_mz else 0.5 * (mzf - mzr)))
+        out.append(
+            OffsetSplit(
+                sid,
+                load,
+                camber,
+                f,
+                r,
+                0.5 * (f + r),
+                0.5 * (f - r),
+                None if not has_mz else 0.5 * (mzf + mzr),
+                None if not has_mz else 0.5 * (mzf - mzr),
+            )
+        )
     return out
 
 

@@ -41,8 +41,16 @@ REASON_RUN_IN = "sweep run-in from a hold (relaxation lag still building)"
 REASON_SLIP_SETTLING = "slip settling after the sweep stopped (relaxation lag decaying)"
 REASON_STEP_MOVE = "moving between slip steps (stepped sweep)"
 REASON_SPARSE = "too few samples in slip bin"
-REASONS = (REASON_TRANSITION, REASON_UNMATCHED, REASON_SETTLING, REASON_SPIKE, REASON_RUN_IN, REASON_SLIP_SETTLING,
-           REASON_STEP_MOVE, REASON_SPARSE)
+REASONS = (
+    REASON_TRANSITION,
+    REASON_UNMATCHED,
+    REASON_SETTLING,
+    REASON_SPIKE,
+    REASON_RUN_IN,
+    REASON_SLIP_SETTLING,
+    REASON_STEP_MOVE,
+    REASON_SPARSE,
+)
 
 SOUND, WITH_FINDINGS, UNUSABLE = "sound", "usable with findings", "unusable"
 NOTE, FINDING, BLOCKING = "note", "finding", "unusable"
@@ -89,12 +97,22 @@ class SlipCurve:
         """The force the sweep is about: Fy for slip-angle sweeps, Fx for slip-ratio sweeps."""
         return self.fy_n if self.sweep == "slip_angle" else self.fx_n
 
-    def scaled(self, factor: float) -> "SlipCurve":
+    def scaled(self, factor: float) -> SlipCurve:
         """Return the curve with forces and moments (not the load) multiplied by `factor`."""
+
         def s(a):
             return None if a is None else _frozen(a * factor)
-        return SlipCurve(self.sweep, self.x, self.fz_n, s(self.fy_n), s(self.mz_nm), s(self.fx_n),
-                         self.samples_per_bin, self.bin_index)
+
+        return SlipCurve(
+            self.sweep,
+            self.x,
+            self.fz_n,
+            s(self.fy_n),
+            s(self.mz_nm),
+            s(self.fx_n),
+            self.samples_per_bin,
+            self.bin_index,
+        )
 
 
 @dataclass(frozen=True)
@@ -220,8 +238,9 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
 
     # 1. operating points: load and camber levels, hinted or detected
     loads, load_detected = _levels(fz, spec.load_setpoints_n, resolution=0.03 * np.percentile(np.abs(fz), 95))
-    cambers, _ = _levels(incl, spec.camber_setpoints_deg if spec.camber_setpoints_deg or "inclination" in ch else (0.0,),
-                         resolution=0.25)
+    cambers, _ = _levels(
+        incl, spec.camber_setpoints_deg if spec.camber_setpoints_deg or "inclination" in ch else (0.0,), resolution=0.25
+    )
     load_idx, load_ok = _assign(fz, loads, settings.load_tolerance_pct / 100.0 * loads)
     camber_idx, camber_ok = _assign(incl, cambers, np.full(cambers.size, settings.camber_tolerance_deg))
     in_band = load_ok & camber_ok
@@ -231,14 +250,20 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
             if level < 0.5 * loads.min():  # the rig's preload before and after the program
                 run_findings.append(Finding(NOTE, f"{count} samples at a preload of about {level:.0f} N dropped"))
             else:
-                run_findings.append(Finding(FINDING, f"{count} samples hold a steady load of about {level:.0f} N, "
-                                                     f"which matches no set-point; dropped as out of range"))
+                run_findings.append(
+                    Finding(
+                        FINDING,
+                        f"{count} samples hold a steady load of about {level:.0f} N, "
+                        f"which matches no set-point; dropped as out of range",
+                    )
+                )
             dropped[REASON_UNMATCHED] += count
         dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band)) - dropped[REASON_UNMATCHED]
     else:
         dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band))
-        run_findings.append(Finding(NOTE, "load steps detected from the data: "
-                                          + ", ".join(f"{v:.0f} N" for v in loads)))
+        run_findings.append(
+            Finding(NOTE, "load steps detected from the data: " + ", ".join(f"{v:.0f} N" for v in loads))
+        )
 
     # 2. settling at the start of every stay
     label = np.where(in_band, load_idx * cambers.size + camber_idx, -1)
@@ -279,8 +304,9 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
                 if spec.load_setpoints_n and ci == 0:
                     run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
                 continue
-            point, drops = _operating_point(run, sel, direction, float(load), float(camber), bin_width, settings,
-                                            rated_load_n)
+            point, drops = _operating_point(
+                run, sel, direction, float(load), float(camber), bin_width, settings, rated_load_n
+            )
             for reason, count in drops.items():
                 dropped[reason] += count
             if point is not None:
@@ -288,22 +314,36 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
 
     n_dropped = sum(dropped.values())
     if dropped[REASON_SPIKE] > 0.01 * n:
-        run_findings.append(Finding(FINDING, f"{dropped[REASON_SPIKE]} spikes removed "
-                                             f"({100 * dropped[REASON_SPIKE] / n:.1f} % of samples)"))
+        run_findings.append(
+            Finding(
+                FINDING, f"{dropped[REASON_SPIKE]} spikes removed ({100 * dropped[REASON_SPIKE] / n:.1f} % of samples)"
+            )
+        )
     if n_dropped > 0.5 * n:
         run_findings.append(Finding(FINDING, f"{100 * n_dropped / n:.0f} % of the samples were dropped"))
     verdict, reasons = _verdict(points, run_findings)
     account = ConditioningAccount(
-        run_index=spec.index, specimen=spec.specimen, source_file=spec.file, sha256=run.sha256,
-        n_samples=n, n_kept=n - n_dropped, dropped=dropped, operating_points_found=len(points),
-        load_levels_n=tuple(float(v) for v in loads), levels_detected=load_detected,
-        findings=tuple(run_findings), verdict=verdict, verdict_reasons=tuple(reasons))
+        run_index=spec.index,
+        specimen=spec.specimen,
+        source_file=spec.file,
+        sha256=run.sha256,
+        n_samples=n,
+        n_kept=n - n_dropped,
+        dropped=dropped,
+        operating_points_found=len(points),
+        load_levels_n=tuple(float(v) for v in loads),
+        levels_detected=load_detected,
+        findings=tuple(run_findings),
+        verdict=verdict,
+        verdict_reasons=tuple(reasons),
+    )
     step = max(1, n // OVERVIEW_POINTS)
     overview = RunOverview(_frozen(t[::step]), _frozen(fz[::step]), _frozen(x[::step]), _frozen_bool(keep[::step]))
     return ConditionedRun(account, tuple(points), overview)
 
 
 # --- operating points ------------------------------------------------------------------------
+
 
 def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, settings, rated_load_n):
     spec = run.spec
@@ -327,14 +367,14 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
         # A stepped sweep: the held steps are the steady-state data; the moves between them
         # are transitions.
         drops[REASON_STEP_MOVE] = int(np.count_nonzero(~held))
-        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x[held], {k: v[held] for k, v in data.items()},
-                                                  bin_width, settings.min_samples_per_bin)
+        steady, drops[REASON_SPARSE] = _bin_curve(
+            sweep, x[held], {k: v[held] for k, v in data.items()}, bin_width, settings.min_samples_per_bin
+        )
     else:
         # A continuous sweep: undo the lag of each moving half (rising samples saw x − lag,
         # falling x + lag), then bin everything together; held samples need no shift.
         shift = 0.0 if hyst is None or hyst.slip_lag is None else hyst.slip_lag
-        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x - shift * d, data, bin_width,
-                                                  settings.min_samples_per_bin)
+        steady, drops[REASON_SPARSE] = _bin_curve(sweep, x - shift * d, data, bin_width, settings.min_samples_per_bin)
     if steady.n_points == 0:
         return None, drops
     lines = run.line_numbers[sel]
@@ -346,13 +386,29 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
     moving = d[d != 0]
     reversals = int(np.count_nonzero(np.diff(moving) != 0))
     point = OperatingPoint(
-        specimen=spec.specimen, run_index=spec.index, source_file=spec.file, sweep=sweep,
-        rolling_direction=spec.rolling_direction, tested_at=spec.tested_at,
-        load_n=load, camber_deg=camber, pressure_kpa=spec.pressure_kpa,
-        mean_load_n=float(np.mean(data["fz"])), measured_pressure_kpa=pressure, mean_speed_kmh=speed,
-        curve=steady, rising=halves["rising"], falling=halves["falling"], hysteresis=hyst, offsets=offsets,
-        n_sweeps=(reversals + 1) / 2.0, raw_x=_frozen(x), raw_main=_frozen(main),
-        first_line=int(lines.min()), last_line=int(lines.max()), n_samples_kept=int(x.size),
+        specimen=spec.specimen,
+        run_index=spec.index,
+        source_file=spec.file,
+        sweep=sweep,
+        rolling_direction=spec.rolling_direction,
+        tested_at=spec.tested_at,
+        load_n=load,
+        camber_deg=camber,
+        pressure_kpa=spec.pressure_kpa,
+        mean_load_n=float(np.mean(data["fz"])),
+        measured_pressure_kpa=pressure,
+        mean_speed_kmh=speed,
+        curve=steady,
+        rising=halves["rising"],
+        falling=halves["falling"],
+        hysteresis=hyst,
+        offsets=offsets,
+        n_sweeps=(reversals + 1) / 2.0,
+        raw_x=_frozen(x),
+        raw_main=_frozen(main),
+        first_line=int(lines.min()),
+        last_line=int(lines.max()),
+        n_samples_kept=int(x.size),
         time_span_s=(float(t.min()), float(t.max())),
     )
     findings = _coverage(point, settings, rated_load_n)
@@ -361,6 +417,7 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
 
 def _replace_findings(point: OperatingPoint, findings) -> OperatingPoint:
     from dataclasses import replace
+
     return replace(point, findings=tuple(findings))
 
 
@@ -369,13 +426,20 @@ def _coverage(p: OperatingPoint, settings: ConditioningSettings, rated_load_n: f
     c = p.curve
     where = f"{p.load_n / 1000:.1f} kN, camber {p.camber_deg:g}°"
     if c.n_points < settings.min_points_per_curve:
-        out.append(Finding(BLOCKING, f"{where}: only {c.n_points} slip points (at least {settings.min_points_per_curve} needed to fit)"))
+        out.append(
+            Finding(
+                BLOCKING,
+                f"{where}: only {c.n_points} slip points (at least {settings.min_points_per_curve} needed to fit)",
+            )
+        )
     lateral = p.sweep == "slip_angle"
     unit = "°" if lateral else ""
     need = settings.min_slip_range_deg if lateral else MIN_SLIP_RATIO_RANGE
     reach = min(-c.x.min(), c.x.max())
     if reach < need:
-        out.append(Finding(FINDING, f"{where}: slip range reaches only ±{reach:.3g}{unit} (at least ±{need:g}{unit} expected)"))
+        out.append(
+            Finding(FINDING, f"{where}: slip range reaches only ±{reach:.3g}{unit} (at least ±{need:g}{unit} expected)")
+        )
     main = c.main
     for side, m in (("positive", c.x > 0), ("negative", c.x < 0)):
         if np.count_nonzero(m) < 3:
@@ -384,16 +448,31 @@ def _coverage(p: OperatingPoint, settings: ConditioningSettings, rated_load_n: f
         xs, ys = c.x[m], np.abs(main[m])
         outer = np.argmax(np.abs(xs))
         if np.argmax(ys) == outer:
-            out.append(Finding(FINDING, f"{where}: the sweep does not pass the peak on the {side} side; "
-                                        "peak friction there is a lower bound"))
+            out.append(
+                Finding(
+                    FINDING,
+                    f"{where}: the sweep does not pass the peak on the {side} side; "
+                    "peak friction there is a lower bound",
+                )
+            )
     if rated_load_n and p.load_n > rated_load_n * 1.001:
-        out.append(Finding(FINDING, f"{where}: test load is above the rated load of {rated_load_n:.0f} N "
-                                    f"({100 * (p.load_n / rated_load_n - 1):.0f} % over)"))
+        out.append(
+            Finding(
+                FINDING,
+                f"{where}: test load is above the rated load of {rated_load_n:.0f} N "
+                f"({100 * (p.load_n / rated_load_n - 1):.0f} % over)",
+            )
+        )
     if p.measured_pressure_kpa is not None:
         dev = 100 * (p.measured_pressure_kpa / p.pressure_kpa - 1)
         if abs(dev) > settings.pressure_tolerance_pct:
-            out.append(Finding(FINDING, f"{where}: measured pressure {p.measured_pressure_kpa:.0f} kPa is {dev:+.1f} % "
-                                        f"from the nominal {p.pressure_kpa:.0f} kPa"))
+            out.append(
+                Finding(
+                    FINDING,
+                    f"{where}: measured pressure {p.measured_pressure_kpa:.0f} kPa is {dev:+.1f} % "
+                    f"from the nominal {p.pressure_kpa:.0f} kPa",
+                )
+            )
     if p.rising is None or p.falling is None:
         out.append(Finding(NOTE, f"{where}: only one sweep direction measured; relaxation lag is not cancelled"))
     return out
@@ -411,6 +490,7 @@ def _verdict(points, run_findings) -> tuple[str, list[str]]:
 
 
 # --- levels --------------------------------------------------------------------------------
+
 
 def _levels(values: np.ndarray, hints, resolution: float) -> tuple[np.ndarray, bool]:
     """Return the set-point levels: the hints, or levels detected from a histogram."""
@@ -464,6 +544,7 @@ def _unmatched_levels(values, loads, tol_pct, n_total) -> list[tuple[float, int]
 
 # --- sweeps and curves -----------------------------------------------------------------------
 
+
 def _sweep_direction(x: np.ndarray, min_step: float) -> np.ndarray:
     """Label each sample +1 (rising), −1 (falling) or 0 (held still) by how the sweep moves there.
 
@@ -516,11 +597,16 @@ def _bin_curve(sweep, x, data, width, min_count) -> tuple[SlipCurve, int]:
     def mean(v):
         return _frozen((np.bincount(inverse, weights=v, minlength=uniq.size) / counts)[ok])
 
-    curve = SlipCurve(sweep, mean(x), mean(data["fz"]),
-                      mean(data["fy"]) if "fy" in data else None,
-                      mean(data["mz"]) if "mz" in data else None,
-                      mean(data["fx"]) if "fx" in data else None,
-                      _frozen(counts[ok]), uniq[ok])
+    curve = SlipCurve(
+        sweep,
+        mean(x),
+        mean(data["fz"]),
+        mean(data["fy"]) if "fy" in data else None,
+        mean(data["mz"]) if "mz" in data else None,
+        mean(data["fx"]) if "fx" in data else None,
+        _frozen(counts[ok]),
+        uniq[ok],
+    )
     return curve, sparse
 
 
@@ -571,6 +657,7 @@ def _offsets(c: SlipCurve) -> ZeroSlipOffsets:
 
 # --- spikes --------------------------------------------------------------------------------
 
+
 def _spikes(x: np.ndarray, threshold: float) -> np.ndarray:
     """Flag isolated spikes: samples far from the mean of their two neighbours.
 
@@ -592,8 +679,7 @@ def _spikes(x: np.ndarray, threshold: float) -> np.ndarray:
     # Both neighbours of a spike see about half of it with the opposite sign; a kink in the
     # signal (a sweep starting from a hold) has neighbours near zero and is not a spike.
     echoed = np.zeros(x.size, dtype=bool)
-    echoed[1:-1] = ((r[:-2] * r[1:-1] < 0) & (r[2:] * r[1:-1] < 0)
-                    & (np.minimum(a[:-2], a[2:]) > 0.25 * a[1:-1]))
+    echoed[1:-1] = (r[:-2] * r[1:-1] < 0) & (r[2:] * r[1:-1] < 0) & (np.minimum(a[:-2], a[2:]) > 0.25 * a[1:-1])
     return (a > threshold * scale) & local_max & echoed
 
 

@@ -9,25 +9,22 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-
 from markupsafe import Markup
 
 from .. import __version__
-
-from ..standards import axes
-
-from .cautions import CAUTIONS, CAUTIONS_ID
-from ..conditioning.steady_state import ConditionedRun, ConditioningAccount
-from ..conditioning.drift import DriftEstimate
-from .artifacts import FigureArtifact
-from ..model.fit import ChannelFit
-from ..project.manifest import Manifest, RunSpec, Specimen
-from ..project.catalogue import METRICS, MetricDefinition
-from ..metrics.evaluate import MetricValue
-from ..evaluation.identity import SpecimenIdentity, specimen_identity
-from ..conditioning.offsets import OffsetSplit
-from ..evaluation.vehicle import SIMPLIFICATIONS
 from ..common.names import slug
+from ..conditioning.drift import DriftEstimate
+from ..conditioning.offsets import OffsetSplit
+from ..conditioning.steady_state import ConditionedRun, ConditioningAccount
+from ..evaluation.identity import SpecimenIdentity, specimen_identity
+from ..evaluation.vehicle import SIMPLIFICATIONS
+from ..metrics.evaluate import MetricValue
+from ..model.fit import ChannelFit
+from ..project.catalogue import METRICS, MetricDefinition
+from ..project.manifest import Manifest, RunSpec, Specimen
+from ..standards import axes
+from .artifacts import FigureArtifact
+from .cautions import CAUTIONS, CAUTIONS_ID
 
 
 @dataclass(frozen=True)
@@ -54,7 +51,9 @@ class SpecimenView:
 
     @property
     def findings(self) -> list[str]:
-        return [f"{METRICS[m.metric].label} at {m.load_n / 1000:.1f} kN: {m.finding}" for m in self.metrics if m.finding]
+        return [
+            f"{METRICS[m.metric].label} at {m.load_n / 1000:.1f} kN: {m.finding}" for m in self.metrics if m.finding
+        ]
 
     @property
     def fit(self) -> ChannelFit | None:
@@ -143,24 +142,30 @@ class DossierContext:
         out = []
         for v in self.verdicts:
             if v.verdict in ("marginal", "does not meet"):
-                out.append(f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN "
-                           f"{v.verdict} the target {v.target.window} {v.unit} ({v.target.reference}): {v.reason}")
+                out.append(
+                    f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN "
+                    f"{v.verdict} the target {v.target.window} {v.unit} ({v.target.reference}): {v.reason}"
+                )
         for view in self.specimens:
             if view.identity:
                 out += [f"{view.specimen.id}: {f}" for f in view.identity.findings]
             out += [f"{view.specimen.id}: {f}" for f in view.findings]
             warnings = sum(len(f.warnings) for f in view.fits)
             if warnings:
-                out.append(f"{view.specimen.id}: {warnings} fit warning(s) (poorly determined or correlated coefficients); "
-                           "see the fit reports")
+                out.append(
+                    f"{view.specimen.id}: {warnings} fit warning(s) (poorly determined or correlated coefficients); "
+                    "see the fit reports"
+                )
         for r in self.runs:
             if r.account.verdict != "sound":
                 out.append(f"run {r.account.run_index} ({r.account.source_file}): {r.account.verdict}")
         if self.drift:
             mu = next((m for m in self.drift.metrics if m.metric == "peak_friction"), None)
             if mu and abs(mu.over_session_pct) > 1.0:
-                out.append(f"the rig's force level drifted {mu.over_session_pct:+.1f} % over the session "
-                           f"({'corrected' if self.drift.corrected else 'not corrected'})")
+                out.append(
+                    f"the rig's force level drifted {mu.over_session_pct:+.1f} % over the session "
+                    f"({'corrected' if self.drift.corrected else 'not corrected'})"
+                )
         return out
 
     @property
@@ -198,26 +203,60 @@ def with_narrative(ctx: DossierContext, texts: dict[str, tuple[str, str]]) -> Do
     return replace(ctx, narrative=rendered)
 
 
-def make_context(manifest: Manifest, conditioned: list[ConditionedRun], models, metrics, specimen_figures,
-                 summary_figures, nominal_load_n: float, quality_figures=None, drift=None, drift_figures=(),
-                 offset_splits=(), judged=(), standings=(), recommendation=(None, ""), fitments=(),
-                 comparison_figures=None) -> DossierContext:
+def make_context(
+    manifest: Manifest,
+    conditioned: list[ConditionedRun],
+    models,
+    metrics,
+    specimen_figures,
+    summary_figures,
+    nominal_load_n: float,
+    quality_figures=None,
+    drift=None,
+    drift_figures=(),
+    offset_splits=(),
+    judged=(),
+    standings=(),
+    recommendation=(None, ""),
+    fitments=(),
+    comparison_figures=None,
+) -> DossierContext:
     accounts = [c.account for c in conditioned]
     quality_figures = quality_figures or {}
-    runs = tuple(RunView(c, manifest.runs[c.account.run_index], tuple(quality_figures.get(c.account.run_index, ())))
-                 for c in conditioned)
+    runs = tuple(
+        RunView(c, manifest.runs[c.account.run_index], tuple(quality_figures.get(c.account.run_index, ())))
+        for c in conditioned
+    )
     views = []
     for s in manifest.specimens:
-        views.append(SpecimenView(
-            specimen=s, page=f"specimen-{slug(s.id)}.html",
-            accounts=tuple(a for a in accounts if a.specimen == s.id),
-            fits=tuple(next((m.channels for m in models if m.specimen == s.id), ())),
-            metrics=tuple(m for m in metrics if m.specimen == s.id),
-            figures=tuple(specimen_figures.get(s.id, ())),
-            identity=specimen_identity(s, manifest),
-        ))
-    return DossierContext(manifest, __version__, axes.INTERNAL, tuple(views), tuple(summary_figures),
-                          tuple(METRICS.values()), CAUTIONS, CAUTIONS_ID, nominal_load_n, runs, drift,
-                          tuple(drift_figures), tuple(offset_splits), verdicts=tuple(judged),
-                          standings=tuple(standings), recommendation=recommendation, fitments=tuple(fitments),
-                          comparison_figures=dict(comparison_figures or {}))
+        views.append(
+            SpecimenView(
+                specimen=s,
+                page=f"specimen-{slug(s.id)}.html",
+                accounts=tuple(a for a in accounts if a.specimen == s.id),
+                fits=tuple(next((m.channels for m in models if m.specimen == s.id), ())),
+                metrics=tuple(m for m in metrics if m.specimen == s.id),
+                figures=tuple(specimen_figures.get(s.id, ())),
+                identity=specimen_identity(s, manifest),
+            )
+        )
+    return DossierContext(
+        manifest,
+        __version__,
+        axes.INTERNAL,
+        tuple(views),
+        tuple(summary_figures),
+        tuple(METRICS.values()),
+        CAUTIONS,
+        CAUTIONS_ID,
+        nominal_load_n,
+        runs,
+        drift,
+        tuple(drift_figures),
+        tuple(offset_splits),
+        verdicts=tuple(judged),
+        standings=tuple(standings),
+        recommendation=recommendation,
+        fitments=tuple(fitments),
+        comparison_figures=dict(comparison_figures or {}),
+    )

@@ -13,12 +13,12 @@ import matplotlib
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..document.artifacts import FigureArtifact
-from ..conditioning.steady_state import ConditionedRun, OperatingPoint
-from ..conditioning.drift import DriftEstimate
-from ..model.fit import ChannelFit
-from ..metrics.evaluate import MetricValue
 from ..common.names import slug
+from ..conditioning.drift import DriftEstimate
+from ..conditioning.steady_state import ConditionedRun, OperatingPoint
+from ..document.artifacts import FigureArtifact
+from ..metrics.evaluate import MetricValue
+from ..model.fit import ChannelFit
 
 matplotlib.use("Agg")
 
@@ -76,9 +76,14 @@ def _render(style: bytes, draw, size=(7.0, 4.2), fit_labels: bool = False) -> by
         else:
             left, right, bottom, top = MARGINS_IN
             width_in, height_in = size
-            fig.subplots_adjust(left=left / width_in, right=1 - right / width_in, bottom=bottom / height_in,
-                                top=1 - top / height_in, wspace=PANEL_GAP_IN / (width_in / 2),
-                                hspace=PANEL_GAP_IN / (height_in / 2))
+            fig.subplots_adjust(
+                left=left / width_in,
+                right=1 - right / width_in,
+                bottom=bottom / height_in,
+                top=1 - top / height_in,
+                wspace=PANEL_GAP_IN / (width_in / 2),
+                hspace=PANEL_GAP_IN / (height_in / 2),
+            )
         return _svg(fig)
 
 
@@ -96,8 +101,7 @@ def _measured(p: OperatingPoint, channel: str):
 
 def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) -> FigureArtifact:
     """Measured and fitted curves at the nominal condition (zero camber, nominal pressure), per load."""
-    nominal = sorted((p for p in points if p.at_nominal(fit.p0_kpa)),
-                     key=lambda q: (q.load_n, q.run_index))
+    nominal = sorted((p for p in points if p.at_nominal(fit.p0_kpa)), key=lambda q: (q.load_n, q.run_index))
     shown = nominal or sorted(points, key=lambda q: q.load_n)
     xlabel, ylabel = _AXIS[fit.channel]
 
@@ -131,7 +135,8 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) 
         "at the nominal condition.",
         f"Chart of {_WORD[fit.channel]} against {xlabel.split(' [')[0].lower()} for specimen {fit.specimen} "
         f"at loads {loads_txt} kN, measured points and fitted curves.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) -> FigureArtifact:
@@ -147,8 +152,14 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: byte
         for i, p in enumerate(pts):
             c = colors[i % len(colors)]
             ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c, rasterized=True)
-            ax.plot(grid, fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa), "-", lw=1.2, color=c,
-                    label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa")
+            ax.plot(
+                grid,
+                fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa),
+                "-",
+                lw=1.2,
+                color=c,
+                label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa",
+            )
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="x-small")
         ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]} at other cambers and pressures")
@@ -160,7 +171,8 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: byte
         "inclination and pressure.",
         f"Chart of {_WORD[fit.channel]} for specimen {fit.specimen} at {len(pts)} operating points away from "
         "the nominal camber and pressure, measured and fitted.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def residual_figure(fit: ChannelFit, style: bytes) -> FigureArtifact:
@@ -181,15 +193,18 @@ def residual_figure(fit: ChannelFit, style: bytes) -> FigureArtifact:
         ax2.plot(loads + jitter, res, ".", ms=2.5, color=colors[1], rasterized=True)
         ax2.axhline(0, lw=0.6, color="0.4")
         ax2.set_xlabel("Nominal load [kN]")
-        fig.suptitle(f"{fit.specimen}: residuals of the {fit.channel.upper()}0 fit "
-                     f"(RMSE {fit.statistics.rmse:.3g} {unit})", fontsize="medium")
+        fig.suptitle(
+            f"{fit.specimen}: residuals of the {fit.channel.upper()}0 fit (RMSE {fit.statistics.rmse:.3g} {unit})",
+            fontsize="medium",
+        )
 
     return FigureArtifact(
         f"{fit.channel}-residuals-{slug(fit.specimen)}.svg",
         f"Residuals of the {_WORD[fit.channel]} fit, {fit.specimen}",
         "Every conditioned point used by the fit; a trend against slip or load shows what the model misses.",
         f"Scatter of {_WORD[fit.channel]} residuals against slip and against load for specimen {fit.specimen}.",
-        _render(style, draw, size=(7.0, 3.4)))
+        _render(style, draw, size=(7.0, 3.4)),
+    )
 
 
 def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricValue], style: bytes) -> FigureArtifact:
@@ -200,8 +215,10 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
         ax = fig.add_subplot()
         markers = "osD^v<>"
         for i, s in enumerate(specimens):
-            vs = sorted((v for v in values if v.specimen == s and v.metric == metric and not v.extrapolated),
-                        key=lambda v: v.load_n)
+            vs = sorted(
+                (v for v in values if v.specimen == s and v.metric == metric and not v.extrapolated),
+                key=lambda v: v.load_n,
+            )
             x = np.array([v.load_n / 1000 for v in vs])
             y = np.array([v.value for v in vs])
             err = np.array([[v.value - v.ci95[0], v.ci95[1] - v.value] if v.ci95 else [0.0, 0.0] for v in vs]).T
@@ -217,7 +234,8 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
         "Model values at the loads each specimen was measured at (no extrapolation); bars show 95 % intervals "
         "from the fit covariance.",
         f"Chart of {label.lower()} against normal load for specimens {', '.join(specimens)}.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def time_history_figure(run: ConditionedRun, style: bytes) -> FigureArtifact:
@@ -229,8 +247,10 @@ def time_history_figure(run: ConditionedRun, style: bytes) -> FigureArtifact:
     def draw(fig):
         ax1, ax2 = fig.subplots(2, 1, sharex=True)
         colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
-        for ax, y, label in ((ax1, o.fz_n / 1000.0, "Normal load Fz [kN]"),
-                             (ax2, o.x, "Slip angle α [deg]" if lateral else "Slip ratio κ [1]")):
+        for ax, y, label in (
+            (ax1, o.fz_n / 1000.0, "Normal load Fz [kN]"),
+            (ax2, o.x, "Slip angle α [deg]" if lateral else "Slip ratio κ [1]"),
+        ):
             # Lines (vector, and far cheaper to draw and to print than thousands of dots), broken
             # where the samples change class; a sample unlike both neighbours (a dropped spike)
             # would be a line of one point, so it gets a marker.
@@ -243,8 +263,14 @@ def time_history_figure(run: ConditionedRun, style: bytes) -> FigureArtifact:
             for i, p in enumerate(run.points):
                 ax.axvspan(*p.time_span_s, color=colors[1 + i % (len(colors) - 1)], alpha=0.08, lw=0)
         for p in run.points:
-            ax1.annotate(f"{p.load_n / 1000:.1f} kN", (0.5 * sum(p.time_span_s), p.mean_load_n / 1000.0),
-                         textcoords="offset points", xytext=(0, 6), ha="center", fontsize="x-small")
+            ax1.annotate(
+                f"{p.load_n / 1000:.1f} kN",
+                (0.5 * sum(p.time_span_s), p.mean_load_n / 1000.0),
+                textcoords="offset points",
+                xytext=(0, 6),
+                ha="center",
+                fontsize="x-small",
+            )
         ax1.margins(y=0.15)  # room above the highest load for its label
         ax2.set_xlabel("Time [s]")
         ax1.legend(loc="upper left", fontsize="x-small")
@@ -258,7 +284,8 @@ def time_history_figure(run: ConditionedRun, style: bytes) -> FigureArtifact:
         "points found, labelled with their nominal load.",
         f"Two stacked time histories of run {a.run_index}: normal load and swept slip channel, kept and dropped "
         f"samples, {len(run.points)} operating points marked.",
-        _render(style, draw, size=(7.0, 4.6)))
+        _render(style, draw, size=(7.0, 4.6)),
+    )
 
 
 def _isolated(mask: np.ndarray) -> np.ndarray:
@@ -278,12 +305,20 @@ def hysteresis_figure(p: OperatingPoint, style: bytes) -> FigureArtifact:
         ax.plot(p.rising.x, p.rising.main, "-", lw=1.2, color=colors[1], label="rising slip")
         ax.plot(p.falling.x, p.falling.main, "-", lw=1.2, color=colors[2], label="falling slip")
         ax.plot(p.curve.x, p.curve.main, "--", lw=1.0, color=colors[0], label="steady state (lag removed)")
-        _origin_axes(ax, "Slip angle α [deg]" if p.sweep == "slip_angle" else "Slip ratio κ [1]",
-                     "Lateral force Fy [N]" if p.sweep == "slip_angle" else "Longitudinal force Fx [N]")
+        _origin_axes(
+            ax,
+            "Slip angle α [deg]" if p.sweep == "slip_angle" else "Slip ratio κ [1]",
+            "Lateral force Fy [N]" if p.sweep == "slip_angle" else "Longitudinal force Fx [N]",
+        )
         if p.hysteresis and p.hysteresis.slip_lag is not None:
-            ax.text(0.02, 0.04, f"difference at zero slip {p.hysteresis.force_diff_n:+.0f} N, "
-                                f"equivalent slip lag {p.hysteresis.slip_lag:+.3f}" + ("°" if p.sweep == "slip_angle" else ""),
-                    transform=ax.transAxes, fontsize="small")
+            ax.text(
+                0.02,
+                0.04,
+                f"difference at zero slip {p.hysteresis.force_diff_n:+.0f} N, "
+                f"equivalent slip lag {p.hysteresis.slip_lag:+.3f}" + ("°" if p.sweep == "slip_angle" else ""),
+                transform=ax.transAxes,
+                fontsize="small",
+            )
         ax.legend(fontsize="small")
         ax.set_title(f"Run {p.run_index} ({p.specimen}) at {p.load_n / 1000:.1f} kN: sweep directions")
 
@@ -293,7 +328,8 @@ def hysteresis_figure(p: OperatingPoint, style: bytes) -> FigureArtifact:
         "Bin means of the rising and falling halves of the slip sweep; the steady-state curve used for fitting "
         "bins both halves after shifting each back by the equivalent slip lag.",
         f"Hysteresis loop of lateral force against slip angle for run {p.run_index} at {p.load_n / 1000:.1f} kN.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def drift_figure(d: DriftEstimate, style: bytes) -> FigureArtifact:
@@ -313,8 +349,15 @@ def drift_figure(d: DriftEstimate, style: bytes) -> FigureArtifact:
         for c in d.corrections:
             h = (c.tested_at - d.reference_time).total_seconds() / 3600.0
             ax.axvline(h, lw=0.6, ls=":", color="0.4")
-            ax.annotate(c.specimen, (h, 0.02), xycoords=("data", "axes fraction"), fontsize="x-small",
-                        rotation=90, va="bottom", ha="right")
+            ax.annotate(
+                c.specimen,
+                (h, 0.02),
+                xycoords=("data", "axes fraction"),
+                fontsize="x-small",
+                rotation=90,
+                va="bottom",
+                ha="right",
+            )
         ax.axhline(0, lw=0.5, color="0.5")
         ax.set_xlabel(f"Hours after the first control run ({d.reference_time:%Y-%m-%d %H:%M})")
         ax.set_ylabel("Change from first repeat [%]")
@@ -322,12 +365,14 @@ def drift_figure(d: DriftEstimate, style: bytes) -> FigureArtifact:
         ax.set_title(f"Control tire {d.control} at {d.load_n / 1000:.1f} kN through the session")
 
     return FigureArtifact(
-        "drift-control.svg", f"Drift of the control tire {d.control}",
+        "drift-control.svg",
+        f"Drift of the control tire {d.control}",
         "Model-free metrics of each control repeat (points) and the straight line in time used as the drift; "
         "dotted lines mark when the other runs were tested.",
         f"Chart of the control tire's cornering stiffness and peak friction change against session time, "
         f"{len(d.repeats)} repeats.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, style: bytes) -> FigureArtifact:
@@ -345,18 +390,25 @@ def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, s
             grid = np.linspace(*fit.slip_range, 241)
             ax.plot(grid, fit.predict(grid, load_n), "-", lw=1.5, color=c, label=m.specimen)
             for p in points:
-                if (p.specimen == m.specimen and p.load_n == load_n and p.sweep == "slip_angle"
-                        and p.rolling_direction == "forward" and p.at_nominal(p0_kpa)):
+                if (
+                    p.specimen == m.specimen
+                    and p.load_n == load_n
+                    and p.sweep == "slip_angle"
+                    and p.rolling_direction == "forward"
+                    and p.at_nominal(p0_kpa)
+                ):
                     ax.plot(p.curve.x, _measured(p, channel), "o", ms=2.5, mfc="none", color=c, rasterized=True)
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="small")
         ax.set_title(f"All specimens: {_WORD[channel]} at {load_n / 1000:.1f} kN, {p0_kpa:.0f} kPa, camber 0°")
 
     return FigureArtifact(
-        f"overlay-{channel}.svg", f"All specimens: {_WORD[channel]} at the nominal load",
+        f"overlay-{channel}.svg",
+        f"All specimens: {_WORD[channel]} at the nominal load",
         "Lines: each specimen's fitted model; circles: its conditioned bins at this load.",
         f"Overlay chart of {_WORD[channel]} against slip angle for every specimen at {load_n / 1000:.1f} kN.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def gough_figure(models, load_n: float, style: bytes) -> FigureArtifact:
@@ -369,8 +421,14 @@ def gough_figure(models, load_n: float, style: bytes) -> FigureArtifact:
             if m.fy is None or m.mz is None:
                 continue
             a = np.linspace(*m.fy.slip_range, 241)
-            ax.plot(m.fy.predict(a, load_n), m.mz.predict(a, load_n), "-", lw=1.5, color=colors[i % len(colors)],
-                    label=m.specimen)
+            ax.plot(
+                m.fy.predict(a, load_n),
+                m.mz.predict(a, load_n),
+                "-",
+                lw=1.5,
+                color=colors[i % len(colors)],
+                label=m.specimen,
+            )
         ax.axhline(0, lw=0.5, color="0.5")
         ax.axvline(0, lw=0.5, color="0.5")
         ax.set_xlabel("Lateral force Fy [N]")
@@ -379,11 +437,13 @@ def gough_figure(models, load_n: float, style: bytes) -> FigureArtifact:
         ax.set_title(f"Aligning moment against lateral force at {load_n / 1000:.1f} kN (slip angle as parameter)")
 
     return FigureArtifact(
-        "gough-mz-fy.svg", "Aligning moment against lateral force",
+        "gough-mz-fy.svg",
+        "Aligning moment against lateral force",
         "Fitted models over the measured slip range at the nominal load; the slope near the origin is the pneumatic "
         "trail, the loop's collapse shows where the trail runs out before the lateral force peaks.",
         f"Chart of aligning moment against lateral force for every specimen at {load_n / 1000:.1f} kN.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def difference_figure(standings, style: bytes) -> FigureArtifact:
@@ -413,9 +473,17 @@ def difference_figure(standings, style: bytes) -> FigureArtifact:
                 err = None
                 if d.diff_ci95:
                     err = [[abs(d.normalised - d.diff_ci95[0] * scale)], [abs(d.diff_ci95[1] * scale - d.normalised)]]
-                ax.errorbar([d.normalised], [y], xerr=err, fmt="o" if d.significant else "s", mfc="white" if not d.significant else None,
-                            color=colors[(j + 1) % len(colors)], capsize=3, ms=6,
-                            label=c if d is next(dd for cc, dd in rows if cc == c) else None)
+                ax.errorbar(
+                    [d.normalised],
+                    [y],
+                    xerr=err,
+                    fmt="o" if d.significant else "s",
+                    mfc="white" if not d.significant else None,
+                    color=colors[(j + 1) % len(colors)],
+                    capsize=3,
+                    ms=6,
+                    label=c if d is next(dd for cc, dd in rows if cc == c) else None,
+                )
         ax.set_yticks(range(len(labels)))
         ax.set_yticklabels(labels, fontsize="small")
         ax.invert_yaxis()
@@ -424,12 +492,15 @@ def difference_figure(standings, style: bytes) -> FigureArtifact:
         ax.set_title("Differences from the baseline at the nominal load")
 
     return FigureArtifact(
-        "differences.svg", "Candidates against the baseline",
+        "differences.svg",
+        "Candidates against the baseline",
         "Each marker is a candidate's difference from the baseline divided by half the target window (or, "
         "without a two-sided target, by twice the rig repeatability of a difference); bars are 95 % intervals; "
-        "the grey band is ±1. Filled markers: intervals exclude zero and the difference exceeds the rig's repeatability.",
+        "the grey band is ±1. Filled markers: intervals exclude zero and the difference "
+        "exceeds the rig's repeatability.",
         "Dot chart of each candidate's normalised metric differences from the baseline with interval bars.",
-        _render(style, draw, size=(7.0, 0.45 * max(4, len({d.metric for _, d in rows})) + 1.6), fit_labels=True))
+        _render(style, draw, size=(7.0, 0.45 * max(4, len({d.metric for _, d in rows})) + 1.6), fit_labels=True),
+    )
 
 
 def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
@@ -442,8 +513,13 @@ def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
         ax = fig.add_subplot()
         v = np.array(vehicle.speeds_kmh, dtype=float)
         for b in same:
-            ax.plot(v, [yaw_rate_gain_per_s(x, b.understeer_gradient_deg_per_g, vehicle.wheelbase_m) for x in v],
-                    "-", lw=1.5, label=f"{b.front} all round (K = {b.understeer_gradient_deg_per_g:+.2f} deg/g)")
+            ax.plot(
+                v,
+                [yaw_rate_gain_per_s(x, b.understeer_gradient_deg_per_g, vehicle.wheelbase_m) for x in v],
+                "-",
+                lw=1.5,
+                label=f"{b.front} all round (K = {b.understeer_gradient_deg_per_g:+.2f} deg/g)",
+            )
         ax.plot(v, (v / 3.6) / vehicle.wheelbase_m, ":", color="0.5", lw=1.0, label="neutral steer")
         ax.set_xlabel("Speed [km/h]")
         ax.set_ylabel("Yaw-rate gain r/δ [1/s]")
@@ -452,11 +528,13 @@ def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
         ax.set_title(f"{vehicle.name}: steady-state yaw-rate gain")
 
     return FigureArtifact(
-        "yaw-gain.svg", "Yaw-rate gain against speed",
+        "yaw-gain.svg",
+        "Yaw-rate gain against speed",
         "Linear single-track model with each specimen on both axles at its static tire loads; the dotted line is a "
         "neutral-steer vehicle of the same wheelbase.",
         "Chart of steady-state yaw-rate gain against speed for each specimen fitted all round.",
-        _render(style, draw))
+        _render(style, draw),
+    )
 
 
 def _origin_axes(ax, xlabel: str, ylabel: str) -> None:

@@ -86,8 +86,10 @@ def _functions(ctx) -> dict:
         else:
             m = next((x for x in view.specimen_level if x.metric == metric), None)
         if m is None:
-            raise _Unknown(f"no value of {metric!r} for {specimen!r} at {load / 1000:.1f} kN "
-                           "(not measured, or not a load the dossier reports)")
+            raise _Unknown(
+                f"no value of {metric!r} for {specimen!r} at {load / 1000:.1f} kN "
+                "(not measured, or not a load the dossier reports)"
+            )
         return m
 
     def value(specimen, metric, load_n=None):
@@ -99,8 +101,13 @@ def _functions(ctx) -> dict:
         return fmt_ci(m.ci95, m.unit)
 
     def verdict(specimen, metric, load_n=None):
-        found = [v for v in ctx.verdicts if v.specimen == specimen and v.target.metric == metric
-                 and (load_n is None or math.isclose(v.target.load_n, float(load_n)))]
+        found = [
+            v
+            for v in ctx.verdicts
+            if v.specimen == specimen
+            and v.target.metric == metric
+            and (load_n is None or math.isclose(v.target.load_n, float(load_n)))
+        ]
         if not found:
             raise _Unknown(f"no target on {metric!r} judged for {specimen!r}")
         return found[0].verdict
@@ -123,9 +130,15 @@ def _functions(ctx) -> dict:
             rows.append(f"| {d.label} [{d.unit}] | {fmt_metric(m.value, m.unit)} | {fmt_ci(m.ci95, m.unit)} |")
         return "\n".join(rows) + "\n"
 
-    return {"value": value, "interval": interval, "verdict": verdict, "difference": difference,
-            "metrics_table": metrics_table, "recommended": ctx.recommendation[0] or "none",
-            "document": ctx.document}
+    return {
+        "value": value,
+        "interval": interval,
+        "verdict": verdict,
+        "difference": difference,
+        "metrics_table": metrics_table,
+        "recommended": ctx.recommendation[0] or "none",
+        "document": ctx.document,
+    }
 
 
 def narrative_texts(narrative: dict[str, str], files: dict[str, bytes]) -> dict[str, tuple[str, str]]:

@@ -7,20 +7,17 @@ loader and the theme have read them); number formatting lives in the registered 
 
 from __future__ import annotations
 
-
 import hashlib
 
 import jinja2
 
-
-
-from .cautions import CAUTIONS_ID
 from ..common.errors import StageError
 from ..model.fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME
 from ..project.catalogue import METRICS
+from .cautions import CAUTIONS_ID
 from .context import DossierContext
-from .theme import Theme
 from .numbers import fmt_ci, fmt_fixed, fmt_kn, fmt_metric, fmt_sig
+from .theme import Theme
 from .volumes import ANNEXES, VOLUMES
 
 
@@ -28,8 +25,9 @@ def _metric_label(name: str) -> str:
     return METRICS[name].label
 
 
-def make_environment(theme: Theme, project_templates: dict[str, bytes],
-                     compiled: jinja2.BytecodeCache | None = None) -> jinja2.Environment:
+def make_environment(
+    theme: Theme, project_templates: dict[str, bytes], compiled: jinja2.BytecodeCache | None = None
+) -> jinja2.Environment:
     """The template environment over the bytes of the project's overrides (`project_templates`,
     keyed by path inside ``templates/``) and of the theme chain; `compiled` keeps compiled
     templates between builds (Jinja2's bytecode cache, keyed by each template's source)."""
@@ -50,11 +48,19 @@ def make_environment(theme: Theme, project_templates: dict[str, bytes],
         trim_blocks=True,
         lstrip_blocks=True,
     )
-    env.filters.update(metric=fmt_metric, ci=fmt_ci, sig=fmt_sig, kn=fmt_kn, fixed=fmt_fixed,
-                       metric_label=_metric_label)
-    env.globals.update(options=theme.options, channel_label=CHANNEL_LABEL, channel_unit=CHANNEL_UNIT,
-                       model_name=MODEL_NAME, volume=None, annexes=ANNEXES, volumes=VOLUMES,
-                       volume_by_key={v.key: v for v in VOLUMES})
+    env.filters.update(
+        metric=fmt_metric, ci=fmt_ci, sig=fmt_sig, kn=fmt_kn, fixed=fmt_fixed, metric_label=_metric_label
+    )
+    env.globals.update(
+        options=theme.options,
+        channel_label=CHANNEL_LABEL,
+        channel_unit=CHANNEL_UNIT,
+        model_name=MODEL_NAME,
+        volume=None,
+        annexes=ANNEXES,
+        volumes=VOLUMES,
+        volume_by_key={v.key: v for v in VOLUMES},
+    )
     return env
 
 
@@ -76,5 +82,7 @@ def require_cautions(files: dict[str, bytes], print_pages: tuple[str, ...] = ())
     pages = [name for name in files if name.endswith(".html")]
     missing = [name for name in pages if marker not in files[name] and name in ("index.html", *print_pages)]
     if missing:
-        raise StageError(f"the theme's {', '.join(missing)} lacks the safety cautions block (id '{CAUTIONS_ID}'); "
-                         "every dossier must carry it")
+        raise StageError(
+            f"the theme's {', '.join(missing)} lacks the safety cautions block (id '{CAUTIONS_ID}'); "
+            "every dossier must carry it"
+        )

@@ -7,25 +7,21 @@ the disk.
 
 from __future__ import annotations
 
+import datetime as dt
 import io
 import mimetypes
 import re
 from dataclasses import dataclass
 
-import datetime as dt
-
 import jinja2
 import weasyprint
 from weasyprint.urls import URLFetcher, URLFetcherResponse
 
-
-
-from ..document import pdfa as pdf_archive
 from ..common.errors import StageError
+from ..document import pdfa as pdf_archive
 from .context import DossierContext
 from .pages import downloads, page, require_cautions
 from .volumes import Volume
-
 
 SITE_BASE_URL = "https://dossier.invalid/site/"  # never fetched: the fetcher serves from memory
 
@@ -43,12 +39,16 @@ class PdfJob:
     date: dt.date
 
 
-def pdf_job(ctx: DossierContext, env: jinja2.Environment, volume: Volume, site_files: dict[str, bytes],
-            attachments: dict[str, bytes] | None = None) -> PdfJob:
+def pdf_job(
+    ctx: DossierContext,
+    env: jinja2.Environment,
+    volume: Volume,
+    site_files: dict[str, bytes],
+    attachments: dict[str, bytes] | None = None,
+) -> PdfJob:
     """The print page of `volume` with the files it refers to (pure: no rendering yet)."""
     attachments = dict(attachments or {})
-    html = page(env, volume.template, ctx, current=volume.template, volume=volume,
-                 downloads=downloads(attachments))
+    html = page(env, volume.template, ctx, current=volume.template, volume=volume, downloads=downloads(attachments))
     require_cautions({volume.template: html}, print_pages=(volume.template,))
     html = unlink_missing_anchors(html)
     referenced = set(re.findall(rb'(?:src|href)="((?:figures|static)/[^"#?]+)"', html))
@@ -87,23 +87,37 @@ def render_pdf(job: PdfJob) -> bytes:
     """
     fetcher = _BuildFetcher(job.resources)
     stamp = pdf_archive.document_stamp(job.date)
-    options = dict(pdf_identifier=f"{job.identifier} {job.volume.key}".encode("utf-8"), pdf_variant="pdf/a-3u",
-                   uncompressed_pdf=False, pdf_tags=PDF_TAGS)
-    document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL,
-                               url_fetcher=fetcher).render(**options)
+    options = dict(
+        pdf_identifier=f"{job.identifier} {job.volume.key}".encode(),
+        pdf_variant="pdf/a-3u",
+        uncompressed_pdf=False,
+        pdf_tags=PDF_TAGS,
+    )
+    document = weasyprint.HTML(string=job.html.decode("utf-8"), base_url=SITE_BASE_URL, url_fetcher=fetcher).render(
+        **options
+    )
     # The print frame gives these too; set here, because a project's own frame may not (and the
     # Info dates and the XMP dates must agree, ISO 19005-1 §6.7.3).
     document.metadata.created = document.metadata.modified = pdf_archive.xmp_date(stamp)
-    files = [weasyprint.Attachment(file_obj=io.BytesIO(data), name=pdf_archive.attachment_name(name),
-                                   description=pdf_archive.attachment_description(name, job.identifier, job.revision),
-                                   created=stamp, modified=stamp, relationship=pdf_archive.relationship(name))
-             # the name tree's keys must be sorted (ISO 32000-1 §7.9.6): sort by the name written
-             for name, data in sorted(job.attachments.items(), key=lambda item: pdf_archive.attachment_name(item[0]))]
+    files = [
+        weasyprint.Attachment(
+            file_obj=io.BytesIO(data),
+            name=pdf_archive.attachment_name(name),
+            description=pdf_archive.attachment_description(name, job.identifier, job.revision),
+            created=stamp,
+            modified=stamp,
+            relationship=pdf_archive.relationship(name),
+        )
+        # the name tree's keys must be sorted (ISO 32000-1 §7.9.6): sort by the name written
+        for name, data in sorted(job.attachments.items(), key=lambda item: pdf_archive.attachment_name(item[0]))
+    ]
     with pdf_archive.reproducible_fonts(stamp):
         pdf = document.write_pdf(attachments=files, finisher=pdf_archive.ArchiveFinisher(stamp), **options)
     if fetcher.refused:
-        raise StageError(f"the PDF {job.volume.filename} asked for resources outside this build, refused: "
-                         + ", ".join(sorted(fetcher.refused)))
+        raise StageError(
+            f"the PDF {job.volume.filename} asked for resources outside this build, refused: "
+            + ", ".join(sorted(fetcher.refused))
+        )
     return pdf
 
 
@@ -117,7 +131,7 @@ class _BuildFetcher(URLFetcher):
 
     def fetch(self, url, headers=None):
         if url.startswith(SITE_BASE_URL):
-            rel = url[len(SITE_BASE_URL):].split("#")[0].split("?")[0]
+            rel = url[len(SITE_BASE_URL) :].split("#")[0].split("?")[0]
             if rel in self.files:
                 mime = mimetypes.guess_type(rel)[0] or "application/octet-stream"
                 return URLFetcherResponse(url, self.files[rel], {"Content-Type": mime})

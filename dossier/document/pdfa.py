@@ -48,14 +48,15 @@ _ROLE = {"Source": "source file", "Supplement": "annex", "Data": "data file"}
 
 # --- names, dates, relationships (pure) --------------------------------------------------------
 
+
 def document_stamp(date: dt.date) -> dt.datetime:
     """Return the time every date in a volume carries: the document date at 12:00 UTC."""
-    return dt.datetime.combine(date, dt.time(12, 0), tzinfo=dt.timezone.utc)
+    return dt.datetime.combine(date, dt.time(12, 0), tzinfo=dt.UTC)
 
 
 def xmp_date(stamp: dt.datetime) -> str:
     """Format `stamp` as an XMP (ISO 8601) date in UTC, which WeasyPrint also turns into the Info date."""
-    return stamp.astimezone(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    return stamp.astimezone(dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def relationship(name: str) -> str:
@@ -85,8 +86,10 @@ def original_path(description: str, file_name: str) -> str:
         if attachment_name(candidate) == file_name:
             return candidate
         start = at + 1
-    raise ValueError(f"attachment {file_name!r}: its description {description!r} does not start with the "
-                     f"relative path it was attached from (expected 'PATH{PATH_SEPARATOR}...')")
+    raise ValueError(
+        f"attachment {file_name!r}: its description {description!r} does not start with the "
+        f"relative path it was attached from (expected 'PATH{PATH_SEPARATOR}...')"
+    )
 
 
 def mime_type(name: str) -> str:
@@ -95,6 +98,7 @@ def mime_type(name: str) -> str:
 
 
 # --- fonts: one subsetter, one clock ------------------------------------------------------------
+
 
 def font_subsetter() -> str:
     """Name the font subsetter that `reproducible_fonts` makes WeasyPrint use, with its version."""
@@ -121,8 +125,10 @@ def reproducible_fonts(stamp: dt.datetime):
     if not hasattr(fonts, "harfbuzz_subset") or not hasattr(getattr(fonts, "Font", None), "_fonttools_subset"):
         import weasyprint
 
-        raise StageError(f"WeasyPrint {weasyprint.__version__} no longer offers the choice of the fontTools "
-                         "font subsetter that dossier relies on for byte-stable PDFs; use WeasyPrint 70")
+        raise StageError(
+            f"WeasyPrint {weasyprint.__version__} no longer offers the choice of the fontTools "
+            "font subsetter that dossier relies on for byte-stable PDFs; use WeasyPrint 70"
+        )
     saved_library, saved_epoch = fonts.harfbuzz_subset, os.environ.get("SOURCE_DATE_EPOCH")
     fonts.harfbuzz_subset = None
     os.environ["SOURCE_DATE_EPOCH"] = str(int(stamp.timestamp()))
@@ -137,6 +143,7 @@ def reproducible_fonts(stamp: dt.datetime):
 
 
 # --- the finisher: edits of WeasyPrint's pydyf objects before the trailer -----------------------
+
 
 @dataclass(frozen=True)
 class ArchiveFinisher:
@@ -209,13 +216,16 @@ def _metadata_date(pdf, stamp: dt.datetime) -> None:
     packet = b"".join(part if isinstance(part, bytes) else str(part).encode() for part in stream.stream)
     if b"xmp:MetadataDate" in packet:
         return
-    description = ('<rdf:Description rdf:about="" xmlns:xmp="http://ns.adobe.com/xap/1.0/">'
-                   f"<xmp:MetadataDate>{xmp_date(stamp)}</xmp:MetadataDate></rdf:Description>").encode()
+    description = (
+        '<rdf:Description rdf:about="" xmlns:xmp="http://ns.adobe.com/xap/1.0/">'
+        f"<xmp:MetadataDate>{xmp_date(stamp)}</xmp:MetadataDate></rdf:Description>"
+    ).encode()
     end = packet.rindex(b"</rdf:RDF>")
     stream.stream = [packet[:end] + description + packet[end:]]
 
 
 # --- reading a finished volume back (pure: bytes in, records out) -------------------------------
+
 
 @dataclass(frozen=True, order=True)
 class EmbeddedFont:

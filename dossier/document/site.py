@@ -2,19 +2,16 @@
 
 from __future__ import annotations
 
-
-
 import jinja2
 
-
-
-from .theme import STATIC_FILES, Theme
 from .context import DossierContext
 from .pages import downloads, page, require_cautions
+from .theme import STATIC_FILES, Theme
 
 
-def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
-                data_files: dict[str, bytes] | None = None) -> dict[str, bytes]:
+def render_site(
+    ctx: DossierContext, env: jinja2.Environment, theme: Theme, data_files: dict[str, bytes] | None = None
+) -> dict[str, bytes]:
     """Return the site's files, keyed by path relative to the site folder.
 
     `data_files` are the machine-readable outputs written beside the site; the downloads page
@@ -29,8 +26,9 @@ def render_site(ctx: DossierContext, env: jinja2.Environment, theme: Theme,
     if ctx.vehicle:
         files[ctx.vehicle_page] = page(env, "vehicle.html", ctx, current=ctx.vehicle_page)
     files["provenance.html"] = page(env, "provenance.html", ctx, current="provenance.html")
-    files[ctx.downloads_page] = page(env, "downloads.html", ctx, current=ctx.downloads_page,
-                                      downloads=downloads(data_files or {}))
+    files[ctx.downloads_page] = page(
+        env, "downloads.html", ctx, current=ctx.downloads_page, downloads=downloads(data_files or {})
+    )
     figures = list(ctx.summary_figures) + list(ctx.drift_figures)
     figures += [f for group in ctx.comparison_figures.values() for f in group]
     figures += [f for v in ctx.specimens for f in v.figures] + [f for r in ctx.runs for f in r.figures]

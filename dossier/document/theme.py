@@ -29,18 +29,19 @@ FIGURE_STYLE = "figures.mplstyle"
 OPTIONS = {"organisation_label": "Tire evaluation dossier"}
 
 
-
 def _parent(value, path, problems):
     """A theme name, or empty for none."""
     return value if value == "" else Text()(value, path, problems)
 
 
-THEME_SCHEMA = Table({
-    "name": Key(Text(), help="the theme's name, equal to its folder's name"),
-    "parent": Key(_parent, required=False, default="", help="the theme this one extends; empty for none"),
-    # Options not given stay absent (None), so that a parent's value shows through.
-    "options": Key(Table({name: Key(Text(), required=False) for name in OPTIONS}), required=False, default=None),
-})
+THEME_SCHEMA = Table(
+    {
+        "name": Key(Text(), help="the theme's name, equal to its folder's name"),
+        "parent": Key(_parent, required=False, default="", help="the theme this one extends; empty for none"),
+        # Options not given stay absent (None), so that a parent's value shows through.
+        "options": Key(Table({name: Key(Text(), required=False) for name in OPTIONS}), required=False, default=None),
+    }
+)
 
 
 @dataclass(frozen=True)
@@ -54,7 +55,7 @@ class Theme:
 
     def _own(self, index: int) -> dict[str, bytes]:
         prefix = f"{index}/"
-        return {k[len(prefix):]: v for k, v in self.files.items() if k.startswith(prefix)}
+        return {k[len(prefix) :]: v for k, v in self.files.items() if k.startswith(prefix)}
 
     def source(self, filename: str) -> bytes | None:
         """The first `filename` along the chain (this theme, then its parents), or None."""
@@ -102,8 +103,13 @@ def load_theme(name: str, search_dir: Path | None = None) -> Theme:
         spec = _theme_spec(spec_path, current)
         index = len(chain)
         chain.append(current)
-        files.update({f"{index}/{p.relative_to(folder).as_posix()}": p.read_bytes()
-                      for p in sorted(folder.rglob("*")) if p.is_file() and "__pycache__" not in p.parts})
+        files.update(
+            {
+                f"{index}/{p.relative_to(folder).as_posix()}": p.read_bytes()
+                for p in sorted(folder.rglob("*"))
+                if p.is_file() and "__pycache__" not in p.parts
+            }
+        )
         given = {k: v for k, v in (spec["options"] or {}).items() if v is not None}
         options = {**given, **options}  # the child's options win
         current = spec["parent"]

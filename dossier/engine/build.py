@@ -35,8 +35,15 @@ from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_loa
 from ..project.load import Project, load_project
 from ..publish.environment import embedded_font_record, environment_record
 from ..publish.integrity import manifest_bytes, sha256, with_manifest
-from ..publish.layout import (ATTACHED_MANIFEST, BUILD_KEY, ENVIRONMENT_NAME, FONTS_NAME, INPUTS, PROVENANCE_NAME,
-                              RESULTS_NAME)
+from ..publish.layout import (
+    ATTACHED_MANIFEST,
+    BUILD_KEY,
+    ENVIRONMENT_NAME,
+    FONTS_NAME,
+    INPUTS,
+    PROVENANCE_NAME,
+    RESULTS_NAME,
+)
 from ..publish.provenance import Evidence, provenance_bytes, provenance_record
 from ..publish.results import coefficient_files, conditioned_data_files, results_record
 from ..publish.writer import json_bytes, refuse_sealed, write_dossier
@@ -87,14 +94,22 @@ def check(project: Project, cache: Cache | None = None) -> list[ConditionedRun]:
     for c in conditioned:
         if c.account.verdict == UNUSABLE:
             a = c.account
-            raise StageError(f"{a.source_file}: unusable after conditioning: {'; '.join(a.verdict_reasons)} "
-                             f"(dropped: {_dropped_text(a.dropped)}); check runs[{a.run_index}].load_setpoints "
-                             "and the [conditioning] settings")
+            raise StageError(
+                f"{a.source_file}: unusable after conditioning: {'; '.join(a.verdict_reasons)} "
+                f"(dropped: {_dropped_text(a.dropped)}); check runs[{a.run_index}].load_setpoints "
+                "and the [conditioning] settings"
+            )
     return conditioned
 
 
-def build(project: Path | Project, out_dir: Path | None = None, theme_name: str = "default", *,
-          use_cache: bool = True, workers: int | None = None) -> BuildSummary:
+def build(
+    project: Path | Project,
+    out_dir: Path | None = None,
+    theme_name: str = "default",
+    *,
+    use_cache: bool = True,
+    workers: int | None = None,
+) -> BuildSummary:
     """Build the dossier of `project` (a folder with ``dossier.toml``, or a loaded project) into `out_dir`.
 
     With `use_cache`, results of unchanged stages come from ``PROJECT/.dossier-cache`` and a
@@ -118,8 +133,9 @@ def build(project: Path | Project, out_dir: Path | None = None, theme_name: str 
     # Start writing files now that all data is gathered.
     write_dossier(out_dir, dossier.files, extra={BUILD_KEY: (key + "\n").encode()})
     cache.prune()
-    return BuildSummary(out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits,
-                        cache_misses=cache.misses)
+    return BuildSummary(
+        out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits, cache_misses=cache.misses
+    )
 
 
 def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Dossier:
@@ -144,27 +160,60 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     fitments = fitment_matrix(manifest, models)
 
     style = theme.figure_style
-    tasks = figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa,
-                         style)
-    rendered = cache.get_or_compute(digest("figures", [(place, name, args[:-1]) for place, name, args in tasks],
-                                           style),
-                                    lambda: run_figure_tasks(tasks, pool))
-    specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(tasks, rendered)
-    facts = make_context(manifest, conditioned, models, metrics, specimen_figures, summary_figures, fz0_n,
-                         quality_figures, drift, drift_figures, offset_splits,
-                         judged=judged, standings=standings, recommendation=recommendation, fitments=fitments,
-                         comparison_figures=comparison_figures)  # without the narrative: what the annexes show
+    tasks = figure_tasks(
+        models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa, style
+    )
+    rendered = cache.get_or_compute(
+        digest("figures", [(place, name, args[:-1]) for place, name, args in tasks], style),
+        lambda: run_figure_tasks(tasks, pool),
+    )
+    specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(
+        tasks, rendered
+    )
+    facts = make_context(
+        manifest,
+        conditioned,
+        models,
+        metrics,
+        specimen_figures,
+        summary_figures,
+        fz0_n,
+        quality_figures,
+        drift,
+        drift_figures,
+        offset_splits,
+        judged=judged,
+        standings=standings,
+        recommendation=recommendation,
+        fitments=fitments,
+        comparison_figures=comparison_figures,
+    )  # without the narrative: what the annexes show
     ctx = with_narrative(facts, narrative_texts(manifest.narrative, project.files))
     all_fits = [f for m in models for f in m.channels]
-    results = results_record(manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings,
-                             recommendation, fitments)
-    evidence = Evidence(tuple(conditioned), tuple(points), tuple(models), tuple(metrics), drift,
-                        tuple(offset_splits), tuple(judged), tuple(standings), recommendation, tuple(fitments),
-                        {name: sha256(data) for name, data in project.files.items()})
+    results = results_record(
+        manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings, recommendation, fitments
+    )
+    evidence = Evidence(
+        tuple(conditioned),
+        tuple(points),
+        tuple(models),
+        tuple(metrics),
+        drift,
+        tuple(offset_splits),
+        tuple(judged),
+        tuple(standings),
+        recommendation,
+        tuple(fitments),
+        {name: sha256(data) for name, data in project.files.items()},
+    )
     provenance = provenance_bytes(provenance_record(manifest, evidence))
-    data_files = {RESULTS_NAME: json_bytes(results), PROVENANCE_NAME: provenance,
-                  ENVIRONMENT_NAME: json_bytes(environment_record(theme.name)),
-                  **coefficient_files(manifest, conditioned, models), **conditioned_data_files(conditioned)}
+    data_files = {
+        RESULTS_NAME: json_bytes(results),
+        PROVENANCE_NAME: provenance,
+        ENVIRONMENT_NAME: json_bytes(environment_record(theme.name)),
+        **coefficient_files(manifest, conditioned, models),
+        **conditioned_data_files(conditioned),
+    }
     env = make_environment(theme, project.templates, cache.compiled_templates())
     site = render_site(ctx, env, theme, data_files)
     templates = {**theme.files, **{f"templates/{k}": v for k, v in project.templates.items()}}
@@ -174,15 +223,24 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     # of all of them, so that the PDF alone can be checked and rebuilt from.
     carried = {**data_files, **annexes, **archived}
     others = {**{f"site/{k}": v for k, v in site.items()}, **carried}
-    report = render_volumes((REPORT,), ctx, env, site, templates, cache, pool,
-                            {**carried, ATTACHED_MANIFEST: manifest_bytes(others)})
+    report = render_volumes(
+        (REPORT,), ctx, env, site, templates, cache, pool, {**carried, ATTACHED_MANIFEST: manifest_bytes(others)}
+    )
     files = {**others, **report}
     files[FONTS_NAME] = json_bytes(embedded_font_record({**annexes, **report}))
     return Dossier(with_manifest(files), len(all_fits), len(metrics))
 
 
-def render_volumes(volumes, ctx, env, site: dict[str, bytes], templates: dict[str, bytes], cache: Cache,
-                   pool: WorkerPool, attachments: dict[str, bytes] | None = None) -> dict[str, bytes]:
+def render_volumes(
+    volumes,
+    ctx,
+    env,
+    site: dict[str, bytes],
+    templates: dict[str, bytes],
+    cache: Cache,
+    pool: WorkerPool,
+    attachments: dict[str, bytes] | None = None,
+) -> dict[str, bytes]:
     """Render PDF volumes from `ctx`; file name -> bytes.
 
     Each volume is cached under everything it is made from: the volume, the context (whose

@@ -17,9 +17,10 @@ import hashlib
 import os
 import pickle
 import tempfile
+from collections.abc import Callable
 from functools import lru_cache
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -143,7 +144,7 @@ class Cache:
                     self._used.add(path)
                     os.utime(path)  # recently used: kept longest when the cache is pruned
                     return value
-                except Exception:  # noqa: BLE001
+                except Exception:
                     pass
         self.misses += 1
         return MISSING

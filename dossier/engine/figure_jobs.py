@@ -20,8 +20,13 @@ def figure_tasks(models, points, conditioned, metrics, drift, standings, fitment
             tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
     for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail"):
         if any(m.metric == name for m in metrics):
-            tasks.append((("summary",), "load_trend_figure",
-                          (name, METRICS[name].label, METRICS[name].unit, [m for m in metrics if m.metric == name], style)))
+            tasks.append(
+                (
+                    ("summary",),
+                    "load_trend_figure",
+                    (name, METRICS[name].label, METRICS[name].unit, [m for m in metrics if m.metric == name], style),
+                )
+            )
     for c in conditioned:
         tasks.append((("quality", c.account.run_index), "time_history_figure", (c, style)))
         lateral = [p for p in c.points if p.rising is not None and p.falling is not None]
@@ -41,18 +46,22 @@ def figure_tasks(models, points, conditioned, metrics, drift, standings, fitment
         tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (fitments, manifest.vehicle, style)))
     return tasks
 
+
 def _render_task(task):
     from ..document import figures
 
     _, name, args = task
     return getattr(figures, name)(*args)
 
+
 # Relative drawing time of each kind of figure (measured on the demo), to start the dearest first.
 FIGURE_COST = {"time_history_figure": 1.5, "conditions_figure": 1.4, "residual_figure": 1.0, "channel_figure": 0.9}
+
 
 def run_figure_tasks(tasks, pool: WorkerPool) -> list:
     """Render every figure in the pool's workers (the SVG bytes do not depend on their number)."""
     return pool.map(_render_task, tasks, cost=lambda task: FIGURE_COST.get(task[1], 1.0))
+
 
 def place_figures(tasks, rendered):
     specimen, summary, quality, drift, comparison = {}, [], {}, [], {"comparison": [], "vehicle": []}

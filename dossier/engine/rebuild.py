@@ -39,8 +39,10 @@ class Rebuild:
     def lines(self) -> list[str]:
         out = [f"environment differs: {e}" for e in self.environment]
         out += [f"not reproduced: {d}" for d in self.differing]
-        out.append("rebuild: " + ("every file reproduced byte for byte" if self.reproduced
-                                  else f"{len(self.differing)} file(s) differ"))
+        out.append(
+            "rebuild: "
+            + ("every file reproduced byte for byte" if self.reproduced else f"{len(self.differing)} file(s) differ")
+        )
         return out
 
 
@@ -66,7 +68,7 @@ def _rebuild(inputs: dict[str, bytes], theme: str) -> dict[str, bytes]:
 def _rebuild_recorded(files: dict[str, bytes]) -> tuple[dict[str, bytes], list[str]]:
     """Rebuild from the `inputs/` among `files` with their recorded theme; the rebuilt files and
     the versions that differ from the recorded ones."""
-    inputs = {k[len(INPUTS) + 1:]: v for k, v in files.items() if k.startswith(INPUTS + "/")}
+    inputs = {k[len(INPUTS) + 1 :]: v for k, v in files.items() if k.startswith(INPUTS + "/")}
     recorded = _recorded_environment(files)
     theme = recorded.get("theme", "default")
     env = differences(recorded, environment_record(theme)) if recorded else ["no environment record"]
@@ -97,8 +99,6 @@ def rebuild_and_compare(folder: Path) -> Rebuild:
     new, env = _rebuild_recorded(files)
     names = {n for n in set(files) | set(new) if integrity.is_listed(n) or n == integrity.MANIFEST}
     return Rebuild(tuple(_compare(files, new, names)), tuple(env))
-
-
 
 
 def rebuild_report_pdf(path: Path) -> Rebuild:

@@ -30,9 +30,15 @@ class SpecimenJob:
     metric_settings: MetricSettings
     extra_loads_n: tuple[float, ...]  # asked-for metric and target loads
 
-def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float, p0_kpa: float | None = None,
-                  cache: Cache | None = None, pool: WorkerPool | None = None
-                  ) -> tuple[list[SpecimenModel], list[MetricValue]]:
+
+def fit_specimens(
+    points: list[OperatingPoint],
+    manifest: Manifest,
+    fz0_n: float,
+    p0_kpa: float | None = None,
+    cache: Cache | None = None,
+    pool: WorkerPool | None = None,
+) -> tuple[list[SpecimenModel], list[MetricValue]]:
     """Fit Fy0, then Mz0 (with the fitted Fy0), and Fx0 for every specimen from its forward runs,
     and evaluate its metrics.
 
@@ -56,11 +62,15 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
         pool.warm_up()  # new fits mean new figures and PDF volumes: the workers will be needed
     # Two rounds of jobs, so that the processes share the work evenly: the fits of each specimen,
     # then its metrics, one job per load.
-    models = pool.map(_fit_one_specimen, [job for _, job in todo],
-                      cost=lambda job: sum(p.curve.n_points for p in job.points))
-    metric_jobs = [(key, (model, tuple(p for p in job.points if p.load_n == load), job.metric_settings, load))
-                   for (key, job), model in zip(todo, models) if model is not None
-                   for load in [*metric_loads(model, job.points, job.extra_loads_n), None]]
+    models = pool.map(
+        _fit_one_specimen, [job for _, job in todo], cost=lambda job: sum(p.curve.n_points for p in job.points)
+    )
+    metric_jobs = [
+        (key, (model, tuple(p for p in job.points if p.load_n == load), job.metric_settings, load))
+        for (key, job), model in zip(todo, models)
+        if model is not None
+        for load in [*metric_loads(model, job.points, job.extra_loads_n), None]
+    ]
     values: dict[str, list[MetricValue]] = {}
     for (key, _), found in zip(metric_jobs, pool.map(_metrics_job, [mj for _, mj in metric_jobs])):
         values.setdefault(key, []).extend(found)
@@ -74,6 +84,7 @@ def fit_specimens(points: list[OperatingPoint], manifest: Manifest, fz0_n: float
     found = [results[k] for k in keys if results[k] is not None]
     return [model for model, _ in found], [m for _, vs in found for m in vs]
 
+
 def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
     settings, fz0_n, p0 = job.fit_settings, job.fz0_n, job.p0_kpa
     forward = [p for p in job.points if p.rolling_direction == "forward"]
@@ -84,20 +95,22 @@ def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
         fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
         with_mz = [p for p in lateral if p.curve.mz_nm is not None]
         if with_mz:
-            mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, job.r0_m, fy.values), with_mz,
-                                settings)
+            mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, job.r0_m, fy.values), with_mz, settings)
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
     return SpecimenModel(job.specimen, fy, mz, fx) if (fy or fx) else None
 
+
 def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:
     return leave_one_load_out(fit, points, settings) if settings.leave_one_load_out else fit
+
 
 def metric_loads(model: SpecimenModel, points: list[OperatingPoint], extra_loads_n) -> list[float]:
     """The loads a specimen's metrics are given at: every load measured at the nominal condition,
     the nominal load and any asked-for load (`extra_loads_n`: the manifest's metric and target loads)."""
     ref = model.fy or model.fx
     return sorted(set(_fitted_loads(ref, points)) | {ref.fz0_n} | set(extra_loads_n))
+
 
 def _metrics_job(job) -> list[MetricValue]:
     """One specimen's metrics at one load (`load` None: the per-specimen metrics), from its model
@@ -107,11 +120,12 @@ def _metrics_job(job) -> list[MetricValue]:
         return specimen_metrics(model)
     return metric_values(model, load, list(own), settings.crosscheck_threshold_pct)
 
+
 def points_of(fit: ChannelFit, points: list[OperatingPoint]) -> list[OperatingPoint]:
     keys = set(fit.source_points)
     return [p for p in points if p.key in keys]
 
+
 def _fitted_loads(fit: ChannelFit, points: list[OperatingPoint]) -> list[float]:
     """Loads measured at the nominal condition (zero camber, nominal pressure)."""
-    return sorted({p.load_n for p in points_of(fit, points)
-                   if p.at_nominal(fit.p0_kpa)})
+    return sorted({p.load_n for p in points_of(fit, points) if p.at_nominal(fit.p0_kpa)})

@@ -34,9 +34,9 @@ import signal
 import threading
 import time
 import traceback
+from collections.abc import Callable, Iterable
 from contextlib import contextmanager
 from multiprocessing import forkserver, resource_tracker
-from typing import Callable, Iterable
 
 from ..common import interrupts
 
@@ -84,7 +84,7 @@ def _reply(ok: bool, value) -> bytes:
         if not ok:
             pickle.loads(data)  # an exception whose class cannot be rebuilt from its arguments
         return data
-    except Exception as exc:  # noqa: BLE001 - told to the caller instead
+    except Exception as exc:
         what = f"{type(value.exc).__name__}: {value.exc}" if not ok else "its result"
         failure = _Failure(RuntimeError(f"a worker could not send back {what} ({exc})"))
         if not ok:
@@ -103,7 +103,7 @@ def _serve(conn) -> None:
         try:
             fn, item = pickle.loads(data)
             reply = _reply(True, fn(item))
-        except BaseException as exc:  # noqa: BLE001 - the job's own error, raised in the calling process
+        except BaseException as exc:
             reply = _reply(False, _Failure(exc))
         try:
             conn.send_bytes(reply)
@@ -162,7 +162,7 @@ class WorkerPool:
         self._server: int | None = None  # the fork server's pid, if this pool started it
         self._tracker: int | None = None  # the resource tracker's pid, if this pool started it
 
-    def __enter__(self) -> "WorkerPool":
+    def __enter__(self) -> WorkerPool:
         return self
 
     def __exit__(self, exc_type, exc, tb) -> None:
@@ -214,7 +214,7 @@ class WorkerPool:
         try:
             with _sigint_blocked():  # a spawned worker inherits the block until it ignores SIGINT
                 process.start()  # waits for the server if it is still importing
-        except Exception as exc:  # noqa: BLE001 - e.g. a main module that cannot be re-imported
+        except Exception as exc:
             here.close()
             raise _Lost(str(exc)) from exc
         finally:
@@ -268,19 +268,21 @@ class WorkerPool:
                     if i is not None:
                         with lock:
                             returned.append(i)
-            except BaseException as exc:  # noqa: BLE001 - the job's own error, raised below
+            except BaseException as exc:
                 with lock:
                     errors.append((i, exc))
 
-        relays = [threading.Thread(target=relay, args=(k,), daemon=True, name=f"worker {k + 1}")
-                  for k in range(self.workers - 1)]
+        relays = [
+            threading.Thread(target=relay, args=(k,), daemon=True, name=f"worker {k + 1}")
+            for k in range(self.workers - 1)
+        ]
         try:
             for t in relays:
                 t.start()
             try:
                 while (i := take()) is not None:
                     results[i] = self._run_here(fn, items[i])
-            except Exception as exc:  # noqa: BLE001 - the job's own error: raised once the workers' jobs end
+            except Exception as exc:
                 with lock:
                     errors.append((i, exc))
             for t in relays:

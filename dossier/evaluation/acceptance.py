@@ -15,8 +15,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..project.manifest import Target
 from ..metrics.evaluate import MetricValue
+from ..project.manifest import Target
 
 MEETS, MARGINAL, FAILS, NOT_MEASURED = "meets", "marginal", "does not meet", "not measured"
 
@@ -46,8 +46,11 @@ def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None
     hi = float("inf") if target.maximum is None else target.maximum
     if value.ci95 is None:
         inside = lo <= value.value <= hi
-        return MARGINAL, ("value inside the window but no interval to judge by" if inside
-                          else "value outside the window, no interval to judge by")
+        return MARGINAL, (
+            "value inside the window but no interval to judge by"
+            if inside
+            else "value outside the window, no interval to judge by"
+        )
     a, b = value.ci95
     if lo <= a and b <= hi:
         return MEETS, "the whole 95 % interval lies inside the window"
@@ -56,15 +59,27 @@ def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None
     return MARGINAL, "the 95 % interval straddles a limit"
 
 
-def verdicts(targets: tuple[Target, ...], specimens: list[str], metrics: list[MetricValue],
-             p0_kpa: float | None) -> list[Verdict]:
+def verdicts(
+    targets: tuple[Target, ...], specimens: list[str], metrics: list[MetricValue], p0_kpa: float | None
+) -> list[Verdict]:
     """Judge every target for every specimen it applies to."""
     out = []
     for t in targets:
-        for sid in (t.specimens or specimens):
-            v = next((m for m in metrics if m.specimen == sid and m.metric == t.metric
-                      and abs(m.load_n - t.load_n) < 1e-6), None)
+        for sid in t.specimens or specimens:
+            v = next(
+                (m for m in metrics if m.specimen == sid and m.metric == t.metric and abs(m.load_n - t.load_n) < 1e-6),
+                None,
+            )
             verdict, reason = judge(t, v, p0_kpa)
-            out.append(Verdict(t, sid, verdict, None if v is None else v.value, None if v is None else v.ci95,
-                               "" if v is None else v.unit, reason))
+            out.append(
+                Verdict(
+                    t,
+                    sid,
+                    verdict,
+                    None if v is None else v.value,
+                    None if v is None else v.ci95,
+                    "" if v is None else v.unit,
+                    reason,
+                )
+            )
     return out

@@ -9,23 +9,33 @@ that repeatability (common practice). The summary in words is built from these n
 
 from __future__ import annotations
 
-from ..project.manifest import Manifest
-
 import math
 from dataclasses import dataclass
 
 import numpy as np
 
-from ..evaluation.acceptance import FAILS, MARGINAL, MEETS, Verdict
 from ..conditioning.drift import DriftEstimate
-from ..project.catalogue import METRICS
+from ..evaluation.acceptance import FAILS, MARGINAL, MEETS, Verdict
 from ..metrics.evaluate import MetricValue
+from ..project.catalogue import METRICS
+from ..project.manifest import Manifest
 
-COMPARED = ("cornering_stiffness", "cornering_coefficient", "peak_lateral_friction", "slip_angle_at_peak",
-            "pneumatic_trail", "camber_stiffness", "longitudinal_slip_stiffness", "peak_driving_friction",
-            "peak_braking_friction")
-REPEATABILITY_OF = {"cornering_stiffness": "cornering_stiffness_n_per_deg", "cornering_coefficient":
-                    "cornering_stiffness_n_per_deg", "peak_lateral_friction": "peak_friction"}
+COMPARED = (
+    "cornering_stiffness",
+    "cornering_coefficient",
+    "peak_lateral_friction",
+    "slip_angle_at_peak",
+    "pneumatic_trail",
+    "camber_stiffness",
+    "longitudinal_slip_stiffness",
+    "peak_driving_friction",
+    "peak_braking_friction",
+)
+REPEATABILITY_OF = {
+    "cornering_stiffness": "cornering_stiffness_n_per_deg",
+    "cornering_coefficient": "cornering_stiffness_n_per_deg",
+    "peak_lateral_friction": "peak_friction",
+}
 
 
 @dataclass(frozen=True)
@@ -72,8 +82,14 @@ def repeatability_pct(drift: DriftEstimate | None) -> dict[str, float]:
     return out
 
 
-def compare(baseline: str, candidates: list[str], metrics: list[MetricValue], load_n: float,
-            drift: DriftEstimate | None, verdicts: list[Verdict]) -> list[Standing]:
+def compare(
+    baseline: str,
+    candidates: list[str],
+    metrics: list[MetricValue],
+    load_n: float,
+    drift: DriftEstimate | None,
+    verdicts: list[Verdict],
+) -> list[Standing]:
     """Compare every candidate with the baseline at `load_n`; one Standing per candidate."""
     rep = repeatability_pct(drift)
     at = {(m.specimen, m.metric): m for m in metrics if math.isclose(m.load_n, load_n)}
@@ -103,12 +119,36 @@ def compare(baseline: str, candidates: list[str], metrics: list[MetricValue], lo
                 norm, by = d / windows[name][0], windows[name][1]
             elif r:
                 norm, by = pct / (2.0 * r * math.sqrt(2.0)), "twice the rig repeatability of the difference"
-            diffs.append(Difference(name, a.unit, load_n, c, baseline, a.value, b.value, d, ci, pct, r,
-                                    excludes_zero and beyond_rig, norm, by))
+            diffs.append(
+                Difference(
+                    name,
+                    a.unit,
+                    load_n,
+                    c,
+                    baseline,
+                    a.value,
+                    b.value,
+                    d,
+                    ci,
+                    pct,
+                    r,
+                    excludes_zero and beyond_rig,
+                    norm,
+                    by,
+                )
+            )
         mine = [v for v in verdicts if v.specimen == c]
         counts = {k: sum(1 for v in mine if v.verdict == k) for k in (MEETS, MARGINAL, FAILS)}
-        out.append(Standing(c, tuple(diffs), counts[MEETS], counts[MARGINAL], counts[FAILS],
-                            _sentence(c, baseline, diffs, mine, counts)))
+        out.append(
+            Standing(
+                c,
+                tuple(diffs),
+                counts[MEETS],
+                counts[MARGINAL],
+                counts[FAILS],
+                _sentence(c, baseline, diffs, mine, counts),
+            )
+        )
     return out
 
 
@@ -123,9 +163,10 @@ def _sentence(c, baseline, diffs, mine, counts) -> str:
     if same:
         text += "; within the uncertainty: " + ", ".join(same)
     if mine:
-        text += (f". Targets: {counts[MEETS]} met, {counts[MARGINAL]} marginal, {counts[FAILS]} not met"
-                 f" of {len(mine)}")
-        bad = [f"{METRICS[v.target.metric].label.lower()} ({v.verdict})" for v in mine if v.verdict in (MARGINAL, FAILS)]
+        text += f". Targets: {counts[MEETS]} met, {counts[MARGINAL]} marginal, {counts[FAILS]} not met of {len(mine)}"
+        bad = [
+            f"{METRICS[v.target.metric].label.lower()} ({v.verdict})" for v in mine if v.verdict in (MARGINAL, FAILS)
+        ]
         if bad:
             text += ": " + ", ".join(bad)
     return text + "."
@@ -138,13 +179,17 @@ def recommend(standings: list[Standing]) -> tuple[str | None, str]:
     ranked = sorted(standings, key=lambda s: (s.fails, s.marginal, -s.meets, s.candidate))
     best = ranked[0]
     if best.fails:
-        return None, (f"no candidate meets every target; the closest is {best.candidate} "
-                      f"({best.fails} not met, {best.marginal} marginal)")
+        return None, (
+            f"no candidate meets every target; the closest is {best.candidate} "
+            f"({best.fails} not met, {best.marginal} marginal)"
+        )
     why = f"{best.candidate} meets {best.meets} target(s)"
     why += f" with {best.marginal} marginal" if best.marginal else " with none marginal"
     others = [s for s in ranked[1:]]
     if others:
-        why += "; " + "; ".join(f"{s.candidate}: {s.meets} met, {s.marginal} marginal, {s.fails} not met" for s in others)
+        why += "; " + "; ".join(
+            f"{s.candidate}: {s.meets} met, {s.marginal} marginal, {s.fails} not met" for s in others
+        )
     return best.candidate, why
 
 

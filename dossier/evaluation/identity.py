@@ -52,8 +52,10 @@ def specimen_identity(s: Specimen, manifest: Manifest) -> SpecimenIdentity:
     findings = []
     over = [t for t in tests if t.pct_of_rated and t.pct_of_rated > 100.0]
     if over:
-        findings.append("test loads above the rated load: " + ", ".join(
-            f"{t.load_n / 1000:.1f} kN ({t.pct_of_rated:.0f} %)" for t in over))
+        findings.append(
+            "test loads above the rated load: "
+            + ", ".join(f"{t.load_n / 1000:.1f} kN ({t.pct_of_rated:.0f} %)" for t in over)
+        )
     if age is not None and age < 0:
         findings.append(f"the date code (week {code.week} of {code.year}) is after the test date {test_date}")
     elif age is not None and age > OLD_TIRE_YEARS:

@@ -10,13 +10,13 @@ compliance steer, lateral load transfer or aligning-torque effects; tires in the
 
 from __future__ import annotations
 
+import math
+from dataclasses import dataclass
+
 from ..metrics.evaluate import single_metric
 from ..model.fit import SpecimenModel
 from ..project.manifest import Manifest
 from ..standards.units import STANDARD_GRAVITY_M_PER_S2
-
-import math
-from dataclasses import dataclass
 
 DEG_PER_RAD = 180.0 / math.pi  # the "57.3" of the handbook formulas
 NEUTRAL_BAND_DEG_PER_G = 0.05  # |K| below this is called neutral (common practice)
@@ -55,20 +55,32 @@ class Balance:
     extrapolated: bool = False
 
 
-def understeer_gradient_deg_per_g(front_axle_load_n: float, rear_axle_load_n: float,
-                                  front_axle_stiffness_n_per_deg: float, rear_axle_stiffness_n_per_deg: float) -> float:
+def understeer_gradient_deg_per_g(
+    front_axle_load_n: float,
+    rear_axle_load_n: float,
+    front_axle_stiffness_n_per_deg: float,
+    rear_axle_stiffness_n_per_deg: float,
+) -> float:
     """K = Wf/Cαf − Wr/Cαr in deg/g (Gillespie 1992, ch. 6); loads in N, stiffnesses in N/deg per axle."""
     return front_axle_load_n / front_axle_stiffness_n_per_deg - rear_axle_load_n / rear_axle_stiffness_n_per_deg
 
 
 def characteristic_speed_kmh(k_deg_per_g: float, wheelbase_m: float) -> float | None:
     """V = sqrt(57.3 L g / K) for K > 0, km/h."""
-    return None if k_deg_per_g <= 0 else 3.6 * math.sqrt(DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+    return (
+        None
+        if k_deg_per_g <= 0
+        else 3.6 * math.sqrt(DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+    )
 
 
 def critical_speed_kmh(k_deg_per_g: float, wheelbase_m: float) -> float | None:
     """V = sqrt(−57.3 L g / K) for K < 0, km/h."""
-    return None if k_deg_per_g >= 0 else 3.6 * math.sqrt(-DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+    return (
+        None
+        if k_deg_per_g >= 0
+        else 3.6 * math.sqrt(-DEG_PER_RAD * wheelbase_m * STANDARD_GRAVITY_M_PER_S2 / k_deg_per_g)
+    )
 
 
 def yaw_rate_gain_per_s(speed_kmh: float, k_deg_per_g: float, wheelbase_m: float) -> float:
@@ -84,8 +96,15 @@ def character(k_deg_per_g: float) -> str:
     return "understeer" if k_deg_per_g > 0 else "oversteer"
 
 
-def balance(front: AxleFitment, rear: AxleFitment, front_axle_load_n: float, rear_axle_load_n: float,
-            wheelbase_m: float, stiffness_n_per_deg, extrapolated=lambda specimen, load: False) -> Balance:
+def balance(
+    front: AxleFitment,
+    rear: AxleFitment,
+    front_axle_load_n: float,
+    rear_axle_load_n: float,
+    wheelbase_m: float,
+    stiffness_n_per_deg,
+    extrapolated=lambda specimen, load: False,
+) -> Balance:
     """Understeer gradient of a fitment; `stiffness_n_per_deg(specimen, tire_load_n)` → (value, stderr | None)."""
     fl = front_axle_load_n / front.tires
     rl = rear_axle_load_n / rear.tires
@@ -101,9 +120,20 @@ def balance(front: AxleFitment, rear: AxleFitment, front_axle_load_n: float, rea
         gr = rear_axle_load_n / car**2 * rear.tires * sr
         sd = abs(gf) + abs(gr) if front.specimen == rear.specimen else math.hypot(gf, gr)
         ci = (k - 1.96 * sd, k + 1.96 * sd)
-    return Balance(front.specimen, rear.specimen, fl, rl, caf, car, k, ci,
-                   characteristic_speed_kmh(k, wheelbase_m), critical_speed_kmh(k, wheelbase_m), character(k),
-                   extrapolated(front.specimen, fl) or extrapolated(rear.specimen, rl))
+    return Balance(
+        front.specimen,
+        rear.specimen,
+        fl,
+        rl,
+        caf,
+        car,
+        k,
+        ci,
+        characteristic_speed_kmh(k, wheelbase_m),
+        critical_speed_kmh(k, wheelbase_m),
+        character(k),
+        extrapolated(front.specimen, fl) or extrapolated(rear.specimen, rl),
+    )
 
 
 def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
@@ -122,6 +152,16 @@ def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
         lo, hi = by_id[sid].fy.load_range_n
         return not (0.98 * lo <= load <= 1.02 * hi)
 
-    return [balance(AxleFitment(f, v.front.tires, v.front.kind), AxleFitment(r, v.rear.tires, v.rear.kind),
-                    v.front_axle_load_n, v.rear_axle_load_n, v.wheelbase_m, stiffness, extrapolated)
-            for f in ids for r in ids]
+    return [
+        balance(
+            AxleFitment(f, v.front.tires, v.front.kind),
+            AxleFitment(r, v.rear.tires, v.rear.kind),
+            v.front_axle_load_n,
+            v.rear_axle_load_n,
+            v.wheelbase_m,
+            stiffness,
+            extrapolated,
+        )
+        for f in ids
+        for r in ids
+    ]

@@ -1,9 +1,10 @@
-"""Ingest: read a lab's rig file into internal units and the internal (ISO 8855) axes.
+"""Ingest: a lab's rig file, as bytes, into internal units and the internal (ISO 8855) axes.
 
-It parses the bytes the loader read (:mod:`dossier.project.load`); it opens no file. It accepts CSV-like text with ``,``, ``;`` or tab
-separators and ``.`` or ``,`` decimal marks, maps the manifest's column names to channels,
-converts units (:mod:`dossier.units`) and signs (:mod:`dossier.axes`), and refuses anything
-it cannot read with the file, line and column named.
+It parses the bytes the loader read (:mod:`dossier.project.load`) and opens no file. It accepts
+CSV-like text with ``,``, ``;`` or tab separators and ``.`` or ``,`` decimal marks, maps the
+manifest's column names to channels, converts units (:mod:`dossier.standards.units`) and signs
+(:mod:`dossier.standards.axes`), and refuses anything it cannot read with the file, line and
+column named.
 """
 
 from __future__ import annotations
@@ -16,12 +17,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..standards import axes
-
-from ..standards import units
 from ..common.errors import RigDataError
 from ..project.manifest import CHANNELS, RunSpec
-
+from ..standards import axes, units
 
 
 @dataclass(frozen=True)
@@ -52,8 +50,9 @@ def parse_run(raw: bytes, spec: RunSpec) -> RigRun:
     return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines)
 
 
-def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
-                encoding: str = "utf-8-sig") -> tuple[dict[str, np.ndarray], np.ndarray]:
+def parse_table(
+    text: str, spec: RunSpec, shown: str, raw: bytes | None = None, encoding: str = "utf-8-sig"
+) -> tuple[dict[str, np.ndarray], np.ndarray]:
     """Parse rig-file text per `spec`; return internal channels and source line numbers.
 
     `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text.
@@ -61,27 +60,41 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
     if not text.strip():
         raise RigDataError(shown, f"the file is empty; expected a header on line {spec.header_line} and data rows")
     head = text.split("\n", spec.header_line)[: spec.header_line]
-    if len(head) < spec.header_line or (len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1):
+    if len(head) < spec.header_line or (
+        len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1
+    ):
         raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(head)} line(s)")
     try:
         header = [h.strip() for h in next(csv.reader([head[-1].rstrip("\r")], delimiter=spec.delimiter), [])]
     except csv.Error as exc:
-        raise RigDataError(shown, f"the header cannot be read as delimited text ({exc})", line=spec.header_line) from None
+        raise RigDataError(
+            shown, f"the header cannot be read as delimited text ({exc})", line=spec.header_line
+        ) from None
     index: dict[str, int] = {}
     for channel, col in spec.columns.items():
         matches = [i for i, h in enumerate(header) if h == col.name]
         if not matches:
-            raise RigDataError(shown, f"no column named {col.name!r} for channel '{channel}' "
-                               f"(manifest {spec.location}.columns.{channel}.name); header has: {', '.join(header)}",
-                               line=spec.header_line)
+            raise RigDataError(
+                shown,
+                f"no column named {col.name!r} for channel '{channel}' "
+                f"(manifest {spec.location}.columns.{channel}.name); header has: {', '.join(header)}",
+                line=spec.header_line,
+            )
         if len(matches) > 1:
-            raise RigDataError(shown, f"column name {col.name!r} appears {len(matches)} times in the header",
-                               line=spec.header_line)
+            raise RigDataError(
+                shown, f"column name {col.name!r} appears {len(matches)} times in the header", line=spec.header_line
+            )
         index[channel] = matches[0]
 
     first = spec.header_line + spec.skip_after_header  # 0-based index of the first data row
-    fast = _fast_table(raw if raw is not None else text.encode("utf-8"),
-                       encoding if raw is not None else "utf-8", spec, index, len(header), first)
+    fast = _fast_table(
+        raw if raw is not None else text.encode("utf-8"),
+        encoding if raw is not None else "utf-8",
+        spec,
+        index,
+        len(header),
+        first,
+    )
     if fast is not None:
         channels = _to_internal(fast[0], spec)
         _check_plausible(channels, fast[1], spec, shown)
@@ -89,7 +102,9 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
     try:
         rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
     except csv.Error as exc:
-        raise RigDataError(shown, f"cannot be read as delimited text ({exc}); is it a text export of the rig data?") from None
+        raise RigDataError(
+            shown, f"cannot be read as delimited text ({exc}); is it a text export of the rig data?"
+        ) from None
     values = {ch: [] for ch in index}
     lines: list[int] = []
     for row_i in range(first, len(rows)):
@@ -98,7 +113,9 @@ def parse_table(text: str, spec: RunSpec, shown: str, raw: bytes | None = None,
         if not any(cell.strip() for cell in row) or row[0].lstrip().startswith("#"):
             continue
         if len(row) < len(header):
-            raise RigDataError(shown, f"expected {len(header)} fields; found {len(row)} (truncated line?)", line=line_no)
+            raise RigDataError(
+                shown, f"expected {len(header)} fields; found {len(row)} (truncated line?)", line=line_no
+            )
         for ch, col_i in index.items():
             values[ch].append(_number(row[col_i], spec.decimal, shown, line_no, header[col_i]))
         lines.append(line_no)
@@ -139,7 +156,7 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
             return None
         start = nl + 1
     end = len(raw)
-    while end > start and raw[end - 1:end] in (b"\n", b"\r", b" ", b"\t"):
+    while end > start and raw[end - 1 : end] in (b"\n", b"\r", b" ", b"\t"):
         end -= 1
     if end <= start or spec.delimiter == spec.decimal:
         return None
@@ -150,9 +167,18 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
         return None
     cols = sorted(set(index.values()))
     try:
-        frame = pandas.read_csv(io.BytesIO(body), sep=spec.delimiter, decimal=spec.decimal, header=None,
-                                usecols=cols, dtype=float, engine="c", na_filter=False,
-                                skip_blank_lines=False, encoding=encoding)
+        frame = pandas.read_csv(
+            io.BytesIO(body),
+            sep=spec.delimiter,
+            decimal=spec.decimal,
+            header=None,
+            usecols=cols,
+            dtype=float,
+            engine="c",
+            na_filter=False,
+            skip_blank_lines=False,
+            encoding=encoding,
+        )
     except (ValueError, TypeError, UnicodeDecodeError, pandas.errors.ParserError):
         return None
     if frame.shape[0] != n_lines:
@@ -172,8 +198,9 @@ def _number(cell: str, decimal: str, shown: str, line: int, column: str) -> floa
     try:
         value = float(s)
     except ValueError:
-        raise RigDataError(shown, f"expected a number with decimal mark {decimal!r}; found {cell!r}",
-                           line=line, column=column) from None
+        raise RigDataError(
+            shown, f"expected a number with decimal mark {decimal!r}; found {cell!r}", line=line, column=column
+        ) from None
     if not math.isfinite(value):
         raise RigDataError(shown, f"expected a finite number; found {cell!r}", line=line, column=column)
     return value
@@ -184,14 +211,21 @@ def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: R
     fz = channels["fz"]
     if np.median(fz) < 0:
         other = axes.ISO_8855 if spec.axis_convention == axes.SAE_J670 else axes.SAE_J670
-        raise RigDataError(shown, f"normal load is negative after converting from {spec.axis_convention} "
-                           f"(median {np.median(fz):.0f} N); the file is probably in {other} "
-                           f"(manifest {spec.location}.axis_convention)")
+        raise RigDataError(
+            shown,
+            f"normal load is negative after converting from {spec.axis_convention} "
+            f"(median {np.median(fz):.0f} N); the file is probably in {other} "
+            f"(manifest {spec.location}.axis_convention)",
+        )
     t = channels["time"]
     if t.size > 1 and np.any(np.diff(t) < 0):
         bad = int(np.argmax(np.diff(t) < 0)) + 1
-        raise RigDataError(shown, "time goes backwards; rows must be in recording order",
-                           line=int(lines[bad]), column=spec.columns["time"].name)
+        raise RigDataError(
+            shown,
+            "time goes backwards; rows must be in recording order",
+            line=int(lines[bad]),
+            column=spec.columns["time"].name,
+        )
     if spec.sweep == "slip_angle" and "fy" in channels:
         a, fy = channels["slip_angle"], channels["fy"]
         near = np.abs(a) <= 4.0
@@ -199,12 +233,18 @@ def _check_plausible(channels: dict[str, np.ndarray], lines: np.ndarray, spec: R
             slope = np.polyfit(a[near], fy[near], 1)[0]
             typical = np.median(np.abs(channels["fz"])) * 0.02  # a tire gives at least ~0.02 Fz per degree
             if slope > typical:
-                raise RigDataError(shown, f"lateral force rises with slip angle after converting from "
-                                   f"{spec.axis_convention} ({slope:+.0f} N/deg); in SAE J670 and ISO 8855 alike a "
-                                   "positive slip angle gives a negative lateral force. The Fy or slip-angle column "
-                                   "probably has the opposite sign (check the lab's convention and "
-                                   f"manifest {spec.location}.axis_convention)")
+                raise RigDataError(
+                    shown,
+                    f"lateral force rises with slip angle after converting from "
+                    f"{spec.axis_convention} ({slope:+.0f} N/deg); in SAE J670 and ISO 8855 alike a "
+                    "positive slip angle gives a negative lateral force. The Fy or slip-angle column "
+                    "probably has the opposite sign (check the lab's convention and "
+                    f"manifest {spec.location}.axis_convention)",
+                )
     span = float(np.ptp(channels["slip_angle"])) if "slip_angle" in channels else None
     if span is not None and span < 1.0 and spec.columns["slip_angle"].unit == "deg" and spec.sweep == "slip_angle":
-        raise RigDataError(shown, f"slip angle spans only {span:.3f} deg; the column is probably in radians "
-                           f"(manifest {spec.location}.columns.slip_angle.unit)")
+        raise RigDataError(
+            shown,
+            f"slip angle spans only {span:.3f} deg; the column is probably in radians "
+            f"(manifest {spec.location}.columns.slip_angle.unit)",
+        )

@@ -1,2 +1,1 @@
-"""Metrics: the trade's numbers from the fitted models, each with its 95 % interval.
-"""
+"""Metrics: the trade's numbers from the fitted models, each with its 95 % interval."""

@@ -14,8 +14,8 @@ loads outside the fitted range are labelled extrapolation.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 
@@ -55,6 +55,7 @@ class MetricValue:
 
 
 # --- evaluation helpers -----------------------------------------------------------------------
+
 
 def _fy(m: SpecimenModel, x, load, v: Values):
     return m.fy.predict(x, load, values=v["fy"])
@@ -203,6 +204,7 @@ def _both(fn):
     def mean(m, load, v):
         a, b = fn(m, load, v, 1.0), fn(m, load, v, -1.0)
         return None if a is None or b is None else 0.5 * (a + b)
+
     return mean
 
 
@@ -292,7 +294,9 @@ COMPUTE: dict[str, Callable[[SpecimenModel, float, Values], float | None]] = {
     "aligning_stiffness": aligning_stiffness,
     "pneumatic_trail": pneumatic_trail_mm,
     "peak_aligning_moment": lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[0] + _mz_peak(m, L, v, -1.0)[0]),
-    "slip_angle_at_peak_aligning_moment": lambda m, L, v: 0.5 * (_mz_peak(m, L, v, 1.0)[1] + _mz_peak(m, L, v, -1.0)[1]),
+    "slip_angle_at_peak_aligning_moment": lambda m, L, v: (
+        0.5 * (_mz_peak(m, L, v, 1.0)[1] + _mz_peak(m, L, v, -1.0)[1])
+    ),
     "residual_cornering_force": residual_cornering_force,
     "residual_aligning_moment": residual_aligning_moment,
     "camber_stiffness": camber_stiffness,
@@ -306,7 +310,9 @@ COMPUTE: dict[str, Callable[[SpecimenModel, float, Values], float | None]] = {
     "load_at_max_cornering_stiffness": load_at_max_cornering_stiffness,
 }
 if set(COMPUTE) != set(METRICS):  # the catalogue and the functions must name the same metrics
-    raise ImportError(f"metrics without a function or functions without a metric: {sorted(set(COMPUTE) ^ set(METRICS))}")
+    raise ImportError(
+        f"metrics without a function or functions without a metric: {sorted(set(COMPUTE) ^ set(METRICS))}"
+    )
 
 
 # --- evaluation ----------------------------------------------------------------------------
@@ -314,16 +320,28 @@ if set(COMPUTE) != set(METRICS):  # the catalogue and the functions must name th
 # Metrics whose value is a bound when the sweep does not pass the peak: channel and sides checked.
 _BOTH = (1.0, -1.0)
 PEAK_BOUND: dict[str, tuple[str, tuple[float, ...]]] = {
-    **{n: ("fy", _BOTH) for n in ("peak_lateral_friction", "peak_lateral_friction_positive_slip",
-                                  "peak_lateral_friction_negative_slip", "slip_angle_at_peak",
-                                  "slip_angle_at_peak_positive_slip", "slip_angle_at_peak_negative_slip",
-                                  "post_peak_retention")},
-    "peak_driving_friction": ("fx", (1.0,)), "slip_ratio_at_peak_driving": ("fx", (1.0,)),
-    "peak_braking_friction": ("fx", (-1.0,)), "slip_ratio_at_peak_braking": ("fx", (-1.0,)),
+    **{
+        n: ("fy", _BOTH)
+        for n in (
+            "peak_lateral_friction",
+            "peak_lateral_friction_positive_slip",
+            "peak_lateral_friction_negative_slip",
+            "slip_angle_at_peak",
+            "slip_angle_at_peak_positive_slip",
+            "slip_angle_at_peak_negative_slip",
+            "post_peak_retention",
+        )
+    },
+    "peak_driving_friction": ("fx", (1.0,)),
+    "slip_ratio_at_peak_driving": ("fx", (1.0,)),
+    "peak_braking_friction": ("fx", (-1.0,)),
+    "slip_ratio_at_peak_braking": ("fx", (-1.0,)),
 }
 
-def metric_values(models: SpecimenModel, load_n: float, points: list[OperatingPoint] = (),
-                  crosscheck_threshold_pct: float = 5.0) -> list[MetricValue]:
+
+def metric_values(
+    models: SpecimenModel, load_n: float, points: list[OperatingPoint] = (), crosscheck_threshold_pct: float = 5.0
+) -> list[MetricValue]:
     """Return every per-load metric the specimen's models support at `load_n`, with intervals.
 
     `points` are the specimen's conditioned operating points; where one was measured at this
@@ -354,8 +372,15 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
             found[(kind, sign)] = side(models, load_n, base, sign)[2]
         return found[(kind, sign)]
 
-    nominal_pts = [p for p in points if p.load_n == load_n and p.sweep == "slip_angle"
-                   and p.rolling_direction == "forward" and ref is not None and p.at_nominal(ref.p0_kpa)]
+    nominal_pts = [
+        p
+        for p in points
+        if p.load_n == load_n
+        and p.sweep == "slip_angle"
+        and p.rolling_direction == "forward"
+        and ref is not None
+        and p.at_nominal(ref.p0_kpa)
+    ]
     for d in definitions:
         if any(models.get(c) is None for c in d.channels):
             continue
@@ -389,11 +414,30 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                 cc = float(np.mean(vals))
                 diff = 100.0 * (value / cc - 1.0)
                 if abs(diff) > threshold:
-                    finding = (f"model and data disagree by {diff:+.1f} % (threshold {threshold:g} %): "
-                               "check the fit near zero slip / at the peak")
+                    finding = (
+                        f"model and data disagree by {diff:+.1f} % (threshold {threshold:g} %): "
+                        "check the fit near zero slip / at the peak"
+                    )
         ref_fit = fits[0]
-        out.append(MetricValue(d.name, d.unit, models.specimen, float(load_n), 0.0, ref_fit.p0_kpa, float(value), sd, ci,
-                               "model", extrapolated, "; ".join(notes), cc, diff, finding))
+        out.append(
+            MetricValue(
+                d.name,
+                d.unit,
+                models.specimen,
+                float(load_n),
+                0.0,
+                ref_fit.p0_kpa,
+                float(value),
+                sd,
+                ci,
+                "model",
+                extrapolated,
+                "; ".join(notes),
+                cc,
+                diff,
+                finding,
+            )
+        )
     return out
 
 

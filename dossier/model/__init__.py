@@ -1,2 +1,1 @@
-"""The model: the Magic Formula equations and their fitting, with the fit statistics.
-"""
+"""The model: the Magic Formula equations and their fitting, with the fit statistics."""

@@ -21,9 +21,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..model import magic_formula as mf
-from ..conditioning.steady_state import OperatingPoint
 from ..common.errors import StageError
+from ..conditioning.steady_state import OperatingPoint
+from ..model import magic_formula as mf
 from ..project.manifest import FitSettings
 
 STRONG_CORRELATION = 0.95
@@ -123,6 +123,7 @@ class FitData:
     def weight(self) -> np.ndarray:
         """1/σ: weighted residuals are in units of each point's own noise."""
         return 1.0 / self.sigma
+
     load_n: np.ndarray  # nominal load of the sample's operating point
     keys: tuple[tuple, ...]
 
@@ -175,8 +176,17 @@ class ChannelFit:
     def predict(self, x, load_n, camber_deg=0.0, pressure_kpa=None, values: dict | None = None):
         """Return the model at slip `x` (deg, or slip ratio for fx), load (N), camber (deg), pressure."""
         p = self.p0_kpa if pressure_kpa is None else pressure_kpa
-        return _model(self.channel, np.asarray(x, float), load_n, camber_deg, (np.asarray(p) - self.p0_kpa) / self.p0_kpa,
-                      values or self.values, self.fz0_n, self.r0_m, self.fy_values)
+        return _model(
+            self.channel,
+            np.asarray(x, float),
+            load_n,
+            camber_deg,
+            (np.asarray(p) - self.p0_kpa) / self.p0_kpa,
+            values or self.values,
+            self.fz0_n,
+            self.r0_m,
+            self.fy_values,
+        )
 
     def predict_fy_n(self, slip_angle_deg, load_n, values: dict | None = None):
         return self.predict(slip_angle_deg, load_n, values=values)
@@ -206,6 +216,7 @@ def _model(channel, x, fz, gamma_deg, dpi, values, fz0_n, r0_m, fy_values):
 
 # --- data --------------------------------------------------------------------------------------
 
+
 def fit_data(points: list[OperatingPoint], channel: str) -> FitData:
     """Stack the conditioned curves of `points` for one channel, weighting each point by its noise."""
     xs, fzs, gs, ps, ys, ws, ls = [], [], [], [], [], [], []
@@ -223,9 +234,17 @@ def fit_data(points: list[OperatingPoint], channel: str) -> FitData:
         ls.append(np.full(c.n_points, p.load_n))
     if not xs:
         raise StageError(f"no conditioned {channel} data to fit")
-    return FitData(channel, np.concatenate(xs), np.concatenate(fzs), np.concatenate(gs), np.concatenate(ps),
-                   np.concatenate(ys), np.concatenate(ws), np.concatenate(ls),
-                   tuple(p.key for p in points))
+    return FitData(
+        channel,
+        np.concatenate(xs),
+        np.concatenate(fzs),
+        np.concatenate(gs),
+        np.concatenate(ps),
+        np.concatenate(ys),
+        np.concatenate(ws),
+        np.concatenate(ls),
+        tuple(p.key for p in points),
+    )
 
 
 def _point_noise(x, y) -> float:
@@ -239,6 +258,7 @@ def _point_noise(x, y) -> float:
 
 
 # --- per-point starting fits -------------------------------------------------------------------
+
 
 def fit_point(x: np.ndarray, y: np.ndarray, load_n: float, angle: bool = True) -> PointFit:
     """Fit the general sine form with shifts to one slip curve (starting values only).
@@ -271,8 +291,16 @@ def fit_point(x: np.ndarray, y: np.ndarray, load_n: float, angle: bool = True) -
 
 # --- the global fit ---------------------------------------------------------------------------
 
-def fit_channel(points: list[OperatingPoint], channel: str, settings: FitSettings, fz0_n: float, p0_kpa: float,
-                r0_m: float = 0.3, fy_values: dict | None = None) -> ChannelFit:
+
+def fit_channel(
+    points: list[OperatingPoint],
+    channel: str,
+    settings: FitSettings,
+    fz0_n: float,
+    p0_kpa: float,
+    r0_m: float = 0.3,
+    fy_values: dict | None = None,
+) -> ChannelFit:
     """Fit one Magic Formula channel to every operating point of one specimen.
 
     Parameters
@@ -298,8 +326,21 @@ def fit_channel(points: list[OperatingPoint], channel: str, settings: FitSetting
     return _solve(channel, specimen, data, setting_list, point_fits, settings, fz0_n, p0_kpa, r0_m, fy_values)
 
 
-def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings, fz0_n, p0_kpa, r0_m, fy_values,
-           start_values: dict | None = None, max_restarts: int = 3, prune: bool = True) -> ChannelFit:
+def _solve(
+    channel,
+    specimen,
+    data: FitData,
+    setting_list,
+    point_fits,
+    settings,
+    fz0_n,
+    p0_kpa,
+    r0_m,
+    fy_values,
+    start_values: dict | None = None,
+    max_restarts: int = 3,
+    prune: bool = True,
+) -> ChannelFit:
     from scipy import optimize, stats  # imported here: not needed when results come from the cache
 
     free = [s for s in setting_list if not s.held]
@@ -312,8 +353,9 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
     dpi = (data.pressure_kpa - p0_kpa) / p0_kpa
 
     def model(q):
-        return _model(channel, data.x, data.fz_n, data.gamma_deg, dpi, {**fixed, **dict(zip(names, q))},
-                      fz0_n, r0_m, fy_values)
+        return _model(
+            channel, data.x, data.fz_n, data.gamma_deg, dpi, {**fixed, **dict(zip(names, q))}, fz0_n, r0_m, fy_values
+        )
 
     def resid(q):
         return (model(q) - data.y) * data.weight
@@ -325,9 +367,18 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
     start = x0
     peak = float(np.max(np.abs(data.y)))
     for _ in range(1 + max_restarts):
-        res = optimize.least_squares(resid, start, bounds=(lo, hi), loss=settings.loss, f_scale=2.0,
-                                     max_nfev=max(50, budget - evaluations), x_scale="jac",
-                                     ftol=TOLERANCE, xtol=TOLERANCE, gtol=TOLERANCE)
+        res = optimize.least_squares(
+            resid,
+            start,
+            bounds=(lo, hi),
+            loss=settings.loss,
+            f_scale=2.0,
+            max_nfev=max(50, budget - evaluations),
+            x_scale="jac",
+            ftol=TOLERANCE,
+            xtol=TOLERANCE,
+            gtol=TOLERANCE,
+        )
         evaluations += res.nfev
         plain = model(res.x) - data.y
         rmse = float(np.sqrt(np.mean(plain**2)))
@@ -341,12 +392,17 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
             break
         restarts += 1
         span = hi - lo
-        start = np.clip(x0 + 0.1 * rng.standard_normal(x0.size) * np.minimum(np.abs(x0) + 0.1, span),
-                        lo + 1e-6 * span, hi - 1e-6 * span)
+        start = np.clip(
+            x0 + 0.1 * rng.standard_normal(x0.size) * np.minimum(np.abs(x0) + 0.1, span),
+            lo + 1e-6 * span,
+            hi - 1e-6 * span,
+        )
     res, rmse = best
     if evaluations >= budget and not res.success:
-        raise StageError(f"the {CHANNEL_LABEL[channel]} fit of specimen {specimen!r} did not converge within "
-                         f"{budget} evaluations (fit.max_evaluations); last state: {res.message}")
+        raise StageError(
+            f"the {CHANNEL_LABEL[channel]} fit of specimen {specimen!r} did not converge within "
+            f"{budget} evaluations (fit.max_evaluations); last state: {res.message}"
+        )
 
     x = res.x
     at_bound = (x - lo <= 1e-6 * (hi - lo)) | (hi - x <= 1e-6 * (hi - lo))
@@ -357,19 +413,38 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
             # and fit again from here, rather than report a number the data do not determine.
             name, partner = weak
             info = mf.INFO[name]
-            reason = (f"held at default: not separable from {partner} by these data" if partner
-                      else "held at default: no effect on these data")
-            setting_list = [replace(st, start=info.default, held=True, reason=reason) if st.name == name else st
-                            for st in setting_list]
+            reason = (
+                f"held at default: not separable from {partner} by these data"
+                if partner
+                else "held at default: no effect on these data"
+            )
+            setting_list = [
+                replace(st, start=info.default, held=True, reason=reason) if st.name == name else st
+                for st in setting_list
+            ]
             warm = {**fixed, **dict(zip(names, x))}
-            return _solve(channel, specimen, data, setting_list, point_fits, settings, fz0_n, p0_kpa, r0_m,
-                          fy_values, start_values=warm, max_restarts=0, prune=True)
+            return _solve(
+                channel,
+                specimen,
+                data,
+                setting_list,
+                point_fits,
+                settings,
+                fz0_n,
+                p0_kpa,
+                r0_m,
+                fy_values,
+                start_values=warm,
+                max_restarts=0,
+                prune=True,
+            )
     r = resid(x)  # recompute the plain (weighted) residual at the solution
     n, k = r.size, x.size
     dof = n - k
     if dof <= 0:
-        raise StageError(f"specimen {specimen!r}: {n} conditioned points cannot determine {k} "
-                         f"{CHANNEL_LABEL[channel]} coefficients")
+        raise StageError(
+            f"specimen {specimen!r}: {n} conditioned points cannot determine {k} {CHANNEL_LABEL[channel]} coefficients"
+        )
     cov, note = _covariance(resid, x, r, dof, at_bound)
     sd = np.sqrt(np.diag(cov))
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -381,35 +456,72 @@ def _solve(channel, specimen, data: FitData, setting_list, point_fits, settings,
     for s in setting_list:
         info = mf.INFO[s.name]
         if s.held:
-            estimates.append(CoefficientEstimate(s.name, s.start, info.unit, info.equation, "held", None, None,
-                                                 False, s.reason))
+            estimates.append(
+                CoefficientEstimate(s.name, s.start, info.unit, info.equation, "held", None, None, False, s.reason)
+            )
             continue
         i = names.index(s.name)
         ok = bool(np.isfinite(sd[i]))
         why = "at a bound: no standard error" if at_bound[i] else ("" if ok else note)
-        estimates.append(CoefficientEstimate(
-            s.name, float(values[s.name]), info.unit, info.equation, "fitted",
-            float(sd[i]) if ok else None,
-            (float(x[i] - t95 * sd[i]), float(x[i] + t95 * sd[i])) if ok else None,
-            bool(at_bound[i]), why))
+        estimates.append(
+            CoefficientEstimate(
+                s.name,
+                float(values[s.name]),
+                info.unit,
+                info.equation,
+                "fitted",
+                float(sd[i]) if ok else None,
+                (float(x[i] - t95 * sd[i]), float(x[i] + t95 * sd[i])) if ok else None,
+                bool(at_bound[i]),
+                why,
+            )
+        )
 
     plain = model(x) - data.y
-    stat = FitStatistics(n, k, dof, float(np.sqrt(np.mean(plain**2))),
-                         100.0 * float(np.sqrt(np.mean(plain**2))) / peak, evaluations, restarts,
-                         bool(res.success), str(res.message))
+    stat = FitStatistics(
+        n,
+        k,
+        dof,
+        float(np.sqrt(np.mean(plain**2))),
+        100.0 * float(np.sqrt(np.mean(plain**2))) / peak,
+        evaluations,
+        restarts,
+        bool(res.success),
+        str(res.message),
+    )
     fit = ChannelFit(
-        channel, specimen, fz0_n, p0_kpa, r0_m, None if fy_values is None else dict(fy_values),
-        tuple(setting_list), tuple(estimates), names, cov, corr, stat, tuple(point_fits),
-        (float(data.fz_n.min()), float(data.fz_n.max())), (float(data.x.min()), float(data.x.max())),
+        channel,
+        specimen,
+        fz0_n,
+        p0_kpa,
+        r0_m,
+        None if fy_values is None else dict(fy_values),
+        tuple(setting_list),
+        tuple(estimates),
+        names,
+        cov,
+        corr,
+        stat,
+        tuple(point_fits),
+        (float(data.fz_n.min()), float(data.fz_n.max())),
+        (float(data.x.min()), float(data.x.max())),
         (float(data.gamma_deg.min()), float(data.gamma_deg.max())),
-        (float(data.pressure_kpa.min()), float(data.pressure_kpa.max())), t95, (), data.keys,
-        _frozen(data.x), _frozen(data.load_n), _frozen(plain))
+        (float(data.pressure_kpa.min()), float(data.pressure_kpa.max())),
+        t95,
+        (),
+        data.keys,
+        _frozen(data.x),
+        _frozen(data.load_n),
+        _frozen(plain),
+    )
     warnings = []
     for e in estimates:
         if e.at_bound:
             warnings.append(f"{e.name} is at a bound of its physical range; its value is not a free estimate")
         elif e.relative_stderr is not None and e.relative_stderr > 0.5 and abs(e.value) > 1e-3:
-            warnings.append(f"{e.name} is poorly determined (standard error {100 * e.relative_stderr:.0f} % of its value)")
+            warnings.append(
+                f"{e.name} is poorly determined (standard error {100 * e.relative_stderr:.0f} % of its value)"
+            )
         elif e.status == "fitted" and e.stderr is None:
             warnings.append(f"{e.name}: {e.note}")
     for a, b, rho in fit.strongly_correlated_pairs():
@@ -445,8 +557,20 @@ def leave_one_load_out(fit: ChannelFit, points: list[OperatingPoint], settings: 
                 setting_list.append(replace(s, start=base[s.name], held=True, reason="held at the full fit's value"))
             else:
                 setting_list.append(replace(s, start=base[s.name]) if s.held else s)
-        part = _solve(fit.channel, fit.specimen, sub, setting_list, (), settings, fit.fz0_n, fit.p0_kpa, fit.r0_m,
-                      fit.fy_values, start_values=base, max_restarts=0)
+        part = _solve(
+            fit.channel,
+            fit.specimen,
+            sub,
+            setting_list,
+            (),
+            settings,
+            fit.fz0_n,
+            fit.p0_kpa,
+            fit.r0_m,
+            fit.fy_values,
+            start_values=base,
+            max_restarts=0,
+        )
         test = fit_data(gone, fit.channel)
         pred = part.predict(test.x, test.fz_n, test.gamma_deg, test.pressure_kpa)
         rmse = float(np.sqrt(np.mean((pred - test.y) ** 2)))
@@ -455,6 +579,7 @@ def leave_one_load_out(fit: ChannelFit, points: list[OperatingPoint], settings: 
 
 
 # --- starting values and identification -------------------------------------------------------
+
 
 def _counts(data: FitData) -> dict[str, int]:
     """How many distinct loads, cambers and pressures the data hold, alone and per load."""
@@ -465,16 +590,26 @@ def _counts(data: FitData) -> dict[str, int]:
     def loads_with_two(values):
         return sum(1 for L in set(load.tolist()) if len(set(values[load == L].tolist())) >= 2)
 
-    return {"loads": len(set(load.tolist())), "camber": len(set(camber.tolist())),
-            "pressure": len(set(pressure.tolist())),
-            "camber_loads": loads_with_two(camber), "pressure_loads": loads_with_two(pressure)}
+    return {
+        "loads": len(set(load.tolist())),
+        "camber": len(set(camber.tolist())),
+        "pressure": len(set(pressure.tolist())),
+        "camber_loads": loads_with_two(camber),
+        "pressure_loads": loads_with_two(pressure),
+    }
 
 
 def _identified(needs: str, counts: dict[str, int]) -> bool:
-    return {"": True, "loads": counts["loads"] >= 2, "loads3": counts["loads"] >= 3,
-            "camber": counts["camber"] >= 2, "camber_loads": counts["camber_loads"] >= 2,
-            "pressure": counts["pressure"] >= 2, "pressure3": counts["pressure"] >= 3,
-            "pressure_loads": counts["pressure_loads"] >= 2}[needs]
+    return {
+        "": True,
+        "loads": counts["loads"] >= 2,
+        "loads3": counts["loads"] >= 3,
+        "camber": counts["camber"] >= 2,
+        "camber_loads": counts["camber_loads"] >= 2,
+        "pressure": counts["pressure"] >= 2,
+        "pressure3": counts["pressure"] >= 3,
+        "pressure_loads": counts["pressure_loads"] >= 2,
+    }[needs]
 
 
 HOLD_REASON = {
@@ -533,8 +668,11 @@ def _settings(channel, data: FitData, point_fits, fz0_n, r0_m, fy_values) -> lis
         if not held:
             span = info.upper - info.lower
             value = float(np.clip(value, info.lower + 1e-3 * span, info.upper - 1e-3 * span))
-        out.append(CoefficientSetting(info.name, value, info.lower, info.upper, held,
-                                      HOLD_REASON.get(info.needs, "") if held else ""))
+        out.append(
+            CoefficientSetting(
+                info.name, value, info.lower, info.upper, held, HOLD_REASON.get(info.needs, "") if held else ""
+            )
+        )
     return out
 
 
@@ -568,8 +706,16 @@ def _trail_start(data: FitData, fz0_n, r0_m, fy_values) -> dict[str, float]:
 
 RCOND = 1e-7  # relative singular value below which a direction counts as not determined
 # When a combination is not determined, hold the most specific coefficient first.
-_HOLD_FIRST = {"pressure3": 0, "pressure_loads": 0, "pressure": 1, "camber_loads": 1, "camber": 2, "loads3": 3,
-               "loads": 4, "": 5}
+_HOLD_FIRST = {
+    "pressure3": 0,
+    "pressure_loads": 0,
+    "pressure": 1,
+    "camber_loads": 1,
+    "camber": 2,
+    "loads3": 3,
+    "loads": 4,
+    "": 5,
+}
 
 
 def _inseparable(resid, x, names, free) -> tuple[str, str] | None:
@@ -641,8 +787,9 @@ def _frozen(a) -> np.ndarray:
     return a
 
 
-def fit_lateral(points: list[OperatingPoint], settings: FitSettings, fz0_n: float,
-                p0_kpa: float | None = None) -> ChannelFit:
+def fit_lateral(
+    points: list[OperatingPoint], settings: FitSettings, fz0_n: float, p0_kpa: float | None = None
+) -> ChannelFit:
     """Fit Fy0 to the slip-angle points of one specimen (convenience wrapper of :func:`fit_channel`)."""
     p0 = p0_kpa if p0_kpa is not None else float(np.median([p.pressure_kpa for p in points]))
     return fit_channel(points, "fy", settings, fz0_n, p0)

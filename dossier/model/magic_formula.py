@@ -82,7 +82,16 @@ FY0_COEFFICIENTS: tuple[CoefficientInfo, ...] = (
     C("pVy3", "1/rad", 0.0, -5.0, 5.0, "4.E29", "vertical shift with camber", "camber"),
     C("pVy4", "1/rad", 0.0, -5.0, 5.0, "4.E29", "vertical shift with camber and load", "camber_loads"),
     C("ppy1", "1", 0.0, -3.0, 3.0, "BSP2010", "pressure effect on cornering stiffness", "pressure"),
-    C("ppy2", "1", 0.0, -3.0, 3.0, "BSP2010", "pressure effect on the load of maximum cornering stiffness", "pressure_loads"),
+    C(
+        "ppy2",
+        "1",
+        0.0,
+        -3.0,
+        3.0,
+        "BSP2010",
+        "pressure effect on the load of maximum cornering stiffness",
+        "pressure_loads",
+    ),
     C("ppy3", "1", 0.0, -3.0, 3.0, "BSP2010", "linear pressure effect on lateral friction", "pressure"),
     C("ppy4", "1", 0.0, -3.0, 3.0, "BSP2010", "quadratic pressure effect on lateral friction", "pressure3"),
 )
@@ -161,14 +170,21 @@ def _fy0_parts(alpha, fz, c, fz0_n, gamma, dpi):
     svy = fz * (c["pVy1"] + c["pVy2"] * dfz + (c["pVy3"] + c["pVy4"] * dfz) * gamma)  # 4.E29
     alpha_y = alpha + shy  # 4.E20
     cy = c["pCy1"]  # 4.E21
-    mu_y = ((c["pDy1"] + c["pDy2"] * dfz) * (1.0 + c["ppy3"] * dpi + c["ppy4"] * dpi**2)  # 4.E23, BSP2010
-            * (1.0 - c["pDy3"] * gamma**2))
+    mu_y = (
+        (c["pDy1"] + c["pDy2"] * dfz)
+        * (1.0 + c["ppy3"] * dpi + c["ppy4"] * dpi**2)  # 4.E23, BSP2010
+        * (1.0 - c["pDy3"] * gamma**2)
+    )
     dy = mu_y * fz  # 4.E22
     ey = (c["pEy1"] + c["pEy2"] * dfz) * (1.0 - (c["pEy3"] + c["pEy4"] * gamma) * np.sign(alpha_y))  # 4.E24
     ey = np.minimum(ey, 1.0)  # E <= 1 (Pacejka 2006, §4.3.1)
-    kya = (c["pKy1"] * fz0_n * (1.0 + c["ppy1"] * dpi)  # 4.E25, BSP2010
-           * np.sin(2.0 * np.arctan(fz / (c["pKy2"] * fz0_n * (1.0 + c["ppy2"] * dpi))))
-           * (1.0 - c["pKy3"] * np.abs(gamma)))
+    kya = (
+        c["pKy1"]
+        * fz0_n
+        * (1.0 + c["ppy1"] * dpi)  # 4.E25, BSP2010
+        * np.sin(2.0 * np.arctan(fz / (c["pKy2"] * fz0_n * (1.0 + c["ppy2"] * dpi))))
+        * (1.0 - c["pKy3"] * np.abs(gamma))
+    )
     by = kya / _nonzero(cy * dy)  # 4.E26
     fy = sine_form(alpha_y, by, cy, dy, ey) + svy  # 4.E19
     return fy, dfz, shy, svy, kya, by, cy
@@ -193,21 +209,32 @@ def fy0(alpha_rad, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0
         Relative inflation pressure (p − p0)/p0.
     """
     c = {**defaults("fy"), **p}
-    return _fy0_parts(np.asarray(alpha_rad, float), np.asarray(fz_n, float), c, fz0_n,
-                      np.asarray(gamma_rad, float), np.asarray(dpi, float))[0]
+    return _fy0_parts(
+        np.asarray(alpha_rad, float),
+        np.asarray(fz_n, float),
+        c,
+        fz0_n,
+        np.asarray(gamma_rad, float),
+        np.asarray(dpi, float),
+    )[0]
 
 
 def fy0_cornering_stiffness_n_per_rad(fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     """Return Kyα of eq. 4.E25 (with the pressure terms of BSP2010), N/rad."""
     c = {**defaults("fy"), **p}
     fz = np.asarray(fz_n, dtype=float)
-    return (c["pKy1"] * fz0_n * (1.0 + c["ppy1"] * dpi)
-            * np.sin(2.0 * np.arctan(fz / (c["pKy2"] * fz0_n * (1.0 + c["ppy2"] * dpi))))
-            * (1.0 - c["pKy3"] * np.abs(gamma_rad)))
+    return (
+        c["pKy1"]
+        * fz0_n
+        * (1.0 + c["ppy1"] * dpi)
+        * np.sin(2.0 * np.arctan(fz / (c["pKy2"] * fz0_n * (1.0 + c["ppy2"] * dpi))))
+        * (1.0 - c["pKy3"] * np.abs(gamma_rad))
+    )
 
 
-def mz0(alpha_rad, fz_n, q: dict[str, float], p_fy: dict[str, float], fz0_n: float, r0_m: float,
-        gamma_rad=0.0, dpi=0.0):
+def mz0(
+    alpha_rad, fz_n, q: dict[str, float], p_fy: dict[str, float], fz0_n: float, r0_m: float, gamma_rad=0.0, dpi=0.0
+):
     """Pure-slip aligning moment Mz0 in N·m (Pacejka 2006, §4.3.2, eqs. 4.E31-4.E49).
 
     Mz0 = −t·Fy0 + Mzr, with the pneumatic trail t of a cosine-form Magic Formula and the
@@ -251,12 +278,23 @@ def pneumatic_trail_m(alpha_rad, fz_n, q: dict[str, float], fz0_n: float, r0_m: 
     dfz = (fz - fz0_n) / fz0_n
     sht = cq["qHz1"] + cq["qHz2"] * dfz + (cq["qHz3"] + cq["qHz4"] * dfz) * g  # 4.E35
     alpha_t = alpha + sht  # 4.E34
-    bt = (cq["qBz1"] + cq["qBz2"] * dfz + cq["qBz3"] * dfz**2) * (1.0 + cq["qBz4"] * g + cq["qBz5"] * np.abs(g))  # 4.E40
+    bt = (cq["qBz1"] + cq["qBz2"] * dfz + cq["qBz3"] * dfz**2) * (
+        1.0 + cq["qBz4"] * g + cq["qBz5"] * np.abs(g)
+    )  # 4.E40
     ct = cq["qCz1"]
-    dt = (fz * (cq["qDz1"] + cq["qDz2"] * dfz) * (1.0 + cq["ppz1"] * dpi)  # 4.E42, BSP2010
-          * (1.0 + cq["qDz3"] * g + cq["qDz4"] * g**2) * r0_m / fz0_n)
-    et = np.minimum((cq["qEz1"] + cq["qEz2"] * dfz + cq["qEz3"] * dfz**2)
-                    * (1.0 + (cq["qEz4"] + cq["qEz5"] * g) * (2.0 / np.pi) * np.arctan(bt * ct * alpha_t)), 1.0)
+    dt = (
+        fz
+        * (cq["qDz1"] + cq["qDz2"] * dfz)
+        * (1.0 + cq["ppz1"] * dpi)  # 4.E42, BSP2010
+        * (1.0 + cq["qDz3"] * g + cq["qDz4"] * g**2)
+        * r0_m
+        / fz0_n
+    )
+    et = np.minimum(
+        (cq["qEz1"] + cq["qEz2"] * dfz + cq["qEz3"] * dfz**2)
+        * (1.0 + (cq["qEz4"] + cq["qEz5"] * g) * (2.0 / np.pi) * np.arctan(bt * ct * alpha_t)),
+        1.0,
+    )
     return cosine_form(alpha_t, bt, ct, dt, et) * np.cos(alpha)
 
 
@@ -277,11 +315,16 @@ def fx0(kappa, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     shx = c["pHx1"] + c["pHx2"] * dfz  # 4.E17
     kx = k + shx  # 4.E10
     cx = c["pCx1"]  # 4.E11
-    mu_x = ((c["pDx1"] + c["pDx2"] * dfz) * (1.0 + c["ppx3"] * dpi + c["ppx4"] * dpi**2)  # 4.E13, BSP2010
-            * (1.0 - c["pDx3"] * g**2))
+    mu_x = (
+        (c["pDx1"] + c["pDx2"] * dfz)
+        * (1.0 + c["ppx3"] * dpi + c["ppx4"] * dpi**2)  # 4.E13, BSP2010
+        * (1.0 - c["pDx3"] * g**2)
+    )
     dx = mu_x * fz  # 4.E12
     ex = np.minimum((c["pEx1"] + c["pEx2"] * dfz + c["pEx3"] * dfz**2) * (1.0 - c["pEx4"] * np.sign(kx)), 1.0)  # 4.E14
-    kxk = fz * (c["pKx1"] + c["pKx2"] * dfz) * np.exp(c["pKx3"] * dfz) * (1.0 + c["ppx1"] * dpi + c["ppx2"] * dpi**2)  # 4.E15
+    kxk = (
+        fz * (c["pKx1"] + c["pKx2"] * dfz) * np.exp(c["pKx3"] * dfz) * (1.0 + c["ppx1"] * dpi + c["ppx2"] * dpi**2)
+    )  # 4.E15
     bx = kxk / _nonzero(cx * dx)  # 4.E16
     svx = fz * (c["pVx1"] + c["pVx2"] * dfz)  # 4.E18
     return sine_form(kx, bx, cx, dx, ex) + svx  # 4.E9

@@ -7,10 +7,11 @@ that the files the manifest names exist and reads them, :mod:`dossier.project.lo
 
 from __future__ import annotations
 
-from ..standards import sidewall
 from ..common.errors import Problem
+from ..standards import sidewall
 from .manifest import REQUIRED_CHANNELS, SWEEP_CHANNELS, quantity_value
 from .validation import suggest
+
 
 def check_references(data: dict, problems: list[Problem]) -> None:
     """Append a located problem for every inconsistency between the keys of `data`."""
@@ -24,8 +25,13 @@ def check_references(data: dict, problems: list[Problem]) -> None:
             seen.add(s["id"])
     for i, s in enumerate(specimens):
         if s and s.get("size") and sidewall.parse_size(s["size"]) is None:
-            problems.append(Problem(f"specimens[{i}].size", f"cannot read {s['size']!r} as a size designation; "
-                                    "expected e.g. '225/45 R17 94W', 'LT265/75R16 123/120R' or '295/75R22.5 144/141L'"))
+            problems.append(
+                Problem(
+                    f"specimens[{i}].size",
+                    f"cannot read {s['size']!r} as a size designation; "
+                    "expected e.g. '225/45 R17 94W', 'LT265/75R16 123/120R' or '295/75R22.5 144/141L'",
+                )
+            )
         if s and s.get("tin"):
             try:
                 sidewall.parse_tin(s["tin"])
@@ -39,18 +45,30 @@ def check_references(data: dict, problems: list[Problem]) -> None:
             continue
         sid = run.get("specimen")
         if sid and ids and sid not in ids:
-            problems.append(Problem(f"runs[{i}].specimen", f"no specimen with id {sid!r}{suggest(sid, ids)}; known ids: {', '.join(ids)}"))
+            problems.append(
+                Problem(
+                    f"runs[{i}].specimen",
+                    f"no specimen with id {sid!r}{suggest(sid, ids)}; known ids: {', '.join(ids)}",
+                )
+            )
         columns = run.get("columns") or {}
         if run.get("columns") is not None:
             sweep = run.get("sweep") or "slip_angle"
             for ch in REQUIRED_CHANNELS + SWEEP_CHANNELS.get(sweep, ()):
                 if ch not in columns:
-                    problems.append(Problem(f"runs[{i}].columns.{ch}",
-                                            f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})"))
+                    problems.append(
+                        Problem(
+                            f"runs[{i}].columns.{ch}",
+                            f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})",
+                        )
+                    )
         cambers = run.get("camber_setpoints_deg") or []
         if run.get("columns") is not None and len(cambers) > 1 and "inclination" not in columns:
-            problems.append(Problem(f"runs[{i}].columns.inclination",
-                                    f"is required when the run has {len(cambers)} camber set-points"))
+            problems.append(
+                Problem(
+                    f"runs[{i}].columns.inclination", f"is required when the run has {len(cambers)} camber set-points"
+                )
+            )
         if run.get("delimiter") and run.get("decimal") and run["delimiter"] == run["decimal"]:
             problems.append(Problem(f"runs[{i}].decimal", f"cannot equal the delimiter {run['delimiter']!r}"))
     for i, t in enumerate(data.get("targets") or []):
@@ -65,10 +83,14 @@ def check_references(data: dict, problems: list[Problem]) -> None:
         elif not nominal and not kinds:
             problems.append(Problem(f"targets[{i}]", "needs a window: minimum, maximum, or nominal and tolerance"))
         elif t.get("minimum") is not None and t.get("maximum") is not None and t["minimum"] > t["maximum"]:
-            problems.append(Problem(f"targets[{i}].minimum", f"is above the maximum ({t['minimum']!r} > {t['maximum']!r})"))
+            problems.append(
+                Problem(f"targets[{i}].minimum", f"is above the maximum ({t['minimum']!r} > {t['maximum']!r})")
+            )
         for j, sid in enumerate(t.get("specimens") or []):
             if sid and ids and sid not in ids:
-                problems.append(Problem(f"targets[{i}].specimens[{j}]", f"no specimen with id {sid!r}{suggest(sid, ids)}"))
+                problems.append(
+                    Problem(f"targets[{i}].specimens[{j}]", f"no specimen with id {sid!r}{suggest(sid, ids)}")
+                )
     so = data.get("signoff")
     if so and so.get("status") == "released":
         approvers = [p for p in (so.get("people") or []) if p and p.get("role") == "approver" and p.get("date")]
@@ -83,16 +105,22 @@ def check_references(data: dict, problems: list[Problem]) -> None:
         by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
         by_load = v.get("front_axle_load") is not None or v.get("rear_axle_load") is not None
         if by_mass == by_load:
-            problems.append(Problem("vehicle", "give either mass and cg_to_front_axle, or front_axle_load and rear_axle_load"))
+            problems.append(
+                Problem("vehicle", "give either mass and cg_to_front_axle, or front_axle_load and rear_axle_load")
+            )
         elif by_mass and (v.get("mass") is None or v.get("cg_to_front_axle") is None):
             problems.append(Problem("vehicle", "mass and cg_to_front_axle go together; one of them is missing"))
         elif by_load and (v.get("front_axle_load") is None or v.get("rear_axle_load") is None):
-            problems.append(Problem("vehicle", "front_axle_load and rear_axle_load go together; one of them is missing"))
+            problems.append(
+                Problem("vehicle", "front_axle_load and rear_axle_load go together; one of them is missing")
+            )
         elif by_mass and v.get("wheelbase") and v.get("cg_to_front_axle"):
             L = quantity_value(v["wheelbase"], "length")
             b = quantity_value(v["cg_to_front_axle"], "length")
             if not 0 < b < L:
-                problems.append(Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m"))
+                problems.append(
+                    Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m")
+                )
     drift = data.get("drift")
     if drift and drift.get("control") and ids:
         ctl = drift["control"]
@@ -103,9 +131,15 @@ def check_references(data: dict, problems: list[Problem]) -> None:
             problems.append(Problem("drift.control", f"specimen {ctl!r} must have role 'control'; got {roles[ctl]!r}"))
         untimed = [i for i, r in enumerate(data.get("runs") or []) if r and not r.get("tested_at")]
         if untimed:
-            problems.append(Problem(f"runs[{untimed[0]}].tested_at",
-                                    "is required for every run when [drift] is set (drift is estimated over time)"))
+            problems.append(
+                Problem(
+                    f"runs[{untimed[0]}].tested_at",
+                    "is required for every run when [drift] is set (drift is estimated over time)",
+                )
+            )
     used = {r.get("specimen") for r in (data.get("runs") or []) if r}
     for i, s in enumerate(specimens):
         if s and s.get("id") and s["id"] not in used and data.get("runs"):
-            problems.append(Problem(f"specimens[{i}]", f"specimen {s['id']!r} has no rig run; add a [[runs]] entry or remove it"))
+            problems.append(
+                Problem(f"specimens[{i}]", f"specimen {s['id']!r} has no rig run; add a [[runs]] entry or remove it")
+            )

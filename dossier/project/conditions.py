@@ -17,6 +17,7 @@ def nominal_load_n(manifest: Manifest) -> float:
         return manifest.fit.nominal_load_n
     return float(statistics.median(load for r in manifest.runs for load in r.load_setpoints_n))
 
+
 def nominal_pressure_kpa(manifest: Manifest) -> float:
     """p0: the manifest's choice, else the most common run pressure (to 1 kPa; ties: the lowest)."""
     if manifest.fit.nominal_pressure_kpa:
@@ -25,12 +26,14 @@ def nominal_pressure_kpa(manifest: Manifest) -> float:
     best = max(sorted(set(rounded)), key=rounded.count)
     return float(next(r.pressure_kpa for r in manifest.runs if round(r.pressure_kpa) == best))
 
+
 def rated_load_n(specimen) -> float | None:
     """The rated load per tire: the manifest's value, else from the load index of the size."""
     if specimen.rated_load_n:
         return specimen.rated_load_n
     size = parse_size(specimen.size)
     return None if size is None else size.rated_load_n
+
 
 def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
     """R0 of a specimen: the manifest's value, else from its size designation."""
@@ -40,6 +43,8 @@ def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
     size = parse_size(s.size)
     if size is None:
         i = manifest.specimens.index(s)
-        raise StageError(f"specimens[{i}].size: cannot read a size from {s.size!r} to get the unloaded radius "
-                         f"for the aligning-moment model; set specimens[{i}].unloaded_radius_m")
+        raise StageError(
+            f"specimens[{i}].size: cannot read a size from {s.size!r} to get the unloaded radius "
+            f"for the aligning-moment model; set specimens[{i}].unloaded_radius_m"
+        )
     return size.unloaded_radius_m

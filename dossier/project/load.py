@@ -37,7 +37,7 @@ class Project:
     def templates(self) -> dict[str, bytes]:
         """The template overrides, keyed by their path inside ``templates/``."""
         prefix = f"{TEMPLATES}/"
-        return {k[len(prefix):]: v for k, v in self.files.items() if k.startswith(prefix)}
+        return {k[len(prefix) :]: v for k, v in self.files.items() if k.startswith(prefix)}
 
 
 def load_project(project_dir: Path) -> Project:
@@ -47,13 +47,19 @@ def load_project(project_dir: Path) -> Project:
     if not project_dir.is_dir():
         raise ManifestError(str(project_dir), [Problem("project", "is not a folder")])
     if not path.is_file():
-        raise ManifestError(str(path), [Problem(MANIFEST_NAME, f"not found in {project_dir}; a project folder needs one")])
+        raise ManifestError(
+            str(path), [Problem(MANIFEST_NAME, f"not found in {project_dir}; a project folder needs one")]
+        )
     try:
         raw_bytes = path.read_bytes()
     except OSError as exc:
         raise ManifestError(str(path), [Problem("file", f"cannot be read: {exc.strerror}")]) from None
-    return _project(raw_bytes, project_dir, lambda key, rel, problems: _read_named(project_dir, key, rel, problems),
-                    lambda: _read_templates(project_dir))
+    return _project(
+        raw_bytes,
+        project_dir,
+        lambda key, rel, problems: _read_named(project_dir, key, rel, problems),
+        lambda: _read_templates(project_dir),
+    )
 
 
 def project_from_files(files: dict[str, bytes], project_dir: Path) -> Project:

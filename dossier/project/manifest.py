@@ -40,7 +40,6 @@ REQUIRED_CHANNELS = ("time", "fz")
 SWEEP_CHANNELS = {"slip_angle": ("slip_angle", "fy"), "slip_ratio": ("slip_ratio", "fx")}
 
 
-
 @dataclass(frozen=True)
 class DocumentInfo:
     title: str
@@ -221,11 +220,22 @@ class Manifest:
 def typed_manifest(data: dict, project_dir: Path) -> Manifest:
     """The :class:`Manifest` of a document that passed validation."""
     d = data["document"]
-    document = DocumentInfo(d["title"], d["number"], d["revision"], d["customer"], d["program"],
-                            d["supplier"], tuple(d["authors"]), d["date"])
-    specimens = tuple(Specimen(s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"],
-                               s["unloaded_radius_m"], s["tin"])
-                      for s in data["specimens"])
+    document = DocumentInfo(
+        d["title"],
+        d["number"],
+        d["revision"],
+        d["customer"],
+        d["program"],
+        d["supplier"],
+        tuple(d["authors"]),
+        d["date"],
+    )
+    specimens = tuple(
+        Specimen(
+            s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"], s["unloaded_radius_m"], s["tin"]
+        )
+        for s in data["specimens"]
+    )
     runs = []
     for i, r in enumerate(data["runs"]):
         loads = None
@@ -233,16 +243,26 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
             force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
             loads = tuple(v * force_factor for v in r["load_setpoints"]["values"])
         pressure_factor = units.factor_to_internal("pressure", r["pressure"]["unit"])
-        runs.append(RunSpec(
-            index=i, specimen=r["specimen"], file=r["file"], lab=r["lab"] or "",
-            axis_convention=r["axis_convention"], delimiter=r["delimiter"], decimal=r["decimal"],
-            header_line=r["header_line"], skip_after_header=r["skip_after_header"],
-            columns={k: ColumnSpec(v["name"], v["unit"]) for k, v in r["columns"].items()},
-            load_setpoints_n=loads,
-            camber_setpoints_deg=tuple(r["camber_setpoints_deg"]) if r["camber_setpoints_deg"] else None,
-            pressure_kpa=r["pressure"]["value"] * pressure_factor,
-            sweep=r["sweep"], rolling_direction=r["rolling_direction"], tested_at=r["tested_at"],
-        ))
+        runs.append(
+            RunSpec(
+                index=i,
+                specimen=r["specimen"],
+                file=r["file"],
+                lab=r["lab"] or "",
+                axis_convention=r["axis_convention"],
+                delimiter=r["delimiter"],
+                decimal=r["decimal"],
+                header_line=r["header_line"],
+                skip_after_header=r["skip_after_header"],
+                columns={k: ColumnSpec(v["name"], v["unit"]) for k, v in r["columns"].items()},
+                load_setpoints_n=loads,
+                camber_setpoints_deg=tuple(r["camber_setpoints_deg"]) if r["camber_setpoints_deg"] else None,
+                pressure_kpa=r["pressure"]["value"] * pressure_factor,
+                sweep=r["sweep"],
+                rolling_direction=r["rolling_direction"],
+                tested_at=r["tested_at"],
+            )
+        )
     cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
     fit = FitSettings(**data["fit"]) if data.get("fit") else FitSettings()
     drift = DriftSettings(**data["drift"]) if data.get("drift") else None
@@ -250,20 +270,45 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
     metrics = MetricSettings(tuple(met["loads_n"] or ()), met["crosscheck_threshold_pct"]) if met else MetricSettings()
     targets = tuple(_target(i, t) for i, t in enumerate(data.get("targets") or []))
     so = data.get("signoff")
-    signoff = SignOff(so["status"], tuple(Person(p["name"], p["role"], p["organisation"], p["date"])
-                                         for p in so["people"])) if so else SignOff("draft", ())
+    signoff = (
+        SignOff(so["status"], tuple(Person(p["name"], p["role"], p["organisation"], p["date"]) for p in so["people"]))
+        if so
+        else SignOff("draft", ())
+    )
     revisions = tuple(Revision(r["revision"], r["date"], r["description"]) for r in data.get("revisions") or [])
     narrative = {k: v for k, v in (data.get("narrative") or {}).items() if v}
-    return Manifest(Path(project_dir), document, specimens, tuple(runs), cond, fit, drift, metrics, targets,
-                    _vehicle(data["vehicle"]) if data.get("vehicle") else None, signoff, revisions, narrative)
+    return Manifest(
+        Path(project_dir),
+        document,
+        specimens,
+        tuple(runs),
+        cond,
+        fit,
+        drift,
+        metrics,
+        targets,
+        _vehicle(data["vehicle"]) if data.get("vehicle") else None,
+        signoff,
+        revisions,
+        narrative,
+    )
 
 
 def _target(i: int, t: dict) -> Target:
     lo, hi = t["minimum"], t["maximum"]
     if t["nominal"] is not None:
         lo, hi = t["nominal"] - t["tolerance"], t["nominal"] + t["tolerance"]
-    return Target(i, t["metric"], t["load_n"], lo, hi, t["camber_deg"], t["pressure_kpa"], t["reference"],
-                  tuple(t["specimens"]) if t["specimens"] else None)
+    return Target(
+        i,
+        t["metric"],
+        t["load_n"],
+        lo,
+        hi,
+        t["camber_deg"],
+        t["pressure_kpa"],
+        t["reference"],
+        tuple(t["specimens"]) if t["specimens"] else None,
+    )
 
 
 def quantity_value(q: dict, quantity: str) -> float:
@@ -274,9 +319,18 @@ def quantity_value(q: dict, quantity: str) -> float:
 def _vehicle(v: dict) -> VehicleSpec:
     L = quantity_value(v["wheelbase"], "length")
     if v["mass"]:
-        front, rear = static_axle_loads_n(quantity_value(v["mass"], "mass"), L, quantity_value(v["cg_to_front_axle"], "length"))
+        front, rear = static_axle_loads_n(
+            quantity_value(v["mass"], "mass"), L, quantity_value(v["cg_to_front_axle"], "length")
+        )
     else:
         front, rear = quantity_value(v["front_axle_load"], "force"), quantity_value(v["rear_axle_load"], "force")
     speeds = tuple(v["speeds_kmh"]) if v["speeds_kmh"] else tuple(float(x) for x in range(20, 201, 10))
-    return VehicleSpec(v["name"], L, front, rear, AxleSpec(v["front"]["tires"], v["front"]["kind"]),
-                       AxleSpec(v["rear"]["tires"], v["rear"]["kind"]), speeds)
+    return VehicleSpec(
+        v["name"],
+        L,
+        front,
+        rear,
+        AxleSpec(v["front"]["tires"], v["front"]["kind"]),
+        AxleSpec(v["rear"]["tires"], v["rear"]["kind"]),
+        speeds,
+    )

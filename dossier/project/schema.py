@@ -12,18 +12,51 @@ from dataclasses import dataclass
 
 from ..standards import axes
 from .catalogue import METRICS
-from .manifest import (CHANNELS, SIGNOFF_ROLES, STATUSES, ROLES, SWEEPS, ConditioningSettings, DriftSettings,
-                       FitSettings, MetricSettings, RunSpec)
-from .validation import (Boolean, Choice, Date, DateTime, Integer, Key, ListOf, MapOf, Number, Problem,
-                         RelativePath, Table, Text, Unit, default_of, options_of, shown, suggest)
+from .manifest import (
+    CHANNELS,
+    ROLES,
+    SIGNOFF_ROLES,
+    STATUSES,
+    SWEEPS,
+    ConditioningSettings,
+    DriftSettings,
+    FitSettings,
+    MetricSettings,
+    RunSpec,
+)
+from .validation import (
+    Boolean,
+    Choice,
+    Date,
+    DateTime,
+    Integer,
+    Key,
+    ListOf,
+    MapOf,
+    Number,
+    Problem,
+    RelativePath,
+    Table,
+    Text,
+    Unit,
+    default_of,
+    options_of,
+    shown,
+    suggest,
+)
+
 
 def _quantity(quantity: str) -> Table:
     return Table({"value": Key(Number(minimum=0, exclusive_minimum=True)), "unit": Key(Unit(quantity))})
 
 
 def _axle() -> Table:
-    return Table({"tires": Key(Integer(minimum=1)),
-                  "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single")})
+    return Table(
+        {
+            "tires": Key(Integer(minimum=1)),
+            "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single"),
+        }
+    )
 
 
 @dataclass(frozen=True)
@@ -39,127 +72,252 @@ class MetricName:
 
 
 def _column(quantity: str) -> Table:
-    return Table({
-        "name": Key(Text(), help="the column's header text in the file"),
-        "unit": Key(Unit(quantity)),
-    })
+    return Table(
+        {
+            "name": Key(Text(), help="the column's header text in the file"),
+            "unit": Key(Unit(quantity)),
+        }
+    )
 
 
-MANIFEST_SCHEMA = Table({
-    "document": Key(Table({
-        "title": Key(Text()),
-        "number": Key(Text(), help="the document number, e.g. 'NTC-EVD-0001'"),
-        "revision": Key(Text()),
-        "customer": Key(Text()),
-        "program": Key(Text(), help="the vehicle program"),
-        "supplier": Key(Text(), required=False),
-        "authors": Key(ListOf(Text(), min_items=1)),
-        "date": Key(Date()),
-    })),
-    "specimens": Key(ListOf(Table({
-        "id": Key(Text()),
-        "role": Key(Choice(ROLES)),
-        "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
-        "construction": Key(Text(), required=False, default=""),
-        "rated_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
-        "tin": Key(Text(), required=False, help="DOT tire identification number, e.g. 'DOT 7HX2 VK3R 4126'"),
-        "unloaded_radius_m": Key(Number(minimum=0.1, maximum=1.5), required=False,
-                                 help="R0 for the aligning-moment model; default from the size designation"),
-    }), min_items=1)),
-    "runs": Key(ListOf(Table({
-        "specimen": Key(Text()),
-        "file": Key(RelativePath()),
-        "lab": Key(Text(), required=False, default=""),
-        "axis_convention": Key(Choice(axes.CONVENTIONS)),
-        "delimiter": Key(Choice((",", ";", "\t")), required=False, default=","),
-        "decimal": Key(Choice((".", ",")), required=False, default="."),
-        "header_line": Key(Integer(minimum=1), required=False, default=1),
-        "skip_after_header": Key(Integer(minimum=0), required=False, default=0),
-        "columns": Key(MapOf({name: _column(q) for name, q in CHANNELS.items()})),
-        "sweep": Key(Choice(SWEEPS), required=False, default=default_of(RunSpec, "sweep")),
-        "rolling_direction": Key(Choice(("forward", "reverse")), required=False, default=default_of(RunSpec, "rolling_direction")),
-        "tested_at": Key(DateTime(), required=False),
-        "load_setpoints": Key(Table({
-            "values": Key(ListOf(Number(minimum=0, exclusive_minimum=True), min_items=1)),
-            "unit": Key(Unit("force")),
-        }), required=False, help="nominal normal loads of the run, e.g. { values = [2, 4, 6], unit = 'kN' }"),
-        "camber_setpoints_deg": Key(ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False),
-        "pressure": Key(Table({
-            "value": Key(Number(minimum=0, exclusive_minimum=True)),
-            "unit": Key(Unit("pressure")),
-        }), help="the nominal inflation pressure of the run"),
-    }), min_items=1)),
-    "conditioning": Key(options_of(ConditioningSettings, {
-        "settling_s": Number(minimum=0),
-        "load_tolerance_pct": Number(minimum=0.5, maximum=50),
-        "camber_tolerance_deg": Number(minimum=0.01, maximum=5),
-        "slip_bin_deg": Number(minimum=0.05, maximum=2),
-        "slip_ratio_bin": Number(minimum=0.001, maximum=0.05),
-        "slip_settling_s": Number(minimum=0, maximum=10),
-        "sweep_run_in_deg": Number(minimum=0, maximum=5),
-        "sweep_run_in_ratio": Number(minimum=0, maximum=0.1),
-        "min_samples_per_bin": Integer(minimum=1),
-        "spike_threshold_mad": Number(minimum=2),
-        "min_slip_range_deg": Number(minimum=0.5, maximum=30),
-        "min_points_per_curve": Integer(minimum=5),
-        "pressure_tolerance_pct": Number(minimum=0.1, maximum=50),
-    }), required=False, default=None),
-    "metrics": Key(options_of(MetricSettings, {
-        "loads_n": ListOf(Number(minimum=0, exclusive_minimum=True)),
-        "crosscheck_threshold_pct": Number(minimum=0.1, maximum=50),
-    }, help={"loads_n": "extra loads to report metrics at, besides the measured ones"}), required=False, default=None),
-    "signoff": Key(Table({
-        "status": Key(Choice(STATUSES)),
-        "people": Key(ListOf(Table({
-            "name": Key(Text()),
-            "role": Key(Choice(SIGNOFF_ROLES)),
-            "organisation": Key(Text(), required=False),
-            "date": Key(Date(), required=False, help="when this person signed; required for the approver of a released revision"),
-        }), min_items=1)),
-    }), required=False, default=None),
-    "revisions": Key(ListOf(Table({
-        "revision": Key(Text()),
-        "date": Key(Date()),
-        "description": Key(Text()),
-    })), required=False, default=[]),
-    "narrative": Key(Table({
-        "summary": Key(RelativePath(), required=False),
-        "test_notes": Key(RelativePath(), required=False),
-        "conclusions": Key(RelativePath(), required=False),
-    }), required=False, default=None),
-    "targets": Key(ListOf(Table({
-        "metric": Key(MetricName()),
-        "load_n": Key(Number(minimum=0, exclusive_minimum=True)),
-        "minimum": Key(Number(), required=False),
-        "maximum": Key(Number(), required=False),
-        "nominal": Key(Number(), required=False),
-        "tolerance": Key(Number(minimum=0, exclusive_minimum=True), required=False),
-        "camber_deg": Key(Number(minimum=-15, maximum=15), required=False, default=0.0),
-        "pressure_kpa": Key(Number(minimum=0, exclusive_minimum=True), required=False),
-        "reference": Key(Text(), help="where the target comes from, e.g. the customer specification's clause"),
-        "specimens": Key(ListOf(Text(), min_items=1), required=False),
-    })), required=False, default=[]),
-    "vehicle": Key(Table({
-        "name": Key(Text()),
-        "wheelbase": Key(_quantity("length")),
-        "mass": Key(_quantity("mass"), required=False),
-        "cg_to_front_axle": Key(_quantity("length"), required=False,
-                                help="distance from the front axle back to the centre of gravity"),
-        "front_axle_load": Key(_quantity("force"), required=False),
-        "rear_axle_load": Key(_quantity("force"), required=False),
-        "front": Key(_axle()),
-        "rear": Key(_axle()),
-        "speeds_kmh": Key(ListOf(Number(minimum=1, maximum=400), min_items=2), required=False),
-    }), required=False, default=None),
-    "drift": Key(options_of(DriftSettings, {
-        "control": Text(),
-        "correct": Boolean(),
-    }, help={"control": "id of the control specimen re-tested through the session"}), required=False, default=None),
-    "fit": Key(options_of(FitSettings, {
-        "nominal_load_n": Number(minimum=0, exclusive_minimum=True),
-        "nominal_pressure_kpa": Number(minimum=0, exclusive_minimum=True),
-        "leave_one_load_out": Boolean(),
-        "loss": Choice(("linear", "soft_l1", "huber")),
-        "max_evaluations": Integer(minimum=50),
-    }), required=False, default=None),
-})
+MANIFEST_SCHEMA = Table(
+    {
+        "document": Key(
+            Table(
+                {
+                    "title": Key(Text()),
+                    "number": Key(Text(), help="the document number, e.g. 'NTC-EVD-0001'"),
+                    "revision": Key(Text()),
+                    "customer": Key(Text()),
+                    "program": Key(Text(), help="the vehicle program"),
+                    "supplier": Key(Text(), required=False),
+                    "authors": Key(ListOf(Text(), min_items=1)),
+                    "date": Key(Date()),
+                }
+            )
+        ),
+        "specimens": Key(
+            ListOf(
+                Table(
+                    {
+                        "id": Key(Text()),
+                        "role": Key(Choice(ROLES)),
+                        "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
+                        "construction": Key(Text(), required=False, default=""),
+                        "rated_load_n": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+                        "tin": Key(
+                            Text(), required=False, help="DOT tire identification number, e.g. 'DOT 7HX2 VK3R 4126'"
+                        ),
+                        "unloaded_radius_m": Key(
+                            Number(minimum=0.1, maximum=1.5),
+                            required=False,
+                            help="R0 for the aligning-moment model; default from the size designation",
+                        ),
+                    }
+                ),
+                min_items=1,
+            )
+        ),
+        "runs": Key(
+            ListOf(
+                Table(
+                    {
+                        "specimen": Key(Text()),
+                        "file": Key(RelativePath()),
+                        "lab": Key(Text(), required=False, default=""),
+                        "axis_convention": Key(Choice(axes.CONVENTIONS)),
+                        "delimiter": Key(Choice((",", ";", "\t")), required=False, default=","),
+                        "decimal": Key(Choice((".", ",")), required=False, default="."),
+                        "header_line": Key(Integer(minimum=1), required=False, default=1),
+                        "skip_after_header": Key(Integer(minimum=0), required=False, default=0),
+                        "columns": Key(MapOf({name: _column(q) for name, q in CHANNELS.items()})),
+                        "sweep": Key(Choice(SWEEPS), required=False, default=default_of(RunSpec, "sweep")),
+                        "rolling_direction": Key(
+                            Choice(("forward", "reverse")),
+                            required=False,
+                            default=default_of(RunSpec, "rolling_direction"),
+                        ),
+                        "tested_at": Key(DateTime(), required=False),
+                        "load_setpoints": Key(
+                            Table(
+                                {
+                                    "values": Key(ListOf(Number(minimum=0, exclusive_minimum=True), min_items=1)),
+                                    "unit": Key(Unit("force")),
+                                }
+                            ),
+                            required=False,
+                            help="nominal normal loads of the run, e.g. { values = [2, 4, 6], unit = 'kN' }",
+                        ),
+                        "camber_setpoints_deg": Key(
+                            ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False
+                        ),
+                        "pressure": Key(
+                            Table(
+                                {
+                                    "value": Key(Number(minimum=0, exclusive_minimum=True)),
+                                    "unit": Key(Unit("pressure")),
+                                }
+                            ),
+                            help="the nominal inflation pressure of the run",
+                        ),
+                    }
+                ),
+                min_items=1,
+            )
+        ),
+        "conditioning": Key(
+            options_of(
+                ConditioningSettings,
+                {
+                    "settling_s": Number(minimum=0),
+                    "load_tolerance_pct": Number(minimum=0.5, maximum=50),
+                    "camber_tolerance_deg": Number(minimum=0.01, maximum=5),
+                    "slip_bin_deg": Number(minimum=0.05, maximum=2),
+                    "slip_ratio_bin": Number(minimum=0.001, maximum=0.05),
+                    "slip_settling_s": Number(minimum=0, maximum=10),
+                    "sweep_run_in_deg": Number(minimum=0, maximum=5),
+                    "sweep_run_in_ratio": Number(minimum=0, maximum=0.1),
+                    "min_samples_per_bin": Integer(minimum=1),
+                    "spike_threshold_mad": Number(minimum=2),
+                    "min_slip_range_deg": Number(minimum=0.5, maximum=30),
+                    "min_points_per_curve": Integer(minimum=5),
+                    "pressure_tolerance_pct": Number(minimum=0.1, maximum=50),
+                },
+            ),
+            required=False,
+            default=None,
+        ),
+        "metrics": Key(
+            options_of(
+                MetricSettings,
+                {
+                    "loads_n": ListOf(Number(minimum=0, exclusive_minimum=True)),
+                    "crosscheck_threshold_pct": Number(minimum=0.1, maximum=50),
+                },
+                help={"loads_n": "extra loads to report metrics at, besides the measured ones"},
+            ),
+            required=False,
+            default=None,
+        ),
+        "signoff": Key(
+            Table(
+                {
+                    "status": Key(Choice(STATUSES)),
+                    "people": Key(
+                        ListOf(
+                            Table(
+                                {
+                                    "name": Key(Text()),
+                                    "role": Key(Choice(SIGNOFF_ROLES)),
+                                    "organisation": Key(Text(), required=False),
+                                    "date": Key(
+                                        Date(),
+                                        required=False,
+                                        help="when this person signed; required for the approver of a released "
+                                        "revision",
+                                    ),
+                                }
+                            ),
+                            min_items=1,
+                        )
+                    ),
+                }
+            ),
+            required=False,
+            default=None,
+        ),
+        "revisions": Key(
+            ListOf(
+                Table(
+                    {
+                        "revision": Key(Text()),
+                        "date": Key(Date()),
+                        "description": Key(Text()),
+                    }
+                )
+            ),
+            required=False,
+            default=[],
+        ),
+        "narrative": Key(
+            Table(
+                {
+                    "summary": Key(RelativePath(), required=False),
+                    "test_notes": Key(RelativePath(), required=False),
+                    "conclusions": Key(RelativePath(), required=False),
+                }
+            ),
+            required=False,
+            default=None,
+        ),
+        "targets": Key(
+            ListOf(
+                Table(
+                    {
+                        "metric": Key(MetricName()),
+                        "load_n": Key(Number(minimum=0, exclusive_minimum=True)),
+                        "minimum": Key(Number(), required=False),
+                        "maximum": Key(Number(), required=False),
+                        "nominal": Key(Number(), required=False),
+                        "tolerance": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+                        "camber_deg": Key(Number(minimum=-15, maximum=15), required=False, default=0.0),
+                        "pressure_kpa": Key(Number(minimum=0, exclusive_minimum=True), required=False),
+                        "reference": Key(
+                            Text(), help="where the target comes from, e.g. the customer specification's clause"
+                        ),
+                        "specimens": Key(ListOf(Text(), min_items=1), required=False),
+                    }
+                )
+            ),
+            required=False,
+            default=[],
+        ),
+        "vehicle": Key(
+            Table(
+                {
+                    "name": Key(Text()),
+                    "wheelbase": Key(_quantity("length")),
+                    "mass": Key(_quantity("mass"), required=False),
+                    "cg_to_front_axle": Key(
+                        _quantity("length"),
+                        required=False,
+                        help="distance from the front axle back to the centre of gravity",
+                    ),
+                    "front_axle_load": Key(_quantity("force"), required=False),
+                    "rear_axle_load": Key(_quantity("force"), required=False),
+                    "front": Key(_axle()),
+                    "rear": Key(_axle()),
+                    "speeds_kmh": Key(ListOf(Number(minimum=1, maximum=400), min_items=2), required=False),
+                }
+            ),
+            required=False,
+            default=None,
+        ),
+        "drift": Key(
+            options_of(
+                DriftSettings,
+                {
+                    "control": Text(),
+                    "correct": Boolean(),
+                },
+                help={"control": "id of the control specimen re-tested through the session"},
+            ),
+            required=False,
+            default=None,
+        ),
+        "fit": Key(
+            options_of(
+                FitSettings,
+                {
+                    "nominal_load_n": Number(minimum=0, exclusive_minimum=True),
+                    "nominal_pressure_kpa": Number(minimum=0, exclusive_minimum=True),
+                    "leave_one_load_out": Boolean(),
+                    "loss": Choice(("linear", "soft_l1", "huber")),
+                    "max_evaluations": Integer(minimum=50),
+                },
+            ),
+            required=False,
+            default=None,
+        ),
+    }
+)

@@ -11,9 +11,10 @@ from __future__ import annotations
 import dataclasses
 import datetime as dt
 import difflib
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import PurePosixPath
-from typing import Any, Callable
+from typing import Any
 
 from ..common.errors import Problem
 from ..standards import units
@@ -22,8 +23,15 @@ Checker = Callable[[Any, str, list[Problem]], Any]
 
 
 def _type_name(value: Any) -> str:
-    return {str: "a string", int: "an integer", float: "a number", bool: "true/false",
-            list: "a list", dict: "a table", dt.date: "a date"}.get(type(value), type(value).__name__)
+    return {
+        str: "a string",
+        int: "an integer",
+        float: "a number",
+        bool: "true/false",
+        list: "a list",
+        dict: "a table",
+        dt.date: "a date",
+    }.get(type(value), type(value).__name__)
 
 
 @dataclass(frozen=True)
@@ -60,7 +68,12 @@ class Number:
     exclusive_minimum: bool = False
 
     def __call__(self, value, path, problems):
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value or value in (float("inf"), float("-inf")):
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, (int, float))
+            or value != value
+            or value in (float("inf"), float("-inf"))
+        ):
             problems.append(Problem(path, f"must be a finite number; got {shown(value)}"))
             return None
         if self.minimum is not None and (value < self.minimum or (self.exclusive_minimum and value == self.minimum)):
@@ -125,7 +138,12 @@ class Unit:
         accepted = units.accepted_units(self.quantity)
         if value not in accepted:
             hint = suggest(value, accepted) if isinstance(value, str) else ""
-            problems.append(Problem(path, f"unknown unit {shown(value)} for {self.quantity}; expected one of {', '.join(accepted)}{hint}"))
+            problems.append(
+                Problem(
+                    path,
+                    f"unknown unit {shown(value)} for {self.quantity}; expected one of {', '.join(accepted)}{hint}",
+                )
+            )
             return None
         return value
 
@@ -205,7 +223,12 @@ class MapOf:
         out = {}
         for name, item in value.items():
             if name not in self.allowed:
-                problems.append(Problem(_join(path, name), f"unknown channel{suggest(name, list(self.allowed))}; channels are {', '.join(self.allowed)}"))
+                problems.append(
+                    Problem(
+                        _join(path, name),
+                        f"unknown channel{suggest(name, list(self.allowed))}; channels are {', '.join(self.allowed)}",
+                    )
+                )
                 continue
             out[name] = self.allowed[name](item, _join(path, name), problems)
         return out
@@ -228,7 +251,6 @@ def suggest(word: str, options) -> str:
     return f" (did you mean '{close[0]}'?)" if close else ""
 
 
-
 def options_of(cls, checkers: dict[str, Checker], help: dict[str, str] | None = None) -> Table:
     """A table of settings whose keys, required-ness and defaults are the fields of dataclass `cls`.
 
@@ -240,8 +262,12 @@ def options_of(cls, checkers: dict[str, Checker], help: dict[str, str] | None = 
     keys = {}
     for name, f in fields.items():
         has_default = f.default is not dataclasses.MISSING
-        keys[name] = Key(checkers[name], required=not has_default, default=f.default if has_default else None,
-                         help=(help or {}).get(name, ""))
+        keys[name] = Key(
+            checkers[name],
+            required=not has_default,
+            default=f.default if has_default else None,
+            help=(help or {}).get(name, ""),
+        )
     return Table(keys)
 
 

@@ -7,8 +7,6 @@ themselves are the pure functions of :mod:`dossier.integrity`.
 
 from __future__ import annotations
 
-from .layout import ATTACHED_MANIFEST, BOOKKEEPING, RESULTS_NAME
-
 import datetime as dt
 import json
 import os
@@ -19,10 +17,9 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from .. import __version__
-
-from ..publish import integrity
 from ..common.errors import StateError, UserError, VerifyError
-
+from ..publish import integrity
+from .layout import ATTACHED_MANIFEST, BOOKKEEPING, RESULTS_NAME
 
 __all__ = ["read_folder", "verify", "seal", "countersign", "keygen", "export", "diff", "verify_report_pdf"]
 
@@ -47,13 +44,19 @@ def read_folder(folder: Path) -> dict[str, bytes]:
 def _identity(files: dict[str, bytes], where: Path) -> dict:
     """The document block of results.json; a clear error if this is not a dossier output."""
     if RESULTS_NAME not in files:
-        raise UserError(f"{where}: not a dossier output folder (no {RESULTS_NAME}); expected the folder "
-                        "`dossier build` wrote")
+        raise UserError(
+            f"{where}: not a dossier output folder (no {RESULTS_NAME}); expected the folder `dossier build` wrote"
+        )
     try:
         doc = json.loads(files[RESULTS_NAME])["document"]
-        return {"number": str(doc["number"]), "revision": str(doc["revision"]), "status": str(doc["status"]),
-                "supplier": str(doc.get("supplier") or ""), "authors": list(doc.get("authors") or []),
-                "date": str(doc.get("date", ""))}
+        return {
+            "number": str(doc["number"]),
+            "revision": str(doc["revision"]),
+            "status": str(doc["status"]),
+            "supplier": str(doc.get("supplier") or ""),
+            "authors": list(doc.get("authors") or []),
+            "date": str(doc.get("date", "")),
+        }
     except (ValueError, KeyError, TypeError) as exc:
         raise VerifyError(f"{where}/{RESULTS_NAME}: cannot be read as a dossier's results ({exc})") from None
 
@@ -101,7 +104,7 @@ def ids(files, folder) -> tuple[str, str]:
 
 
 def _now() -> str:
-    return dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat()
+    return dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat()
 
 
 def _write_new(target: Path, data: bytes) -> None:
@@ -132,28 +135,49 @@ def seal(folder: Path, private_key: Path, signer: str | None = None, organisatio
     number, revision = ids(files, folder)
     report = integrity.check(files, number, revision)
     if report.state == integrity.FAILED:
-        raise VerifyError(f"{folder}: will not seal a dossier that fails verification:\n  " + "\n  ".join(report.lines()))
+        raise VerifyError(
+            f"{folder}: will not seal a dossier that fails verification:\n  " + "\n  ".join(report.lines())
+        )
     if integrity.SUPPLIER_SEAL in files:
         raise StateError(f"{folder}: already sealed ({integrity.SUPPLIER_SEAL}); a released revision is frozen")
     ident = _identity(files, folder)
     if ident["status"] != "released":
-        raise StateError(f"{folder}: status is {ident['status']!r}; only a released revision is sealed "
-                         "(set [signoff] status = \"released\" with a dated approver and rebuild)")
+        raise StateError(
+            f"{folder}: status is {ident['status']!r}; only a released revision is sealed "
+            '(set [signoff] status = "released" with a dated approver and rebuild)'
+        )
     try:
         data = integrity.sign_statement(
-            _private_key(private_key), role=integrity.SUPPLIER, statement="released", reason="",
+            _private_key(private_key),
+            role=integrity.SUPPLIER,
+            statement="released",
+            reason="",
             signer=signer or (ident["authors"][0] if ident["authors"] else ""),
             organisation=organisation if organisation is not None else ident["supplier"],
-            document=number, revision=revision, digest=report.digest, signed_at=_now())
+            document=number,
+            revision=revision,
+            digest=report.digest,
+            signed_at=_now(),
+        )
     except ValueError as exc:
         raise UserError(f"{private_key}: cannot sign with this key ({exc})") from None
     _write_new(folder / integrity.SUPPLIER_SEAL, data)
     return json.loads(data)["key_id"]
 
 
-def countersign(private_key: Path, statement: str, reason: str, signer: str, organisation: str = "", *,
-                folder: Path | None = None, digest_hex: str | None = None, document: str | None = None,
-                revision: str | None = None, out: Path | None = None) -> Path:
+def countersign(
+    private_key: Path,
+    statement: str,
+    reason: str,
+    signer: str,
+    organisation: str = "",
+    *,
+    folder: Path | None = None,
+    digest_hex: str | None = None,
+    document: str | None = None,
+    revision: str | None = None,
+    out: Path | None = None,
+) -> Path:
     """The customer approver's signature of the same digest the supplier sealed.
 
     Given the dossier `folder`, the signature is checked against it and written into its
@@ -172,20 +196,32 @@ def countersign(private_key: Path, statement: str, reason: str, signer: str, org
         number, revision = ids(files, folder)
         report = integrity.check(files, number, revision)
         if report.state == integrity.FAILED:
-            raise VerifyError(f"{folder}: will not countersign a dossier that fails verification:\n  "
-                              + "\n  ".join(report.lines()))
+            raise VerifyError(
+                f"{folder}: will not countersign a dossier that fails verification:\n  " + "\n  ".join(report.lines())
+            )
         if not any(s.role == integrity.SUPPLIER for s in report.signatures):
             raise StateError(f"{folder}: not sealed by the supplier; only a sealed, released revision is countersigned")
         digest_hex, document = report.digest, number
     elif not (digest_hex and document and revision):
         raise UserError("countersign: give the dossier folder, or --digest with --document and --revision")
     if len(digest_hex) != 64 or any(c not in "0123456789abcdef" for c in digest_hex):
-        raise UserError(f"--digest: expected 64 lower-case hexadecimal digits (the SHA-256 `dossier digest` prints); "
-                        f"found {digest_hex[:70]!r}")
+        raise UserError(
+            f"--digest: expected 64 lower-case hexadecimal digits (the SHA-256 `dossier digest` prints); "
+            f"found {digest_hex[:70]!r}"
+        )
     try:
-        data = integrity.sign_statement(_private_key(private_key), role=integrity.APPROVER, statement=statement,
-                                        reason=reason.strip(), signer=signer.strip(), organisation=organisation,
-                                        document=document, revision=revision, digest=digest_hex, signed_at=_now())
+        data = integrity.sign_statement(
+            _private_key(private_key),
+            role=integrity.APPROVER,
+            statement=statement,
+            reason=reason.strip(),
+            signer=signer.strip(),
+            organisation=organisation,
+            document=document,
+            revision=revision,
+            digest=digest_hex,
+            signed_at=_now(),
+        )
     except ValueError as exc:
         raise UserError(f"{private_key}: cannot sign with this key ({exc})") from None
     key = json.loads(data)["key_id"]
@@ -216,13 +252,19 @@ def export(folder: Path, target: Path, as_zip: bool = False) -> Path:
     number, revision = ids(files, folder)
     report = integrity.check(files, number, revision)
     if report.state == integrity.FAILED:
-        raise VerifyError(f"{folder}: will not export a dossier that fails verification:\n  " + "\n  ".join(report.lines()))
+        raise VerifyError(
+            f"{folder}: will not export a dossier that fails verification:\n  " + "\n  ".join(report.lines())
+        )
     if target.exists():
         raise UserError(f"{target}: exists; choose a new name (nothing was changed)")
     ident = _identity(files, folder)
-    bag = integrity.bag_files(files, external_identifier=f"{number} rev. {revision}",
-                              source_organization=ident["supplier"], bagging_date=dt.date.today().isoformat(),
-                              software=f"dossier {__version__}")
+    bag = integrity.bag_files(
+        files,
+        external_identifier=f"{number} rev. {revision}",
+        source_organization=ident["supplier"],
+        bagging_date=dt.date.today().isoformat(),
+        software=f"dossier {__version__}",
+    )
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.export-", dir=target.parent))
     try:
@@ -254,6 +296,7 @@ class Change:
 
 def diff(old: Path, new: Path) -> list[Change]:
     """What changed between two built dossiers: inputs, coefficients, metrics and verdicts."""
+
     def results(folder: Path) -> dict:
         path = Path(folder) / RESULTS_NAME
         if not Path(folder).is_dir():
@@ -273,7 +316,9 @@ def diff(old: Path, new: Path) -> list[Change]:
             out[("input", i["file"])] = i["sha256"][:16]
         for f in results.get("fits", []):
             for c in f["coefficients"]:
-                out[("coefficient", f"{f['specimen']} {f['channel']} {c['name']}")] = f"{c['value']:.6g} ({c['status']})"
+                out[("coefficient", f"{f['specimen']} {f['channel']} {c['name']}")] = (
+                    f"{c['value']:.6g} ({c['status']})"
+                )
         for m in results.get("metrics", []):
             out[("metric", f"{m['specimen']} {m['metric']} at {m['load_n']:.0f} N")] = f"{m['value']:.6g} {m['unit']}"
         for v in results.get("verdicts", []):
@@ -293,6 +338,7 @@ def diff(old: Path, new: Path) -> list[Change]:
 
 # --- the report PDF on its own ------------------------------------------------------------------
 
+
 def read_pdf(path: Path) -> tuple[bytes, dict[str, bytes]]:
     from ..document.pdfa import attachments
 
@@ -303,7 +349,7 @@ def read_pdf(path: Path) -> tuple[bytes, dict[str, bytes]]:
         raise UserError(f"{path}: cannot be read ({exc.strerror or exc})") from None
     try:
         return data, attachments(data)
-    except Exception as exc:  # noqa: BLE001 - pikepdf raises its own kinds for a damaged PDF
+    except Exception as exc:
         raise VerifyError(f"{path}: cannot be read as a PDF ({type(exc).__name__}: {exc})") from None
 
 
@@ -325,9 +371,11 @@ class PdfReport:
     def lines(self) -> list[str]:
         out = [f"missing from the PDF: {p}" for p in self.missing] + [f"added: {p}" for p in self.added]
         out += [f"altered: {p}" for p in self.altered] + list(self.problems)
-        out.append(f"{self.attached} attached file(s) checked against the attached {ATTACHED_MANIFEST}; "
-                   f"{self.not_carried} site file(s) are listed there but carried only by the output folder; "
-                   "the PDF itself is covered by the folder's manifest and its seal, not by its own attachments")
+        out.append(
+            f"{self.attached} attached file(s) checked against the attached {ATTACHED_MANIFEST}; "
+            f"{self.not_carried} site file(s) are listed there but carried only by the output folder; "
+            "the PDF itself is covered by the folder's manifest and its seal, not by its own attachments"
+        )
         return out
 
 
@@ -335,11 +383,22 @@ def verify_report_pdf(path: Path) -> PdfReport:
     """Check every file the report PDF carries against the integrity manifest it carries."""
     _, attached = read_pdf(path)
     if ATTACHED_MANIFEST not in attached:
-        return PdfReport(len(attached), (), (), (), 0, (f"{path}: carries no {ATTACHED_MANIFEST}; "
-                                                        "not a dossier report, or made by an older version",))
+        return PdfReport(
+            len(attached),
+            (),
+            (),
+            (),
+            0,
+            (f"{path}: carries no {ATTACHED_MANIFEST}; not a dossier report, or made by an older version",),
+        )
     listed, problems = integrity.parse_manifest(attached[ATTACHED_MANIFEST], ATTACHED_MANIFEST)
     carried = {n: d for n, d in attached.items() if n != ATTACHED_MANIFEST}
     expected = {n for n in listed if not n.startswith("site/")}
-    return PdfReport(len(carried), tuple(sorted(expected - set(carried))), tuple(sorted(set(carried) - set(listed))),
-                     tuple(sorted(n for n in set(carried) & set(listed) if integrity.sha256(carried[n]) != listed[n])),
-                     len(set(listed) - expected), tuple(problems))
+    return PdfReport(
+        len(carried),
+        tuple(sorted(expected - set(carried))),
+        tuple(sorted(set(carried) - set(listed))),
+        tuple(sorted(n for n in set(carried) & set(listed) if integrity.sha256(carried[n]) != listed[n])),
+        len(set(listed) - expected),
+        tuple(problems),
+    )

@@ -19,8 +19,18 @@ from importlib import metadata
 
 from .. import __version__
 
-PACKAGES = ("weasyprint", "pydyf", "fonttools", "matplotlib", "pillow", "numpy", "scipy", "jinja2",
-            "markdown-it-py", "cffi")
+PACKAGES = (
+    "weasyprint",
+    "pydyf",
+    "fonttools",
+    "matplotlib",
+    "pillow",
+    "numpy",
+    "scipy",
+    "jinja2",
+    "markdown-it-py",
+    "cffi",
+)
 
 
 def _package_version(name: str) -> str:
@@ -46,12 +56,27 @@ def _int_version(value: int, base: int) -> str:
 
 # (record name, library file names as WeasyPrint loads them, version function, its result as text)
 _VERSION_FUNCTIONS = (
-    ("pango", ("libpango-1.0.so.0", "libpango-1.0.dylib", "libpango-1.0-0.dll"), "pango_version", ctypes.c_int,
-     lambda v: _int_version(v, 100)),
-    ("harfbuzz", ("libharfbuzz.so.0", "libharfbuzz.0.dylib", "libharfbuzz-0.dll"), "hb_version_string",
-     ctypes.c_char_p, bytes.decode),
-    ("fontconfig", ("libfontconfig.so.1", "libfontconfig.1.dylib", "libfontconfig-1.dll"), "FcGetVersion",
-     ctypes.c_int, lambda v: _int_version(v, 100)),
+    (
+        "pango",
+        ("libpango-1.0.so.0", "libpango-1.0.dylib", "libpango-1.0-0.dll"),
+        "pango_version",
+        ctypes.c_int,
+        lambda v: _int_version(v, 100),
+    ),
+    (
+        "harfbuzz",
+        ("libharfbuzz.so.0", "libharfbuzz.0.dylib", "libharfbuzz-0.dll"),
+        "hb_version_string",
+        ctypes.c_char_p,
+        bytes.decode,
+    ),
+    (
+        "fontconfig",
+        ("libfontconfig.so.1", "libfontconfig.1.dylib", "libfontconfig-1.dll"),
+        "FcGetVersion",
+        ctypes.c_int,
+        lambda v: _int_version(v, 100),
+    ),
 )
 
 
@@ -96,8 +121,12 @@ def software() -> dict[str, str]:
 
 def environment_record(theme_name: str) -> dict:
     """The record written as ``environment.json``."""
-    return {"theme": theme_name, "software": software(), "text_libraries": text_libraries(),
-            "font_subsetter": font_subsetter()}
+    return {
+        "theme": theme_name,
+        "software": software(),
+        "text_libraries": text_libraries(),
+        "font_subsetter": font_subsetter(),
+    }
 
 
 def differences(recorded: dict, current: dict) -> list[str]:

@@ -20,18 +20,30 @@ built); ``dossier export`` writes a real one (RFC 8493) of a built dossier.
 
 from __future__ import annotations
 
-from .layout import MANIFEST, SIGNATURES, SUPPLIER_SEAL
-
 import base64
 import hashlib
 import json
 from dataclasses import dataclass, replace
 
+from .layout import MANIFEST, SIGNATURES, SUPPLIER_SEAL
+
 FORMAT = "dossier-signature/1"
 SUPPLIER, APPROVER = "supplier", "approver"
 APPROVER_STATEMENTS = ("approved", "approved with deviation", "rejected")
-SIGNED_FIELDS = ("format", "role", "statement", "reason", "signer", "organisation", "document", "revision",
-                 "digest", "signed_at", "public_key", "key_id")
+SIGNED_FIELDS = (
+    "format",
+    "role",
+    "statement",
+    "reason",
+    "signer",
+    "organisation",
+    "document",
+    "revision",
+    "digest",
+    "signed_at",
+    "public_key",
+    "key_id",
+)
 
 
 def is_listed(name: str) -> bool:
@@ -70,6 +82,7 @@ def parse_manifest(data: bytes, where: str = MANIFEST) -> tuple[dict[str, str], 
 
 # --- signatures ------------------------------------------------------------------------------
 
+
 @dataclass(frozen=True)
 class Signature:
     """One signed statement about a dossier's digest, as read back and checked."""
@@ -102,16 +115,28 @@ class Signature:
 
 def canonical(fields: dict) -> bytes:
     """The bytes that are signed: the signed fields as canonical JSON."""
-    return json.dumps({k: fields[k] for k in SIGNED_FIELDS}, sort_keys=True, separators=(",", ":"),
-                      ensure_ascii=False).encode("utf-8")
+    return json.dumps(
+        {k: fields[k] for k in SIGNED_FIELDS}, sort_keys=True, separators=(",", ":"), ensure_ascii=False
+    ).encode("utf-8")
 
 
 def key_id(public_raw: bytes) -> str:
     return sha256(public_raw)[:16]
 
 
-def sign_statement(private_key_pem: bytes, *, role: str, statement: str, reason: str, signer: str,
-                   organisation: str, document: str, revision: str, digest: str, signed_at: str) -> bytes:
+def sign_statement(
+    private_key_pem: bytes,
+    *,
+    role: str,
+    statement: str,
+    reason: str,
+    signer: str,
+    organisation: str,
+    document: str,
+    revision: str,
+    digest: str,
+    signed_at: str,
+) -> bytes:
     """Return a signature file: the statement about `digest`, signed with the Ed25519 private key."""
     from cryptography.hazmat.primitives import serialization
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
@@ -120,15 +145,27 @@ def sign_statement(private_key_pem: bytes, *, role: str, statement: str, reason:
     if not isinstance(key, Ed25519PrivateKey):
         raise ValueError("the private key is not an Ed25519 key")
     pub = key.public_key().public_bytes(serialization.Encoding.Raw, serialization.PublicFormat.Raw)
-    fields = {"format": FORMAT, "role": role, "statement": statement, "reason": reason, "signer": signer,
-              "organisation": organisation, "document": document, "revision": revision, "digest": digest,
-              "signed_at": signed_at, "public_key": base64.b64encode(pub).decode(), "key_id": key_id(pub)}
+    fields = {
+        "format": FORMAT,
+        "role": role,
+        "statement": statement,
+        "reason": reason,
+        "signer": signer,
+        "organisation": organisation,
+        "document": document,
+        "revision": revision,
+        "digest": digest,
+        "signed_at": signed_at,
+        "public_key": base64.b64encode(pub).decode(),
+        "key_id": key_id(pub),
+    }
     fields["signature"] = base64.b64encode(key.sign(canonical(fields))).decode()
     return (json.dumps(fields, indent=2, ensure_ascii=False) + "\n").encode("utf-8")
 
 
-def read_signature(name: str, data: bytes, digest: str, document: str | None, revision: str | None,
-                   trusted: dict[str, bytes]) -> Signature:
+def read_signature(
+    name: str, data: bytes, digest: str, document: str | None, revision: str | None, trusted: dict[str, bytes]
+) -> Signature:
     """Check one signature file against the dossier's digest and identity (None: unknown, not
     compared) and the trusted keys (`trusted`: label -> raw public key)."""
     from cryptography.exceptions import InvalidSignature
@@ -145,11 +182,23 @@ def read_signature(name: str, data: bytes, digest: str, document: str | None, re
         signature = base64.b64decode(fields["signature"], validate=True)
         key = Ed25519PublicKey.from_public_bytes(public)
     except (ValueError, TypeError) as exc:
-        return Signature(name, "?", "?", "", "?", "", "", "", "", "", "?", b"",
-                         problem=f"cannot be read as a signature file ({exc})")
-    sig = Signature(name, fields["role"], fields["statement"], fields["reason"], fields["signer"],
-                    fields["organisation"], fields["document"], fields["revision"], fields["digest"],
-                    fields["signed_at"], fields["key_id"], public)
+        return Signature(
+            name, "?", "?", "", "?", "", "", "", "", "", "?", b"", problem=f"cannot be read as a signature file ({exc})"
+        )
+    sig = Signature(
+        name,
+        fields["role"],
+        fields["statement"],
+        fields["reason"],
+        fields["signer"],
+        fields["organisation"],
+        fields["document"],
+        fields["revision"],
+        fields["digest"],
+        fields["signed_at"],
+        fields["key_id"],
+        public,
+    )
     problem = ""
     try:
         key.verify(signature, canonical(fields))
@@ -162,8 +211,9 @@ def read_signature(name: str, data: bytes, digest: str, document: str | None, re
     if not problem and fields["digest"] != digest:
         problem = f"it signs digest {fields['digest'][:16]}…, but this dossier's digest is {digest[:16]}…"
     if not problem and document is not None and (fields["document"], fields["revision"]) != (document, revision):
-        problem = (f"it names {fields['document']} rev. {fields['revision']}, but this dossier is "
-                   f"{document} rev. {revision}")
+        problem = (
+            f"it names {fields['document']} rev. {fields['revision']}, but this dossier is {document} rev. {revision}"
+        )
     if not problem and fields["role"] == SUPPLIER and name != SUPPLIER_SEAL:
         problem = f"a supplier seal must be {SUPPLIER_SEAL}"
     if not problem and fields["role"] == APPROVER and fields["statement"] not in APPROVER_STATEMENTS:
@@ -227,8 +277,10 @@ class Report:
         approvers = [s for s in self.signatures if s.role == APPROVER and not s.problem]
         if not approvers:
             return "customer approval: not signed"
-        return "; ".join(f"customer approval: {s.statement} by {s.signer}" + (f" ({s.reason})" if s.reason else "")
-                         for s in approvers)
+        return "; ".join(
+            f"customer approval: {s.statement} by {s.signer}" + (f" ({s.reason})" if s.reason else "")
+            for s in approvers
+        )
 
     def lines(self) -> list[str]:
         out = [f"missing: {p}" for p in self.missing] + [f"added: {p}" for p in self.added]
@@ -236,24 +288,33 @@ class Report:
         out.append(f"digest: {self.digest} (SHA-256 of {MANIFEST})")
         out += [s.line() for s in self.signatures]
         if not self.signatures:
-            out.append("not sealed: the files match their own manifest, which anyone could rewrite; only a seal "
-                       "checked against a key you trust shows who vouches for them")
+            out.append(
+                "not sealed: the files match their own manifest, which anyone could rewrite; only a seal "
+                "checked against a key you trust shows who vouches for them"
+            )
         elif not any(s.role == SUPPLIER and not s.problem for s in self.signatures):
             out.append("no valid supplier seal")
         out.append(self.approval)
         return out
 
 
-def check(files: dict[str, bytes], document: str | None, revision: str | None,
-          trusted: dict[str, bytes] | None = None) -> Report:
+def check(
+    files: dict[str, bytes], document: str | None, revision: str | None, trusted: dict[str, bytes] | None = None
+) -> Report:
     """Verify a dossier's files (relative path -> bytes, manifest and signatures included).
 
     `document` and `revision` are the dossier's identity as its results record states it;
     `trusted` maps a label (the public-key file) to a raw Ed25519 public key.
     """
     if MANIFEST not in files:
-        return Report("", (), (), (), (), (f"{MANIFEST} is missing: this folder is not a dossier output "
-                                           "or its integrity manifest was removed",))
+        return Report(
+            "",
+            (),
+            (),
+            (),
+            (),
+            (f"{MANIFEST} is missing: this folder is not a dossier output or its integrity manifest was removed",),
+        )
     listed, problems = parse_manifest(files[MANIFEST])
     payload = {n: d for n, d in files.items() if is_listed(n)}
     missing = tuple(sorted(set(listed) - set(payload)))
@@ -267,8 +328,9 @@ def check(files: dict[str, bytes], document: str | None, revision: str | None,
             problems.append(f"{name}: only signature files (signatures/*.json) may be added to a dossier")
             continue
         signatures.append(read_signature(name, files[name], digest, document, revision, trusted or {}))
-    if any(s.role == APPROVER for s in signatures) and not any(s.role == SUPPLIER and not s.problem
-                                                               for s in signatures):
+    if any(s.role == APPROVER for s in signatures) and not any(
+        s.role == SUPPLIER and not s.problem for s in signatures
+    ):
         problems.append("an approver countersigned, but there is no valid supplier seal to countersign")
     return Report(digest, missing, added, altered, tuple(signatures), tuple(problems))
 
@@ -279,26 +341,35 @@ def new_key_pair() -> tuple[bytes, bytes]:
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 
     key = Ed25519PrivateKey.generate()
-    private = key.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8,
-                                serialization.NoEncryption())
+    private = key.private_bytes(
+        serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8, serialization.NoEncryption()
+    )
     public = key.public_key().public_bytes(serialization.Encoding.PEM, serialization.PublicFormat.SubjectPublicKeyInfo)
     return private, public
 
 
 # --- an RFC 8493 bag of a built dossier --------------------------------------------------------
 
-def bag_files(files: dict[str, bytes], *, external_identifier: str, source_organization: str,
-              bagging_date: str, software: str) -> dict[str, bytes]:
+
+def bag_files(
+    files: dict[str, bytes], *, external_identifier: str, source_organization: str, bagging_date: str, software: str
+) -> dict[str, bytes]:
     """A BagIt bag (RFC 8493 §2) of the dossier's files: payload under ``data/``, the bag
     declaration, bag-info, a payload manifest and a tag manifest, all SHA-256."""
     payload = {f"data/{name}": data for name, data in sorted(files.items())}
     octets = sum(len(d) for d in payload.values())
     tags = {
         "bagit.txt": b"BagIt-Version: 1.0\nTag-File-Character-Encoding: UTF-8\n",  # RFC 8493 §2.1.1
-        "bag-info.txt": "".join(f"{k}: {_bag_value(v)}\n" for k, v in (  # RFC 8493 §2.2.2
-            ("Bag-Software-Agent", software), ("Bagging-Date", bagging_date),
-            ("External-Identifier", external_identifier), ("Payload-Oxum", f"{octets}.{len(payload)}"),
-            ("Source-Organization", source_organization))).encode("utf-8"),
+        "bag-info.txt": "".join(
+            f"{k}: {_bag_value(v)}\n"
+            for k, v in (  # RFC 8493 §2.2.2
+                ("Bag-Software-Agent", software),
+                ("Bagging-Date", bagging_date),
+                ("External-Identifier", external_identifier),
+                ("Payload-Oxum", f"{octets}.{len(payload)}"),
+                ("Source-Organization", source_organization),
+            )
+        ).encode("utf-8"),
         "manifest-sha256.txt": "".join(f"{sha256(d)}  {_bag_path(n)}\n" for n, d in payload.items()).encode("utf-8"),
     }
     # RFC 8493 §2.2.1: the tag manifest lists every tag file but itself.

@@ -11,6 +11,7 @@ from __future__ import annotations
 import hashlib
 import io
 
+
 def _pages(pdf) -> list[bytes]:
     """The drawing instructions of every page (content streams, decoded and joined)."""
     import pikepdf
@@ -35,8 +36,9 @@ def _fonts(pdf_bytes: bytes) -> dict[str, str]:
 
 
 def _attachments(pdf) -> dict[str, str]:
-    return {name: hashlib.sha256(spec.get_file().read_bytes()).hexdigest()
-            for name, spec in sorted(pdf.attachments.items())}
+    return {
+        name: hashlib.sha256(spec.get_file().read_bytes()).hexdigest() for name, spec in sorted(pdf.attachments.items())
+    }
 
 
 def pdf_difference(a: bytes, b: bytes) -> str:
@@ -60,6 +62,9 @@ def pdf_difference(a: bytes, b: bytes) -> str:
         fonts_a, fonts_b = _fonts(a), _fonts(b)
         if fonts_a != fonts_b:
             names = sorted(n for n in set(fonts_a) | set(fonts_b) if fonts_a.get(n) != fonts_b.get(n))
-            return ("the pages and attachments are the same; only the embedded font programs differ ("
-                    + ", ".join(names) + "): the machine's fonts or font subsetter differ, not the dossier")
+            return (
+                "the pages and attachments are the same; only the embedded font programs differ ("
+                + ", ".join(names)
+                + "): the machine's fonts or font subsetter differ, not the dossier"
+            )
         return "the pages, attachments and fonts are the same; metadata or images differ"

@@ -23,12 +23,11 @@ import re
 from dataclasses import dataclass, field
 
 from .. import __version__
-
-from ..standards import axes
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
-from ..project.manifest import MANIFEST_NAME, Manifest
-from ..project.catalogue import METRICS
 from ..metrics.evaluate import MetricValue
+from ..project.catalogue import METRICS
+from ..project.manifest import MANIFEST_NAME, Manifest
+from ..standards import axes
 
 NS = "urn:x-dossier:"  # our own namespace for identifiers inside one dossier
 
@@ -80,8 +79,16 @@ class Evidence:
 class _Record:
     """The PROV-JSON document under construction; relation ids are numbered in the order made."""
 
-    KINDS = ("entity", "activity", "agent", "used", "wasGeneratedBy", "wasDerivedFrom", "wasAssociatedWith",
-             "wasAttributedTo")
+    KINDS = (
+        "entity",
+        "activity",
+        "agent",
+        "used",
+        "wasGeneratedBy",
+        "wasDerivedFrom",
+        "wasAssociatedWith",
+        "wasAttributedTo",
+    )
 
     def __init__(self):
         self.doc: dict = {"prefix": {"d": NS}, **{k: {} for k in self.KINDS}}
@@ -129,47 +136,92 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
     for c in evidence.conditioned:
         a = c.account
         spec = manifest.runs[a.run_index]
-        f = r.entity(input_id(a.source_file), {"prov:label": a.source_file, "d:sha256": a.sha256,
-                                               "d:lab": spec.lab or "", "d:axis_convention": spec.axis_convention})
-        act = r.activity(pid("conditioning", "run", a.run_index), {
-            "prov:label": f"ingest and condition run {a.run_index}",
-            "d:settings": json.dumps(manifest.conditioning.__dict__, sort_keys=True),
-            "d:internal_axes": axes.INTERNAL, "d:software": soft_label}, software, used=(f, man))
-        r.entity(run_curves_id(a.run_index, False), {
-            "prov:label": f"conditioned curves of run {a.run_index}",
-            "d:samples_kept": a.n_kept, "d:samples": a.n_samples,
-            "d:operating_points": "; ".join(
-                f"{p.load_n:.0f} N, {p.camber_deg:g} deg, {p.pressure_kpa:.0f} kPa: lines "
-                f"{p.first_line}-{p.last_line}" for p in c.points)}, derived_from=(f,), generated_by=act)
+        f = r.entity(
+            input_id(a.source_file),
+            {
+                "prov:label": a.source_file,
+                "d:sha256": a.sha256,
+                "d:lab": spec.lab or "",
+                "d:axis_convention": spec.axis_convention,
+            },
+        )
+        act = r.activity(
+            pid("conditioning", "run", a.run_index),
+            {
+                "prov:label": f"ingest and condition run {a.run_index}",
+                "d:settings": json.dumps(manifest.conditioning.__dict__, sort_keys=True),
+                "d:internal_axes": axes.INTERNAL,
+                "d:software": soft_label,
+            },
+            software,
+            used=(f, man),
+        )
+        r.entity(
+            run_curves_id(a.run_index, False),
+            {
+                "prov:label": f"conditioned curves of run {a.run_index}",
+                "d:samples_kept": a.n_kept,
+                "d:samples": a.n_samples,
+                "d:operating_points": "; ".join(
+                    f"{p.load_n:.0f} N, {p.camber_deg:g} deg, {p.pressure_kpa:.0f} kPa: lines "
+                    f"{p.first_line}-{p.last_line}"
+                    for p in c.points
+                ),
+            },
+            derived_from=(f,),
+            generated_by=act,
+        )
 
     # Drift: the estimate derives from the control runs; each corrected run from its own curves
     # and the estimate, with the scale factor that was applied to its forces and moments.
     drift = evidence.drift
     if drift is not None:
         control_runs = sorted({rep.run_index for rep in drift.repeats})
-        est_act = r.activity(pid("drift", "estimate"), {
-            "prov:label": f"drift of the rig seen on the control tire {drift.control}",
-            "d:method": "straight line in time through model-free metrics of the control repeats",
-            "d:software": soft_label}, software, used=[run_curves_id(i, False) for i in control_runs])
-        estimate = r.entity(pid("drift", "estimate", drift.control), {
-            "prov:label": f"drift estimate from {len(drift.repeats)} repeats of {drift.control} at "
-                          f"{drift.load_n:.0f} N",
-            "d:level_slope_per_hour": float(drift.level_slope_per_hour),
-            "d:level_intercept": float(drift.level_intercept),
-            "d:control_runs": ", ".join(str(i) for i in control_runs)},
-            derived_from=[run_curves_id(i, False) for i in control_runs], generated_by=est_act)
+        est_act = r.activity(
+            pid("drift", "estimate"),
+            {
+                "prov:label": f"drift of the rig seen on the control tire {drift.control}",
+                "d:method": "straight line in time through model-free metrics of the control repeats",
+                "d:software": soft_label,
+            },
+            software,
+            used=[run_curves_id(i, False) for i in control_runs],
+        )
+        estimate = r.entity(
+            pid("drift", "estimate", drift.control),
+            {
+                "prov:label": f"drift estimate from {len(drift.repeats)} repeats of {drift.control} at "
+                f"{drift.load_n:.0f} N",
+                "d:level_slope_per_hour": float(drift.level_slope_per_hour),
+                "d:level_intercept": float(drift.level_intercept),
+                "d:control_runs": ", ".join(str(i) for i in control_runs),
+            },
+            derived_from=[run_curves_id(i, False) for i in control_runs],
+            generated_by=est_act,
+        )
         if corrected:
-            cor_act = r.activity(pid("drift", "correction"), {
-                "prov:label": "drift correction of the forces and moments of every non-control run",
-                "d:method": "each run scaled by level(first control repeat) / level(its tested_at)",
-                "d:software": soft_label}, software,
-                used=[estimate] + [run_curves_id(i, False) for i in sorted(corrected)])
+            cor_act = r.activity(
+                pid("drift", "correction"),
+                {
+                    "prov:label": "drift correction of the forces and moments of every non-control run",
+                    "d:method": "each run scaled by level(first control repeat) / level(its tested_at)",
+                    "d:software": soft_label,
+                },
+                software,
+                used=[estimate] + [run_curves_id(i, False) for i in sorted(corrected)],
+            )
             for i in sorted(corrected):
                 k = corrected[i]
-                r.entity(run_curves_id(i, True), {
-                    "prov:label": f"conditioned curves of run {i}, corrected for drift",
-                    "d:force_scale": float(k.force_scale), "d:tested_at": k.tested_at.isoformat()},
-                    derived_from=(run_curves_id(i, False), estimate), generated_by=cor_act)
+                r.entity(
+                    run_curves_id(i, True),
+                    {
+                        "prov:label": f"conditioned curves of run {i}, corrected for drift",
+                        "d:force_scale": float(k.force_scale),
+                        "d:tested_at": k.tested_at.isoformat(),
+                    },
+                    derived_from=(run_curves_id(i, False), estimate),
+                    generated_by=cor_act,
+                )
 
     def curves_of(run_index: int) -> str:
         return run_curves_id(run_index, run_index in corrected)
@@ -180,62 +232,123 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
             ent = fit_id(m.specimen, fit.channel)
             runs = sorted({k[0] for k in fit.source_points})
             used = [curves_of(i) for i in runs] + ([fit_id(m.specimen, "fy")] if fit.channel == "mz" else [])
-            act = r.activity(pid("fitting", m.specimen, fit.channel), {
-                "prov:label": f"fit {fit.channel.upper()}0 of {m.specimen}",
-                "d:settings": json.dumps({**manifest.fit.__dict__, "fz0_n": fit.fz0_n, "p0_kpa": fit.p0_kpa,
-                                          "r0_m": fit.r0_m if fit.channel == "mz" else None}, sort_keys=True),
-                "d:software": soft_label}, software)
+            act = r.activity(
+                pid("fitting", m.specimen, fit.channel),
+                {
+                    "prov:label": f"fit {fit.channel.upper()}0 of {m.specimen}",
+                    "d:settings": json.dumps(
+                        {
+                            **manifest.fit.__dict__,
+                            "fz0_n": fit.fz0_n,
+                            "p0_kpa": fit.p0_kpa,
+                            "r0_m": fit.r0_m if fit.channel == "mz" else None,
+                        },
+                        sort_keys=True,
+                    ),
+                    "d:software": soft_label,
+                },
+                software,
+            )
             for i in runs:
                 pts = [k for k in fit.source_points if k[0] == i]
-                r.rel("used", {"prov:activity": act, "prov:entity": curves_of(i),
-                               "d:operating_points": "; ".join(f"{k[1]:.0f} N, {k[2]:g} deg, {k[3]:.0f} kPa"
-                                                               for k in pts)})
+                r.rel(
+                    "used",
+                    {
+                        "prov:activity": act,
+                        "prov:entity": curves_of(i),
+                        "d:operating_points": "; ".join(f"{k[1]:.0f} N, {k[2]:g} deg, {k[3]:.0f} kPa" for k in pts),
+                    },
+                )
             if fit.channel == "mz":
                 r.rel("used", {"prov:activity": act, "prov:entity": fit_id(m.specimen, "fy")})
-            r.entity(ent, {"prov:label": f"fitted {fit.channel.upper()}0 of {m.specimen}",
-                           "d:rmse": fit.statistics.rmse, "d:n_points": fit.statistics.n_points},
-                     derived_from=used, generated_by=act)
+            r.entity(
+                ent,
+                {
+                    "prov:label": f"fitted {fit.channel.upper()}0 of {m.specimen}",
+                    "d:rmse": fit.statistics.rmse,
+                    "d:n_points": fit.statistics.n_points,
+                },
+                derived_from=used,
+                generated_by=act,
+            )
             for c in fit.coefficients:
-                r.entity(pid("coefficient", m.specimen, fit.channel, c.name),
-                         {"prov:label": f"{c.name} of {m.specimen}", "prov:value": float(c.value),
-                          "d:status": c.status, "d:stderr": -1.0 if c.stderr is None else float(c.stderr)},
-                         derived_from=(ent,))
+                r.entity(
+                    pid("coefficient", m.specimen, fit.channel, c.name),
+                    {
+                        "prov:label": f"{c.name} of {m.specimen}",
+                        "prov:value": float(c.value),
+                        "d:status": c.status,
+                        "d:stderr": -1.0 if c.stderr is None else float(c.stderr),
+                    },
+                    derived_from=(ent,),
+                )
 
     # Metrics.
     channels = sorted({c for d in METRICS.values() for c in d.channels})
     for m in evidence.models:
-        r.activity(pid("metrics", m.specimen), {
-            "prov:label": f"metrics of {m.specimen}", "d:software": soft_label,
-            "d:method": "model evaluation at zero camber and nominal pressure; delta-method intervals"},
-            software, used=[fit_id(m.specimen, ch) for ch in channels if getattr(m, ch) is not None])
+        r.activity(
+            pid("metrics", m.specimen),
+            {
+                "prov:label": f"metrics of {m.specimen}",
+                "d:software": soft_label,
+                "d:method": "model evaluation at zero camber and nominal pressure; delta-method intervals",
+            },
+            software,
+            used=[fit_id(m.specimen, ch) for ch in channels if getattr(m, ch) is not None],
+        )
     for v in evidence.metrics:
-        r.entity(metric_id(v.specimen, v.metric, v.load_n),
-                 {"prov:label": f"{METRICS[v.metric].label} of {v.specimen} at {v.load_n:.0f} N",
-                  "prov:value": float(v.value), "d:unit": v.unit},
-                 derived_from=[fit_id(v.specimen, ch) for ch in METRICS[v.metric].channels],
-                 generated_by=pid("metrics", v.specimen))
+        r.entity(
+            metric_id(v.specimen, v.metric, v.load_n),
+            {
+                "prov:label": f"{METRICS[v.metric].label} of {v.specimen} at {v.load_n:.0f} N",
+                "prov:value": float(v.value),
+                "d:unit": v.unit,
+            },
+            derived_from=[fit_id(v.specimen, ch) for ch in METRICS[v.metric].channels],
+            generated_by=pid("metrics", v.specimen),
+        )
 
     # Targets and verdicts.
     outcome = []  # what the dossier's conclusion rests on
     if evidence.verdicts:
-        judging = r.activity(pid("acceptance"), {"prov:label": "targets judged against the 95 % intervals",
-                                                 "d:software": soft_label}, software, used=(man,))
+        judging = r.activity(
+            pid("acceptance"),
+            {"prov:label": "targets judged against the 95 % intervals", "d:software": soft_label},
+            software,
+            used=(man,),
+        )
         for v in evidence.verdicts:
             i = _index_of(manifest.targets, v.target)
             target = pid("target", i)
             if target not in doc["entity"]:
-                r.entity(target, {"prov:label": f"targets[{i}]: {v.target.metric} at {v.target.load_n:.0f} N "
-                                                f"({v.target.reference})"}, derived_from=(man,))
+                r.entity(
+                    target,
+                    {
+                        "prov:label": f"targets[{i}]: {v.target.metric} at {v.target.load_n:.0f} N "
+                        f"({v.target.reference})"
+                    },
+                    derived_from=(man,),
+                )
             metric = metric_id(v.specimen, v.target.metric, v.target.load_n)
             sources = [target] + ([metric] if metric in doc["entity"] else [])
-            outcome.append(r.entity(pid("verdict", i, v.specimen), {
-                "prov:label": f"{v.specimen} against targets[{i}]: {v.verdict}", "d:verdict": v.verdict,
-                "d:reason": v.reason}, derived_from=sources, generated_by=judging))
+            outcome.append(
+                r.entity(
+                    pid("verdict", i, v.specimen),
+                    {
+                        "prov:label": f"{v.specimen} against targets[{i}]: {v.verdict}",
+                        "d:verdict": v.verdict,
+                        "d:reason": v.reason,
+                    },
+                    derived_from=sources,
+                    generated_by=judging,
+                )
+            )
 
     # Candidates against the baseline, and the recommendation.
     if evidence.standings:
-        comparing = r.activity(pid("comparison"), {"prov:label": "candidates against the baseline",
-                                                   "d:software": soft_label}, software)
+        comparing = r.activity(
+            pid("comparison"), {"prov:label": "candidates against the baseline", "d:software": soft_label}, software
+        )
         standings = []
         for s in evidence.standings:
             diffs = []
@@ -243,54 +356,124 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
                 sources = [metric_id(d.candidate, d.metric, d.load_n), metric_id(d.baseline, d.metric, d.load_n)]
                 if d.repeatability_pct is not None and drift is not None:
                     sources.append(pid("drift", "estimate", drift.control))
-                diffs.append(r.entity(pid("difference", d.candidate, d.baseline, d.metric, f"{d.load_n:.0f}N"), {
-                    "prov:label": f"{d.metric} of {d.candidate} minus {d.baseline} at {d.load_n:.0f} N",
-                    "prov:value": float(d.diff), "d:unit": d.unit, "d:real": bool(d.significant)},
-                    derived_from=[x for x in sources if x in doc["entity"]], generated_by=comparing))
-            mine = [pid("verdict", _index_of(manifest.targets, v.target), v.specimen)
-                    for v in evidence.verdicts if v.specimen == s.candidate]
-            standings.append(r.entity(pid("standing", s.candidate), {"prov:label": s.text},
-                                      derived_from=diffs + mine, generated_by=comparing))
+                diffs.append(
+                    r.entity(
+                        pid("difference", d.candidate, d.baseline, d.metric, f"{d.load_n:.0f}N"),
+                        {
+                            "prov:label": f"{d.metric} of {d.candidate} minus {d.baseline} at {d.load_n:.0f} N",
+                            "prov:value": float(d.diff),
+                            "d:unit": d.unit,
+                            "d:real": bool(d.significant),
+                        },
+                        derived_from=[x for x in sources if x in doc["entity"]],
+                        generated_by=comparing,
+                    )
+                )
+            mine = [
+                pid("verdict", _index_of(manifest.targets, v.target), v.specimen)
+                for v in evidence.verdicts
+                if v.specimen == s.candidate
+            ]
+            standings.append(
+                r.entity(
+                    pid("standing", s.candidate),
+                    {"prov:label": s.text},
+                    derived_from=diffs + mine,
+                    generated_by=comparing,
+                )
+            )
         best, why = evidence.recommendation
-        outcome.append(r.entity(pid("recommendation"), {"prov:label": why, "d:candidate": best or ""},
-                                derived_from=standings, generated_by=comparing))
+        outcome.append(
+            r.entity(
+                pid("recommendation"),
+                {"prov:label": why, "d:candidate": best or ""},
+                derived_from=standings,
+                generated_by=comparing,
+            )
+        )
 
     # Vehicle balance: each fitment from the lateral fits of its front and rear specimens.
     if evidence.fitments:
-        balancing = r.activity(pid("vehicle", "balance"), {
-            "prov:label": "understeer gradient of every fitment from axle cornering stiffnesses",
-            "d:software": soft_label}, software, used=(man,))
+        balancing = r.activity(
+            pid("vehicle", "balance"),
+            {
+                "prov:label": "understeer gradient of every fitment from axle cornering stiffnesses",
+                "d:software": soft_label,
+            },
+            software,
+            used=(man,),
+        )
         for b in evidence.fitments:
             sources = list(dict.fromkeys([fit_id(b.front, "fy"), fit_id(b.rear, "fy")]))
-            outcome.append(r.entity(pid("fitment", b.front, b.rear), {
-                "prov:label": f"front {b.front}, rear {b.rear}: understeer gradient",
-                "prov:value": float(b.understeer_gradient_deg_per_g), "d:unit": "deg/g"},
-                derived_from=sources + [man], generated_by=balancing))
+            outcome.append(
+                r.entity(
+                    pid("fitment", b.front, b.rear),
+                    {
+                        "prov:label": f"front {b.front}, rear {b.rear}: understeer gradient",
+                        "prov:value": float(b.understeer_gradient_deg_per_g),
+                        "d:unit": "deg/g",
+                    },
+                    derived_from=sources + [man],
+                    generated_by=balancing,
+                )
+            )
 
     # Ply-steer and conicity: each split from the forward and reverse runs it pairs.
     if evidence.offset_splits:
-        splitting = r.activity(pid("offsets"), {"prov:label": "ply-steer and conicity from both rolling directions",
-                                                "d:software": soft_label}, software)
+        splitting = r.activity(
+            pid("offsets"),
+            {"prov:label": "ply-steer and conicity from both rolling directions", "d:software": soft_label},
+            software,
+        )
         for o in evidence.offset_splits:
-            runs = sorted({p.run_index for p in evidence.points
-                           if p.specimen == o.specimen and p.load_n == o.load_n and p.camber_deg == o.camber_deg
-                           and p.sweep == "slip_angle" and p.offsets is not None})
-            r.entity(pid("offset_split", o.specimen, f"{o.load_n:.0f}N", f"{o.camber_deg:g}deg"), {
-                "prov:label": f"ply-steer and conicity of {o.specimen} at {o.load_n:.0f} N",
-                "d:conicity_fy_n": float(o.conicity_fy_n), "d:ply_steer_fy_n": float(o.ply_steer_fy_n)},
-                derived_from=[curves_of(i) for i in runs], generated_by=splitting)
+            runs = sorted(
+                {
+                    p.run_index
+                    for p in evidence.points
+                    if p.specimen == o.specimen
+                    and p.load_n == o.load_n
+                    and p.camber_deg == o.camber_deg
+                    and p.sweep == "slip_angle"
+                    and p.offsets is not None
+                }
+            )
+            r.entity(
+                pid("offset_split", o.specimen, f"{o.load_n:.0f}N", f"{o.camber_deg:g}deg"),
+                {
+                    "prov:label": f"ply-steer and conicity of {o.specimen} at {o.load_n:.0f} N",
+                    "d:conicity_fy_n": float(o.conicity_fy_n),
+                    "d:ply_steer_fy_n": float(o.ply_steer_fy_n),
+                },
+                derived_from=[curves_of(i) for i in runs],
+                generated_by=splitting,
+            )
 
     # The narrative: each part from its file (its numbers come from the metrics above).
     for part, rel in sorted(manifest.narrative.items()):
         f = r.entity(input_id(rel), {"prov:label": rel, "d:sha256": evidence.input_sha256.get(rel, "")})
-        act = r.activity(pid("narrative", part), {"prov:label": f"render the {part} narrative",
-                                                  "d:software": soft_label}, software, used=(f,))
-        outcome.append(r.entity(pid("narrative", part, "rendered"), {"prov:label": f"{part} narrative as rendered"},
-                                derived_from=(f,), generated_by=act))
+        act = r.activity(
+            pid("narrative", part),
+            {"prov:label": f"render the {part} narrative", "d:software": soft_label},
+            software,
+            used=(f,),
+        )
+        outcome.append(
+            r.entity(
+                pid("narrative", part, "rendered"),
+                {"prov:label": f"{part} narrative as rendered"},
+                derived_from=(f,),
+                generated_by=act,
+            )
+        )
 
-    dossier = r.entity(pid("dossier", manifest.document.number, manifest.document.revision),
-                       {"prov:label": f"{manifest.document.number} rev. {manifest.document.revision}",
-                        "d:status": manifest.signoff.status}, derived_from=[man] + outcome)
+    dossier = r.entity(
+        pid("dossier", manifest.document.number, manifest.document.revision),
+        {
+            "prov:label": f"{manifest.document.number} rev. {manifest.document.revision}",
+            "d:status": manifest.signoff.status,
+        },
+        derived_from=[man] + outcome,
+    )
     for p in people:
         r.rel("wasAttributedTo", {"prov:entity": dossier, "prov:agent": p})
     return {k: v for k, v in doc.items() if v}

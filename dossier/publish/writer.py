@@ -11,8 +11,6 @@ process) is still recognisably ours and is removed by the next build.
 
 from __future__ import annotations
 
-from .layout import MARKER, SUPPLIER_SEAL
-
 import json
 import os
 import shutil
@@ -21,14 +19,16 @@ from pathlib import Path
 
 from ..common.errors import OutputError
 from ..common.interrupts import acknowledge, check, deferred, note_replaced
-
+from .layout import MARKER, SUPPLIER_SEAL
 
 
 def refuse_sealed(out_dir: Path) -> None:
     """Refuse early to build into a folder that holds a sealed, released revision."""
     if (Path(out_dir) / SUPPLIER_SEAL).is_file():
-        raise OutputError(f"{out_dir}: holds a sealed, released revision, which is frozen; build a new revision "
-                          "into another folder. Nothing was changed.")
+        raise OutputError(
+            f"{out_dir}: holds a sealed, released revision, which is frozen; build a new revision "
+            "into another folder. Nothing was changed."
+        )
 
 
 def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes] | None = None) -> None:
@@ -41,8 +41,10 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
         if not out_dir.is_dir():
             raise OutputError(f"{out_dir}: exists and is not a folder; choose another --out")
         if any(out_dir.iterdir()) and not (out_dir / MARKER).is_file():
-            raise OutputError(f"{out_dir}: folder exists, is not empty and was not made by dossier "
-                              f"(no {MARKER} file); choose another --out. Nothing was changed.")
+            raise OutputError(
+                f"{out_dir}: folder exists, is not empty and was not made by dossier "
+                f"(no {MARKER} file); choose another --out. Nothing was changed."
+            )
         refuse_sealed(out_dir)
     parent = out_dir.parent
     parent.mkdir(parents=True, exist_ok=True)

@@ -13,36 +13,136 @@ last digit of a 1990s year).
 
 from __future__ import annotations
 
-from ..common.errors import SidewallError
-from .units import STANDARD_GRAVITY_M_PER_S2
-
 import datetime as dt
 import math
 import re
 from dataclasses import dataclass
 
+from ..common.errors import SidewallError
+from .units import STANDARD_GRAVITY_M_PER_S2
 
 # Load index → load capacity per tire, kg (ISO 4000-1 / UN ECE R30 Annex 4 / R54 Annex IV).
 # From memory; the values the domain primer lists agree, and every entry lies within 2 % of the
 # geometric series 45·10^(LI/80) (tested).
 LOAD_INDEX_KG: dict[int, int] = {
-    60: 250, 61: 257, 62: 265, 63: 272, 64: 280, 65: 290, 66: 300, 67: 307, 68: 315, 69: 325,
-    70: 335, 71: 345, 72: 355, 73: 365, 74: 375, 75: 387, 76: 400, 77: 412, 78: 425, 79: 437,
-    80: 450, 81: 462, 82: 475, 83: 487, 84: 500, 85: 515, 86: 530, 87: 545, 88: 560, 89: 580,
-    90: 600, 91: 615, 92: 630, 93: 650, 94: 670, 95: 690, 96: 710, 97: 730, 98: 750, 99: 775,
-    100: 800, 101: 825, 102: 850, 103: 875, 104: 900, 105: 925, 106: 950, 107: 975, 108: 1000, 109: 1030,
-    110: 1060, 111: 1090, 112: 1120, 113: 1150, 114: 1180, 115: 1215, 116: 1250, 117: 1285, 118: 1320,
-    119: 1360, 120: 1400, 121: 1450, 122: 1500, 123: 1550, 124: 1600, 125: 1650, 126: 1700, 127: 1750,
-    128: 1800, 129: 1850, 130: 1900, 131: 1950, 132: 2000, 133: 2060, 134: 2120, 135: 2180, 136: 2240,
-    137: 2300, 138: 2360, 139: 2430, 140: 2500, 141: 2575, 142: 2650, 143: 2725, 144: 2800, 145: 2900,
-    146: 3000, 147: 3075, 148: 3150, 149: 3250, 150: 3350, 151: 3450, 152: 3550, 153: 3650, 154: 3750,
-    155: 3875, 156: 4000, 157: 4125, 158: 4250, 159: 4375, 160: 4500,
+    60: 250,
+    61: 257,
+    62: 265,
+    63: 272,
+    64: 280,
+    65: 290,
+    66: 300,
+    67: 307,
+    68: 315,
+    69: 325,
+    70: 335,
+    71: 345,
+    72: 355,
+    73: 365,
+    74: 375,
+    75: 387,
+    76: 400,
+    77: 412,
+    78: 425,
+    79: 437,
+    80: 450,
+    81: 462,
+    82: 475,
+    83: 487,
+    84: 500,
+    85: 515,
+    86: 530,
+    87: 545,
+    88: 560,
+    89: 580,
+    90: 600,
+    91: 615,
+    92: 630,
+    93: 650,
+    94: 670,
+    95: 690,
+    96: 710,
+    97: 730,
+    98: 750,
+    99: 775,
+    100: 800,
+    101: 825,
+    102: 850,
+    103: 875,
+    104: 900,
+    105: 925,
+    106: 950,
+    107: 975,
+    108: 1000,
+    109: 1030,
+    110: 1060,
+    111: 1090,
+    112: 1120,
+    113: 1150,
+    114: 1180,
+    115: 1215,
+    116: 1250,
+    117: 1285,
+    118: 1320,
+    119: 1360,
+    120: 1400,
+    121: 1450,
+    122: 1500,
+    123: 1550,
+    124: 1600,
+    125: 1650,
+    126: 1700,
+    127: 1750,
+    128: 1800,
+    129: 1850,
+    130: 1900,
+    131: 1950,
+    132: 2000,
+    133: 2060,
+    134: 2120,
+    135: 2180,
+    136: 2240,
+    137: 2300,
+    138: 2360,
+    139: 2430,
+    140: 2500,
+    141: 2575,
+    142: 2650,
+    143: 2725,
+    144: 2800,
+    145: 2900,
+    146: 3000,
+    147: 3075,
+    148: 3150,
+    149: 3250,
+    150: 3350,
+    151: 3450,
+    152: 3550,
+    153: 3650,
+    154: 3750,
+    155: 3875,
+    156: 4000,
+    157: 4125,
+    158: 4250,
+    159: 4375,
+    160: 4500,
 }
 
 # Speed symbol → maximum speed, km/h (ISO 4000-1 / UN ECE R30) — the primer's table.
 SPEED_SYMBOL_KMH: dict[str, int] = {
-    "L": 120, "M": 130, "N": 140, "P": 150, "Q": 160, "R": 170, "S": 180, "T": 190, "U": 200,
-    "H": 210, "V": 240, "W": 270, "Y": 300,
+    "L": 120,
+    "M": 130,
+    "N": 140,
+    "P": 150,
+    "Q": 160,
+    "R": 170,
+    "S": 180,
+    "T": 190,
+    "U": 200,
+    "H": 210,
+    "V": 240,
+    "W": 270,
+    "Y": 300,
 }
 
 _SIZE = re.compile(
@@ -115,8 +215,9 @@ class SizeDesignation:
             return "above 300 km/h (speed symbol in brackets)"
         if self.max_speed_kmh:
             base = f"up to {self.max_speed_kmh} km/h"
-            return base + ("; ZR in the size: above 240 km/h" if self.construction == "ZR" and
-                           self.max_speed_kmh > 240 else "")
+            return base + (
+                "; ZR in the size: above 240 km/h" if self.construction == "ZR" and self.max_speed_kmh > 240 else ""
+            )
         if self.construction == "ZR":
             return "above 240 km/h (ZR, no service description)"
         return "no speed symbol"
@@ -133,9 +234,15 @@ def parse_size(text: str) -> SizeDesignation | None:
     if speed and speed.strip("()") not in SPEED_SYMBOL_KMH:
         return None
     return SizeDesignation(
-        text=text.strip(), prefix=(m["prefix"] or "").upper(), width_mm=float(m["width"]),
-        aspect_pct=float(m["aspect"]), construction=m["construction"].upper(), rim_in=float(m["rim"]),
-        load_index=li, load_index_dual=dual, speed_symbol=speed,
+        text=text.strip(),
+        prefix=(m["prefix"] or "").upper(),
+        width_mm=float(m["width"]),
+        aspect_pct=float(m["aspect"]),
+        construction=m["construction"].upper(),
+        rim_in=float(m["rim"]),
+        load_index=li,
+        load_index_dual=dual,
+        speed_symbol=speed,
         reinforced=bool(m["reinforced"] or m["reinforced_pre"]),
     )
 

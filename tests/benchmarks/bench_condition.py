@@ -30,16 +30,36 @@ def synthetic_run() -> RigRun:
     slip = 12.0 * np.where(phase < 0.25, 4 * phase, np.where(phase < 0.75, 2 - 4 * phase, 4 * phase - 4))
     fy = -fz * np.tanh(slip / 5.0) + 20 * rng.standard_normal(N_ROWS)
     channels = {
-        "time": t, "slip_angle": slip, "fz": fz, "fy": fy,
+        "time": t,
+        "slip_angle": slip,
+        "fz": fz,
+        "fy": fy,
         "mz": 0.03 * fz * np.sin(np.radians(slip) * 8) + rng.standard_normal(N_ROWS),
-        "fx": 5 * rng.standard_normal(N_ROWS), "mx": rng.standard_normal(N_ROWS), "my": rng.standard_normal(N_ROWS),
-        "inclination": 0.01 * rng.standard_normal(N_ROWS), "slip_ratio": 0.001 * rng.standard_normal(N_ROWS),
-        "pressure": 240 + 0.2 * rng.standard_normal(N_ROWS), "speed": 30 + 0.05 * rng.standard_normal(N_ROWS),
+        "fx": 5 * rng.standard_normal(N_ROWS),
+        "mx": rng.standard_normal(N_ROWS),
+        "my": rng.standard_normal(N_ROWS),
+        "inclination": 0.01 * rng.standard_normal(N_ROWS),
+        "slip_ratio": 0.001 * rng.standard_normal(N_ROWS),
+        "pressure": 240 + 0.2 * rng.standard_normal(N_ROWS),
+        "speed": 30 + 0.05 * rng.standard_normal(N_ROWS),
     }
     for v in channels.values():
         v.setflags(write=False)
-    spec = RunSpec(0, "BENCH", "bench.csv", "", "ISO 8855", ",", ".", 1, 0,
-                   {k: ColumnSpec(k, "-") for k in channels}, tuple(loads), (0.0,), 240.0)
+    spec = RunSpec(
+        0,
+        "BENCH",
+        "bench.csv",
+        "",
+        "ISO 8855",
+        ",",
+        ".",
+        1,
+        0,
+        {k: ColumnSpec(k, "-") for k in channels},
+        tuple(loads),
+        (0.0,),
+        240.0,
+    )
     return RigRun(spec, "0" * 64, channels, np.arange(N_ROWS) + 2)
 
 

@@ -17,19 +17,44 @@ import numpy as np
 from scipy.optimize import curve_fit
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-import projects as P  # noqa: E402
-from dossier.model import fit as F  # noqa: E402
-from dossier.model import magic_formula as mf  # noqa: E402
-from dossier.project.manifest import FitSettings  # noqa: E402
+import projects as P
+
+from dossier.model import fit as F
+from dossier.model import magic_formula as mf
+from dossier.project.manifest import FitSettings
 
 FZ0, P0, R0 = 4000.0, 240.0, 0.317
 LOADS, CAMBERS, PRESSURES = (2000.0, 4000.0, 6000.0, 8000.0), (-3.0, 0.0, 3.0), (240.0, 280.0)
 SLIP = np.arange(-12.0, 12.01, 0.5)
 KAPPA = np.arange(-0.25, 0.2501, 0.01)
-FY = {"pCy1": 1.35, "pDy1": 1.05, "pDy2": -0.08, "pDy3": 2.0, "pEy1": -0.4, "pEy2": -0.3, "pKy1": -22.0,
-      "pKy2": 1.9, "pKy3": 0.4, "pHy1": 0.002, "pVy1": 0.02, "pVy3": 0.08, "ppy1": 0.2, "ppy3": -0.3}
-MZ = {"qBz1": 9.0, "qBz2": -1.0, "qCz1": 1.2, "qDz1": 0.1, "qDz2": -0.005, "qEz1": -1.5, "qHz1": 0.002,
-      "qDz3": 0.5, "qDz6": 0.002, "ppz1": -0.3}
+FY = {
+    "pCy1": 1.35,
+    "pDy1": 1.05,
+    "pDy2": -0.08,
+    "pDy3": 2.0,
+    "pEy1": -0.4,
+    "pEy2": -0.3,
+    "pKy1": -22.0,
+    "pKy2": 1.9,
+    "pKy3": 0.4,
+    "pHy1": 0.002,
+    "pVy1": 0.02,
+    "pVy3": 0.08,
+    "ppy1": 0.2,
+    "ppy3": -0.3,
+}
+MZ = {
+    "qBz1": 9.0,
+    "qBz2": -1.0,
+    "qCz1": 1.2,
+    "qDz1": 0.1,
+    "qDz2": -0.005,
+    "qEz1": -1.5,
+    "qHz1": 0.002,
+    "qDz3": 0.5,
+    "qDz6": 0.002,
+    "ppz1": -0.3,
+}
 FX = {"pCx1": 1.65, "pDx1": 1.2, "pDx2": -0.07, "pEx1": 0.3, "pKx1": 22.0, "pKx2": 2.0, "ppx1": 0.3, "ppx3": -0.2}
 
 
@@ -66,12 +91,20 @@ def plain(fit: F.ChannelFit, pts, fy_values=None):
     dpi = (data.pressure_kpa - P0) / P0
 
     def model(_, *q):
-        return F._model(fit.channel, data.x, data.fz_n, data.gamma_deg, dpi, {**fixed, **dict(zip(names, q))},
-                        FZ0, R0, fy_values)
+        return F._model(
+            fit.channel, data.x, data.fz_n, data.gamma_deg, dpi, {**fixed, **dict(zip(names, q))}, FZ0, R0, fy_values
+        )
 
     p0 = [s.start for s in free]
-    popt, _ = curve_fit(model, None, data.y, p0=p0, sigma=data.sigma, bounds=([s.lower for s in free],
-                        [s.upper for s in free]), maxfev=20000)
+    popt, _ = curve_fit(
+        model,
+        None,
+        data.y,
+        p0=p0,
+        sigma=data.sigma,
+        bounds=([s.lower for s in free], [s.upper for s in free]),
+        maxfev=20000,
+    )
     return 0.5 * float(np.sum(((model(None, *popt) - data.y) / data.sigma) ** 2))
 
 
@@ -97,10 +130,14 @@ def main() -> None:
     t_plain = time.perf_counter() - t0
     n = sum(p.curve.n_points for p in lat) + sum(p.curve.n_points for p in lon)
     print(f"data: {len(lat)} lateral + {len(lon)} longitudinal operating points, {n} conditioned points")
-    print(f"dossier fit_channel (Fy0+Mz0+Fx0): {t_ours:.3f} s; costs "
-          + ", ".join(f"{f.channel} {cost(f, pts):.1f}" for f, pts in ((fy, lat), (mz, lat), (fx, lon))))
-    print(f"plain curve_fit (same model, start, bounds): {t_plain:.3f} s; costs "
-          + ", ".join(f"{c} {v:.1f}" for c, v in zip(("fy", "mz", "fx"), plain_costs)))
+    print(
+        f"dossier fit_channel (Fy0+Mz0+Fx0): {t_ours:.3f} s; costs "
+        + ", ".join(f"{f.channel} {cost(f, pts):.1f}" for f, pts in ((fy, lat), (mz, lat), (fx, lon)))
+    )
+    print(
+        f"plain curve_fit (same model, start, bounds): {t_plain:.3f} s; costs "
+        + ", ".join(f"{c} {v:.1f}" for c, v in zip(("fy", "mz", "fx"), plain_costs))
+    )
     print(f"ratio plain/dossier: {t_plain / t_ours:.2f}")
     print(f"leave-one-load-out for the three channels (not part of the fit time): {t_lolo:.3f} s")
 

@@ -38,7 +38,7 @@ def live_processes(session: int) -> list[int]:
                 stat = (entry / "stat").read_text()
             except OSError:
                 continue
-            state, _ppid, _pgrp, sid = stat[stat.rindex(")") + 2:].split()[:4]
+            state, _ppid, _pgrp, sid = stat[stat.rindex(")") + 2 :].split()[:4]
             if int(sid) == session and state != "Z":
                 found.append(int(entry.name))
     return found
@@ -53,8 +53,7 @@ def tree_digest(folder: Path) -> str:
 
 
 def start(project: Path, out: Path, workers: int | None, *extra: str) -> subprocess.Popen:
-    cmd = [sys.executable, "-c", "from dossier.cli import run; run()", "build", str(project), "--out", str(out),
-           *extra]
+    cmd = [sys.executable, "-c", "from dossier.cli import run; run()", "build", str(project), "--out", str(out), *extra]
     if workers:
         cmd += ["--workers", str(workers)]
     return subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True)
@@ -69,8 +68,11 @@ def main() -> None:
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         project = Path(tmp) / "project"
-        shutil.copytree(args.project or ROOT / "demo_project", project,
-                        ignore=shutil.ignore_patterns(".dossier-cache", "dossier-out"))
+        shutil.copytree(
+            args.project or ROOT / "demo_project",
+            project,
+            ignore=shutil.ignore_patterns(".dossier-cache", "dossier-out"),
+        )
         out = Path(tmp) / "out"
         t0 = time.monotonic()
         proc = start(project, out, args.workers, "--no-cache")
@@ -80,7 +82,10 @@ def main() -> None:
             sys.exit(f"the first build failed:\n{err}")
         previous = tree_digest(out)
         print(f"cold build of {args.project or 'demo_project'}: {full_s:.1f} s (workers: {args.workers or 'default'})")
-        print(f"{'signal':<8}{'at s':>7}{'exit s':>8}{'gone s':>8}{'code':>6}{'stderr lines':>14}  previous output / leftovers")
+        print(
+            f"{'signal':<8}{'at s':>7}{'exit s':>8}{'gone s':>8}{'code':>6}{'stderr lines':>14}"
+            "  previous output / leftovers"
+        )
         for fraction in (float(f) for f in args.fractions.split(",")):
             for name in args.signals.split(","):
                 sig = SIGNALS[name]
@@ -103,8 +108,10 @@ def main() -> None:
                 same = "intact" if tree_digest(out) == previous else "CHANGED"
                 left = [p.name for p in out.parent.glob(f".{out.name}.*")]
                 traceback = "; Traceback on stderr" if "Traceback" in err else ""
-                print(f"SIG{name.upper():<5}{at_s:7.1f}{exit_s:8.2f}{gone_s:8.2f}{proc.returncode:6d}{len(lines):14d}"
-                      f"  {same} / {left or 'none'}{traceback}")
+                print(
+                    f"SIG{name.upper():<5}{at_s:7.1f}{exit_s:8.2f}{gone_s:8.2f}{proc.returncode:6d}{len(lines):14d}"
+                    f"  {same} / {left or 'none'}{traceback}"
+                )
 
 
 if __name__ == "__main__":

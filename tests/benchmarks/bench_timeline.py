@@ -21,8 +21,15 @@ import dossier.engine.build as B
 import dossier.engine.workers as W
 
 ROOT = Path(__file__).resolve().parents[2]
-STAGES = ["check", "fit_specimens", "run_figure_tasks", "make_context", "render_site", "render_volumes",
-          "write_dossier"]
+STAGES = [
+    "check",
+    "fit_specimens",
+    "run_figure_tasks",
+    "make_context",
+    "render_site",
+    "render_volumes",
+    "write_dossier",
+]
 
 
 def main() -> None:
@@ -41,12 +48,14 @@ def main() -> None:
 
     W.WorkerPool.__init__ = recording_init
     for name in STAGES:
+
         def timed(*a, _f=getattr(B, name), _name=name, **k):
             start = time.perf_counter()
             try:
                 return _f(*a, **k)
             finally:
                 spans.append((_name, start - t0, time.perf_counter() - t0))
+
         setattr(B, name, functools.wraps(getattr(B, name))(timed))
     with tempfile.TemporaryDirectory() as tmp:
         project = Path(tmp) / "project"
