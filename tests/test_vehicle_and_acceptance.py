@@ -47,7 +47,7 @@ def test_wong_worked_example_in_si_units_through_a_fitment():
         front_n,
         rear_n,
         10.5 * ft,
-        lambda sid, load: (per_tire[sid], None),
+        lambda sid, load: (per_tire[sid], None, None),
     )
     assert b.understeer_gradient_deg_per_g == pytest.approx(1.364, abs=0.001)
     assert b.characteristic_speed_kmh == pytest.approx(130.7, abs=0.1)
@@ -62,7 +62,7 @@ def test_dual_axle_against_wide_base_single_hand_computed():
     front, rear = 6500 * g, 11500 * g
 
     def stiffness(sid, load):
-        return {"steer": 2500 + 0.06 * load, "dual": 2000 + 0.05 * load, "wide": 3500 + 0.06 * load}[sid], None
+        return {"steer": 2500 + 0.06 * load, "dual": 2000 + 0.05 * load, "wide": 3500 + 0.06 * load}[sid], None, None
 
     dual = balance(AxleFitment("steer", 2, "single"), AxleFitment("dual", 4, "dual"), front, rear, 3.8, stiffness)
     wide = balance(

@@ -19,6 +19,7 @@ from ..evaluation.acceptance import FAILS, MARGINAL, MEETS, Verdict
 from ..metrics.evaluate import MetricValue
 from ..project.catalogue import METRICS
 from ..project.manifest import Manifest
+from ..standards.coverage import effective_dof, interval
 
 COMPARED = (
     "cornering_stiffness",
@@ -109,7 +110,7 @@ def compare(
             ci = None
             if a.stderr is not None and b.stderr is not None:
                 sd = math.hypot(a.stderr, b.stderr)
-                ci = (d - 1.96 * sd, d + 1.96 * sd)
+                ci = interval(d, sd, effective_dof([(a.stderr, a.dof), (b.stderr, b.dof)]))
             pct = 100.0 * d / b.value if b.value else float("nan")
             r = rep.get(REPEATABILITY_OF.get(name, ""))
             excludes_zero = ci is not None and (ci[0] > 0 or ci[1] < 0)

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 from ..metrics.evaluate import single_metric
 from ..model.fit import SpecimenModel
 from ..project.manifest import Manifest
+from ..standards.coverage import effective_dof, interval
 from ..standards.units import STANDARD_GRAVITY_M_PER_S2
 
 DEG_PER_RAD = 180.0 / math.pi  # the "57.3" of the handbook formulas
@@ -105,11 +106,12 @@ def balance(
     stiffness_n_per_deg,
     extrapolated=lambda specimen, load: False,
 ) -> Balance:
-    """Understeer gradient of a fitment; `stiffness_n_per_deg(specimen, tire_load_n)` → (value, stderr | None)."""
+    """Understeer gradient of a fitment; `stiffness_n_per_deg(specimen, tire_load_n)` → (value,
+    stderr | None, degrees of freedom | None)."""
     fl = front_axle_load_n / front.tires
     rl = rear_axle_load_n / rear.tires
-    cf, sf = stiffness_n_per_deg(front.specimen, fl)
-    cr, sr = stiffness_n_per_deg(rear.specimen, rl)
+    cf, sf, nf = stiffness_n_per_deg(front.specimen, fl)
+    cr, sr, nr = stiffness_n_per_deg(rear.specimen, rl)
     caf, car = front.tires * cf, rear.tires * cr
     k = understeer_gradient_deg_per_g(front_axle_load_n, rear_axle_load_n, caf, car)
     ci = None
@@ -118,8 +120,11 @@ def balance(
         # unless the same specimen is on both axles (then fully correlated: worst case, added linearly).
         gf = -front_axle_load_n / caf**2 * front.tires * sf
         gr = rear_axle_load_n / car**2 * rear.tires * sr
-        sd = abs(gf) + abs(gr) if front.specimen == rear.specimen else math.hypot(gf, gr)
-        ci = (k - 1.96 * sd, k + 1.96 * sd)
+        if front.specimen == rear.specimen:  # one fit: its own degrees of freedom
+            sd, dof = abs(gf) + abs(gr), nf
+        else:
+            sd, dof = math.hypot(gf, gr), effective_dof([(gf, nf), (gr, nr)])
+        ci = interval(k, sd, dof)
     return Balance(
         front.specimen,
         rear.specimen,
@@ -146,7 +151,7 @@ def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
 
     def stiffness(sid, load):
         mv = single_metric(by_id[sid], "cornering_stiffness", load)
-        return mv.value, mv.stderr
+        return mv.value, mv.stderr, mv.dof
 
     def extrapolated(sid, load):
         lo, hi = by_id[sid].fy.load_range_n

@@ -23,6 +23,7 @@ from ..conditioning import estimates
 from ..conditioning.steady_state import OperatingPoint
 from ..model.fit import SpecimenModel
 from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
+from ..standards.coverage import interval
 
 SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
 SLIP_STEP_RATIO = 1e-5
@@ -52,6 +53,7 @@ class MetricValue:
     crosscheck: float | None = None  # model-free estimate from the conditioned data
     crosscheck_diff_pct: float | None = None
     finding: str = ""
+    dof: int | None = None  # degrees of freedom of the interval (dossier.standards.coverage)
 
 
 # --- evaluation helpers -----------------------------------------------------------------------
@@ -402,8 +404,8 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                     sd = None  # the location of a peak that was not reached has no interval
         if extrapolated:
             notes.append("outside the measured load range: extrapolated")
-        t95 = max(f.t95 for f in fits)
-        ci = None if sd is None else (value - t95 * sd, value + t95 * sd)
+        dof = min(f.statistics.dof for f in fits)  # see dossier.standards.coverage
+        ci = None if sd is None else interval(value, sd, dof)
         cc = diff = None
         finding = ""
         if nominal_pts and d.name in ("cornering_stiffness", "peak_lateral_friction"):
@@ -436,6 +438,7 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                 cc,
                 diff,
                 finding,
+                dof,
             )
         )
     return out

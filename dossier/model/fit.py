@@ -25,6 +25,7 @@ from ..common.errors import StageError
 from ..conditioning.steady_state import OperatingPoint
 from ..model import magic_formula as mf
 from ..project.manifest import FitSettings
+from ..standards.coverage import coverage_factor
 
 STRONG_CORRELATION = 0.95
 CHANNEL_LABEL = {"fy": "lateral force Fy0", "mz": "aligning moment Mz0", "fx": "longitudinal force Fx0"}
@@ -341,7 +342,7 @@ def _solve(
     max_restarts: int = 3,
     prune: bool = True,
 ) -> ChannelFit:
-    from scipy import optimize, stats  # imported here: not needed when results come from the cache
+    from scipy import optimize  # imported here: not needed when results come from the cache
 
     free = [s for s in setting_list if not s.held]
     names = tuple(s.name for s in free)
@@ -449,7 +450,7 @@ def _solve(
     sd = np.sqrt(np.diag(cov))
     with np.errstate(invalid="ignore", divide="ignore"):
         corr = cov / np.outer(sd, sd)
-    t95 = float(stats.t.ppf(0.975, dof))
+    t95 = coverage_factor(dof)
 
     estimates = []
     values = {**fixed, **dict(zip(names, x))}
