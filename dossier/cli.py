@@ -1,6 +1,7 @@
 """The command line: build, check, verify, digest, seal, countersign, export, keygen, diff.
 
-Exit codes (documented in the README and :mod:`dossier.errors`): 0 success; 2 bad command line;
+Exit codes (documented in the README and :mod:`dossier.common.errors`): 0 success; 1 a prompt was
+aborted; 2 bad command line;
 3 manifest, rig data or another input rejected; 4 a stage could not produce a result it stands
 behind, or the output folder is not ours to replace; 5 verification failed; 6 the dossier's
 state does not allow this (sealing a draft); 7 intact, but a signer was not checked against a

@@ -6,10 +6,12 @@ reproducible (fixed hash salt, no date) so that the same inputs give the same by
 
 from __future__ import annotations
 
+import contextlib
 import io
 import re
 
 import matplotlib
+import matplotlib.style
 import numpy as np
 from matplotlib.figure import Figure
 
@@ -56,13 +58,13 @@ def style_settings(style: bytes) -> dict[str, str]:
 def _style_context(style: bytes):
     """matplotlib's defaults, then the theme's style, then our reproducibility settings: what
     ``rc_context(fname=...)`` does with a style file, from its bytes."""
-    from matplotlib.style.core import STYLE_BLACKLIST
-
     if not style:
         return matplotlib.rc_context(rc=_REPRODUCIBLE)
-    base = {k: v for k, v in matplotlib.rcParamsDefault.items() if k not in STYLE_BLACKLIST}
-    themed = {k: v for k, v in style_settings(style).items() if k not in STYLE_BLACKLIST}
-    return matplotlib.rc_context(rc={**base, **themed, **_REPRODUCIBLE})
+    stack = contextlib.ExitStack()
+    stack.enter_context(matplotlib.rc_context())  # everything below is undone on leaving
+    stack.enter_context(matplotlib.style.context(style_settings(style), after_reset=True))
+    stack.enter_context(matplotlib.rc_context(rc=_REPRODUCIBLE))
+    return stack
 
 
 def _render(style: bytes, draw, size=(7.0, 4.2), fit_labels: bool = False) -> bytes:

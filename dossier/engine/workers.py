@@ -11,7 +11,7 @@ process does all the jobs. Results never depend on the number of workers: every 
 function of its arguments and results come back in order.
 
 Each worker is one process with a pipe of its own, fed by one relay thread of the calling
-process, one job at a time. Interruptions (:mod:`dossier.interrupts`): Ctrl-C reaches every
+process, one job at a time. Interruptions (:mod:`dossier.common.interrupts`): Ctrl-C reaches every
 process of the terminal's foreground group, but only the calling process decides; workers
 ignore SIGINT (they are forked from a server that was started with SIGINT blocked, so the
 signal cannot reach them before they ignore it, nor the server while it imports). When the
