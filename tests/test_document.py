@@ -169,3 +169,28 @@ def test_links_into_another_volume_become_plain_text():
     assert b'<a href="#fit">here</a>' in out  # the anchor is in this volume: still a link
     assert b'<span class="prov-link" title="source">pDy1</span>' in out  # in another volume: text
     assert b'<a href="site.html#x">site</a>' in out  # not an in-page link: untouched
+
+
+@pytest.mark.parametrize(
+    ("text", "message"),
+    [
+        ('{{ value("A", "cornering_stiffness", "abc") }}', "line 1: the load must be a number in N"),
+        ("ok\n{{ 1/0 }}", "line 2: ZeroDivisionError"),
+        ("{% for i in range(10**9) %}x{% endfor %}", "range of 1000000000 items is beyond the limit"),
+        ("{{ 'x' * 10**9 }}", "beyond 1000000 items"),
+        ("{{ 2 ** 100000 }}", "an exponent of 100000 is beyond the limit"),
+        (
+            "{% for i in range(10000) %}{% for j in range(10000) %}{% for k in range(100) %}{% endfor %}"
+            "{% endfor %}{% endfor %}",
+            "rendering took longer than 5 s",
+        ),
+        ("{% for i in range(10000) %}{{ 'y' * 1000 }}{% endfor %}", "exceeds 1000000 characters"),
+    ],
+)
+def test_a_narrative_expression_that_fails_or_runs_away_is_a_narrative_error(tmp_path, text, message):
+    # every failure of the engineer's text names the file and line, within the rendering budget
+    root = make_project(tmp_path / "p", narrative=text)
+    with pytest.raises(NarrativeError, match="notes/summary.md") as exc:
+        build(root, tmp_path / "o", use_cache=False, workers=1)
+    assert message in str(exc.value)
+    assert not (tmp_path / "o").exists()  # nothing half-written

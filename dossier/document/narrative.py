@@ -21,7 +21,11 @@ Functions available in the text::
 
 from __future__ import annotations
 
+import contextlib
 import math
+import signal
+import threading
+import time
 import traceback
 
 import jinja2
@@ -37,6 +41,64 @@ class _Unknown(Exception):
     pass
 
 
+class _OverBudget(Exception):
+    pass
+
+
+# A narrative is a page of text with a few values in it; these bounds are far above any such page
+# and far below what would stall a build or exhaust its memory.
+MAX_SECONDS = 5.0  # to render one narrative file
+MAX_OUTPUT_CHARS = 1_000_000  # of one rendered narrative file
+MAX_RANGE = 10_000  # items of one range(...)
+MAX_POWER = 1_000  # largest exponent of `**`
+
+
+class _Sandbox(ImmutableSandboxedEnvironment):
+    """Jinja2's immutable sandbox with bounded ranges, repetitions and powers."""
+
+    intercepted_binops = frozenset({"*", "**"})
+
+    def call_binop(self, context, operator, left, right):
+        if operator == "**" and isinstance(right, (int, float)) and abs(right) > MAX_POWER:
+            raise _OverBudget(f"an exponent of {right!r} is beyond the limit of {MAX_POWER}")
+        if operator == "*":
+            for seq, times in ((left, right), (right, left)):
+                if (
+                    isinstance(seq, (str, list, tuple))
+                    and isinstance(times, int)
+                    and len(seq) * times > MAX_OUTPUT_CHARS
+                ):
+                    raise _OverBudget(f"repeating {len(seq)} items {times} times is beyond {MAX_OUTPUT_CHARS} items")
+        return super().call_binop(context, operator, left, right)
+
+
+def _bounded_range(*args):
+    r = range(*args)
+    if len(r) > MAX_RANGE:
+        raise _OverBudget(f"range of {len(r)} items is beyond the limit of {MAX_RANGE}")
+    return r
+
+
+@contextlib.contextmanager
+def _time_budget(seconds: float):
+    """Raise _OverBudget in the rendering code after `seconds` (a timer signal: main thread only;
+    elsewhere the output loop checks the clock between pieces of output)."""
+    if threading.current_thread() is not threading.main_thread() or not hasattr(signal, "setitimer"):
+        yield
+        return
+
+    def expire(signum, frame):
+        raise _OverBudget(f"rendering took longer than {seconds:g} s")
+
+    previous = signal.signal(signal.SIGALRM, expire)
+    signal.setitimer(signal.ITIMER_REAL, seconds)
+    try:
+        yield
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
+
+
 def render_markdown(text: str) -> str:
     """Markdown → HTML with raw HTML off and images off (CommonMark plus tables)."""
     md = MarkdownIt("commonmark", {"html": False, "linkify": False, "typographer": False}).enable("table")
@@ -47,21 +109,42 @@ def render_markdown(text: str) -> str:
 def render_narrative(name: str, text: str, ctx) -> str:
     """Render one narrative file (template, then Markdown) against the dossier context `ctx`.
 
-    Raises NarrativeError naming the file and line of an unknown reference or syntax error.
+    Raises NarrativeError naming the file and line of an unknown reference, a syntax error, a
+    failing expression (a wrong argument, a division by zero), or a text over its budgets
+    (:data:`MAX_SECONDS`, :data:`MAX_OUTPUT_CHARS`, :data:`MAX_RANGE`).
     """
     # A loader that names the file, so that errors inside the text point at its own lines.
     loader = jinja2.FunctionLoader(lambda n: (text, name, lambda: True) if n == name else None)
-    env = ImmutableSandboxedEnvironment(undefined=jinja2.StrictUndefined, autoescape=False, loader=loader)
-    env.globals.update(_functions(ctx))
+    env = _Sandbox(undefined=jinja2.StrictUndefined, autoescape=False, loader=loader)
+    env.globals.update(_functions(ctx), range=_bounded_range)
     try:
-        rendered = env.get_template(name).render()
+        template = env.get_template(name)
+        rendered = _render_bounded(template)
     except jinja2.TemplateSyntaxError as exc:
         raise NarrativeError(f"{name}, line {exc.lineno}: template syntax: {exc.message}") from None
-    except (jinja2.UndefinedError, _Unknown, jinja2.exceptions.SecurityError, TypeError) as exc:
+    except RecursionError:
+        raise NarrativeError(f"{name}: nested too deeply to render") from None
+    except Exception as exc:
         line = _template_line(exc, name)
         where = f"{name}, line {line}" if line else name
-        raise NarrativeError(f"{where}: {exc}") from None
+        kind = "" if isinstance(exc, (jinja2.UndefinedError, _Unknown, _OverBudget)) else f"{type(exc).__name__}: "
+        raise NarrativeError(f"{where}: {kind}{exc}") from None
     return render_markdown(rendered)
+
+
+def _render_bounded(template) -> str:
+    """Render within the time and output budgets."""
+    parts, size = [], 0
+    deadline = time.monotonic() + MAX_SECONDS
+    with _time_budget(MAX_SECONDS):
+        for piece in template.generate():
+            size += len(piece)
+            if size > MAX_OUTPUT_CHARS:
+                raise _OverBudget(f"the rendered text exceeds {MAX_OUTPUT_CHARS} characters")
+            if time.monotonic() > deadline:
+                raise _OverBudget(f"rendering took longer than {MAX_SECONDS:g} s")
+            parts.append(piece)
+    return "".join(parts)
 
 
 def _template_line(exc: BaseException, name: str) -> int | None:
@@ -80,6 +163,8 @@ def _functions(ctx) -> dict:
         if metric not in METRICS:
             raise _Unknown(f"unknown metric {metric!r}; metric names are in the glossary")
         view = next(v for v in ctx.specimens if v.specimen.id == specimen)
+        if load_n is not None and (isinstance(load_n, bool) or not isinstance(load_n, (int, float))):
+            raise _Unknown(f"the load must be a number in N, e.g. 6000; got {load_n!r}")
         load = ctx.nominal_load_n if load_n is None else float(load_n)
         if METRICS[metric].per_load:
             m = view.metric(metric, load)
