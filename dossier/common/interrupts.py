@@ -33,10 +33,19 @@ import threading
 import time
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from ..common.errors import EXIT_SIGINT, EXIT_SIGTERM
 
-EXIT_CODES = {signal.SIGINT: EXIT_SIGINT, signal.SIGTERM: EXIT_SIGTERM}
+if TYPE_CHECKING:
+    from collections.abc import Callable
+    from types import FrameType
+    from typing import Any, TypeAlias
+
+    # a signal's disposition, as signal.signal returns it
+    Handler: TypeAlias = Callable[[int, FrameType | None], Any] | int | signal.Handlers | None
+
+EXIT_CODES: dict[int, int] = {signal.SIGINT: EXIT_SIGINT, signal.SIGTERM: EXIT_SIGTERM}
 REPEAT_S = 0.005  # how often an interruption that has not reached our own code is raised again
 
 
@@ -61,13 +70,13 @@ class Guard:
     """While active, SIGINT and SIGTERM raise `Interrupted` in the main thread, until our own
     code has caught it; use as a context manager."""
 
-    def __init__(self):
+    def __init__(self) -> None:
         self.signum: int | None = None  # the first signal received
         self.acknowledged = False  # our own code has caught the interruption: its cleanup runs
         self.replaced: Path | None = None  # an output folder swapped in before the signal took effect
         self._lock = threading.Lock()
-        self._previous: dict[int, object] = {}
-        self._unraisable = None
+        self._previous: dict[int, Handler] = {}
+        self._unraisable: Callable[[sys.UnraisableHookArgs], Any] | None = None  # the hook ours replaced
         self._outer: Guard | None = None
 
     def __enter__(self) -> Guard:
@@ -110,7 +119,9 @@ class Guard:
             with self._lock:
                 if self.acknowledged:
                     return
-                _thread.interrupt_main(self.signum)  # as if the signal came again: calls _handle
+                assert self.signum is not None  # _handle sets it before it starts this thread
+                # as if the signal came again: calls _handle (the stub wants a Signals; the value is the same)
+                _thread.interrupt_main(signal.Signals(self.signum))
 
     def message(self, command: str | None = "build") -> str:
         """The one line to print on stderr for an interrupted `command`."""

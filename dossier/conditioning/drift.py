@@ -81,11 +81,11 @@ def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: f
         return None
     loads = sorted({p.load_n for p in ctl}, key=lambda v: (abs(v - nominal_load_n), v))
     load = loads[0]
-    at_load = sorted((p for p in ctl if p.load_n == load), key=lambda p: p.tested_at)
+    at_load = sorted((p for p in ctl if p.load_n == load), key=_tested_at)
     repeats = tuple(
         ControlRepeat(
             p.run_index,
-            p.tested_at,
+            _tested_at(p),
             load,
             estimates.cornering_stiffness_n_per_deg(p.curve),
             estimates.peak_friction(p.curve),
@@ -108,6 +108,12 @@ def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: f
         drifts.append(MetricDrift(name, 100.0 * slope / intercept, 100.0 * slope * span / intercept))
     intercept, slope = line["peak_friction"]
     return DriftEstimate(control, load, repeats, tuple(drifts), t_ref, float(intercept), float(slope), False)
+
+
+def _tested_at(p: OperatingPoint) -> dt.datetime:
+    """Return the test time of a control repeat (estimate_drift keeps only points that have one)."""
+    assert p.tested_at is not None  # ctl in estimate_drift holds only points with a test time
+    return p.tested_at
 
 
 def correct_points(points: list[OperatingPoint], estimate: DriftEstimate) -> tuple[list[OperatingPoint], DriftEstimate]:

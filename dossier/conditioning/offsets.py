@@ -28,34 +28,29 @@ class OffsetSplit:
 def split_offsets(points: list[OperatingPoint]) -> list[OffsetSplit]:
     """Pair forward and reverse operating points of a specimen at equal load and camber."""
     out = []
-    fwd = {}
+    # (specimen, load, camber, rolling direction) -> (Fy, Mz) at zero slip of each point there
+    fwd: dict[tuple[str, float, float, str], list[tuple[float, float | None]]] = {}
     for p in points:
-        if p.sweep == "slip_angle" and p.offsets and p.offsets.fy_at_zero_slip_n is not None:
-            fwd.setdefault((p.specimen, p.load_n, p.camber_deg, p.rolling_direction), []).append(p)
+        o = p.offsets
+        if p.sweep == "slip_angle" and o and o.fy_at_zero_slip_n is not None:
+            key = (p.specimen, p.load_n, p.camber_deg, p.rolling_direction)
+            fwd.setdefault(key, []).append((o.fy_at_zero_slip_n, o.mz_at_zero_slip_nm))
     for (sid, load, camber, direction), ps in sorted(fwd.items()):
         if direction != "forward" or (sid, load, camber, "reverse") not in fwd:
             continue
-        f = _mean([p.offsets.fy_at_zero_slip_n for p in ps])
-        r = _mean([p.offsets.fy_at_zero_slip_n for p in fwd[(sid, load, camber, "reverse")]])
-        mf = [p.offsets.mz_at_zero_slip_nm for p in ps]
-        mr = [p.offsets.mz_at_zero_slip_nm for p in fwd[(sid, load, camber, "reverse")]]
-        has_mz = all(v is not None for v in mf + mr)
-        mzf, mzr = (_mean(mf), _mean(mr)) if has_mz else (None, None)
-        out.append(
-            OffsetSplit(
-                sid,
-                load,
-                camber,
-                f,
-                r,
-                0.5 * (f + r),
-                0.5 * (f - r),
-                None if not has_mz else 0.5 * (mzf + mzr),
-                None if not has_mz else 0.5 * (mzf - mzr),
-            )
-        )
+        rs = fwd[(sid, load, camber, "reverse")]
+        f = _mean([fy for fy, _ in ps])
+        r = _mean([fy for fy, _ in rs])
+        mf = [mz for _, mz in ps if mz is not None]
+        mr = [mz for _, mz in rs if mz is not None]
+        conicity_mz: float | None = None
+        ply_steer_mz: float | None = None
+        if len(mf) == len(ps) and len(mr) == len(rs):  # Mz on every point of both directions
+            mzf, mzr = _mean(mf), _mean(mr)
+            conicity_mz, ply_steer_mz = 0.5 * (mzf + mzr), 0.5 * (mzf - mzr)
+        out.append(OffsetSplit(sid, load, camber, f, r, 0.5 * (f + r), 0.5 * (f - r), conicity_mz, ply_steer_mz))
     return out
 
 
-def _mean(values):
+def _mean(values: list[float]) -> float:
     return float(sum(values) / len(values))

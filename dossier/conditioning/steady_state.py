@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, field
+from typing import cast
 
 import numpy as np
 
@@ -95,7 +96,9 @@ class SlipCurve:
     @property
     def main(self) -> np.ndarray:
         """The force the sweep is about: Fy for slip-angle sweeps, Fx for slip-ratio sweeps."""
-        return self.fy_n if self.sweep == "slip_angle" else self.fx_n
+        # Present on every curve conditioning makes: _operating_point reads the sweep's force
+        # channel (a KeyError otherwise) before it bins; so a cast (no run-time check) suffices.
+        return cast(np.ndarray, self.fy_n if self.sweep == "slip_angle" else self.fx_n)
 
     def scaled(self, factor: float) -> SlipCurve:
         """Return the curve with forces and moments (not the load) multiplied by `factor`."""
@@ -352,7 +355,7 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
     x = ch[sweep][sel]
     d = direction[sel]
     data = {name: ch[name][sel] for name in ("fz", "fy", "mz", "fx") if name in ch}
-    halves = {}
+    halves: dict[str, SlipCurve | None] = {}
     for label, sign in (("rising", 1), ("falling", -1)):
         m = d == sign
         if np.count_nonzero(m) == 0:

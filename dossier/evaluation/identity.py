@@ -57,6 +57,7 @@ def specimen_identity(s: Specimen, manifest: Manifest) -> SpecimenIdentity:
             + ", ".join(f"{t.load_n / 1000:.1f} kN ({t.pct_of_rated:.0f} %)" for t in over)
         )
     if age is not None and age < 0:
+        assert code is not None  # an age comes only from a parsed date code
         findings.append(f"the date code (week {code.week} of {code.year}) is after the test date {test_date}")
     elif age is not None and age > OLD_TIRE_YEARS:
         findings.append(f"specimen was {age:.1f} years old at test: rubber ageing may affect the results")

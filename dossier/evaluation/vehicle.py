@@ -151,10 +151,13 @@ def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
 
     def stiffness(sid, load):
         mv = single_metric(by_id[sid], "cornering_stiffness", load)
+        assert mv is not None  # by_id holds only lateral fits, and their cornering stiffness is never None
         return mv.value, mv.stderr, mv.dof
 
     def extrapolated(sid, load):
-        lo, hi = by_id[sid].fy.load_range_n
+        fy = by_id[sid].fy
+        assert fy is not None  # by_id holds only models with a lateral fit
+        lo, hi = fy.load_range_n
         return not (0.98 * lo <= load <= 1.02 * hi)
 
     return [

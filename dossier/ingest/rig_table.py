@@ -105,7 +105,7 @@ def parse_table(
         raise RigDataError(
             shown, f"cannot be read as delimited text ({exc}); is it a text export of the rig data?"
         ) from None
-    values = {ch: [] for ch in index}
+    values: dict[str, list[float]] = {ch: [] for ch in index}
     lines: list[int] = []
     for row_i in range(first, len(rows)):
         row = rows[row_i]

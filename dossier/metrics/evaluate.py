@@ -14,14 +14,14 @@ loads outside the fitted range are labelled extrapolation.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
 from ..conditioning import estimates
 from ..conditioning.steady_state import OperatingPoint
-from ..model.fit import SpecimenModel
+from ..model.fit import ChannelFit, SpecimenModel
 from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
 from ..standards.coverage import interval
 
@@ -59,16 +59,23 @@ class MetricValue:
 # --- evaluation helpers -----------------------------------------------------------------------
 
 
+def _fitted(m: SpecimenModel, channel: str) -> ChannelFit:
+    """Return the fit of `channel`; a metric is computed only where its channels were fitted."""
+    fit = m.get(channel)
+    assert fit is not None, channel  # _evaluate skips every metric with a channel missing
+    return fit
+
+
 def _fy(m: SpecimenModel, x, load, v: Values):
-    return m.fy.predict(x, load, values=v["fy"])
+    return _fitted(m, "fy").predict(x, load, values=v["fy"])
 
 
 def _mz(m: SpecimenModel, x, load, v: Values):
-    return m.mz.predict(x, load, values=v["mz"])
+    return _fitted(m, "mz").predict(x, load, values=v["mz"])
 
 
 def _fx(m: SpecimenModel, x, load, v: Values):
-    return m.fx.predict(x, load, values=v["fx"])
+    return _fitted(m, "fx").predict(x, load, values=v["fx"])
 
 
 def _slope(f, h):
@@ -155,7 +162,7 @@ def _memo_peak(channel: str, m: SpecimenModel, load, v: Values, sign: float, ste
     set of coefficient values. The memo holds the fit it was computed for (so that its id cannot be
     reused) and is emptied at the start of every evaluation.
     """
-    fit = m.get(channel)
+    fit = _fitted(m, channel)
     key = (channel, id(fit), float(load), sign, tuple(v[channel].values()))
     hit = _PEAK_MEMO.get(key)
     if hit is None:
@@ -342,7 +349,7 @@ PEAK_BOUND: dict[str, tuple[str, tuple[float, ...]]] = {
 
 
 def metric_values(
-    models: SpecimenModel, load_n: float, points: list[OperatingPoint] = (), crosscheck_threshold_pct: float = 5.0
+    models: SpecimenModel, load_n: float, points: Sequence[OperatingPoint] = (), crosscheck_threshold_pct: float = 5.0
 ) -> list[MetricValue]:
     """Return every per-load metric the specimen's models support at `load_n`, with intervals.
 
@@ -410,8 +417,8 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
         finding = ""
         if nominal_pts and d.name in ("cornering_stiffness", "peak_lateral_friction"):
             fn = estimates.cornering_stiffness_n_per_deg if d.name == "cornering_stiffness" else estimates.peak_friction
-            vals = [fn(p.curve) for p in nominal_pts]
-            vals = [x for x in vals if x is not None]
+            estimated = [fn(p.curve) for p in nominal_pts]
+            vals = [x for x in estimated if x is not None]
             if vals:
                 cc = float(np.mean(vals))
                 diff = 100.0 * (value / cc - 1.0)
@@ -448,7 +455,7 @@ def _delta_stderr(models: SpecimenModel, d: MetricDefinition, load_n: float, bas
     var = 0.0
     any_finite = False
     for channel in d.channels:
-        fit = models.get(channel)
+        fit = _fitted(models, channel)
         names = fit.fitted_names
         cov = fit.covariance
         finite = np.array([np.isfinite(cov[i, i]) for i in range(len(names))], dtype=bool)

@@ -320,7 +320,7 @@ def fit_channel(
     specimen = points[0].specimen
     data = fit_data(points, channel)
     angle = channel != "fx"
-    point_fits = ()
+    point_fits: tuple[PointFit, ...] = ()
     if channel in ("fy", "fx"):
         point_fits = tuple(fit_point(p.curve.x, p.curve.main, p.mean_load_n, angle) for p in points)
     setting_list = _settings(channel, data, point_fits, fz0_n, r0_m, fy_values)
@@ -398,6 +398,7 @@ def _solve(
             lo + 1e-6 * span,
             hi - 1e-6 * span,
         )
+    assert best is not None  # the loop runs at least once (max_restarts >= 0 at every call)
     res, rmse = best
     if evaluations >= budget and not res.success:
         raise StageError(

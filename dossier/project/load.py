@@ -100,6 +100,7 @@ def _project(raw_bytes: bytes, project_dir: Path, read_named, read_templates) ->
     if problems:
         raise ManifestError(shown, problems)
     files.update(read_templates())
+    assert data is not None  # the schema returns None only with a problem, raised above
     manifest = replace(typed_manifest(data, project_dir), sha256=hashlib.sha256(raw_bytes).hexdigest())
     return Project(manifest, dict(sorted(files.items())))
 
@@ -118,6 +119,7 @@ def parse_manifest(raw: dict, project_dir: Path, shown: str = MANIFEST_NAME) -> 
     data = validated(raw, problems)
     if problems:
         raise ManifestError(shown, problems)
+    assert data is not None  # the schema returns None only with a problem, raised above
     return typed_manifest(data, project_dir)
 
 

@@ -225,7 +225,11 @@ def countersign(
     except ValueError as exc:
         raise UserError(f"{private_key}: cannot sign with this key ({exc})") from None
     key = json.loads(data)["key_id"]
-    target = Path(out) if out else Path(folder) / integrity.SIGNATURES / f"approver-{key}.json"
+    if out:
+        target = Path(out)
+    else:
+        assert folder is not None  # with only a digest the caller names `out` (the command line insists)
+        target = Path(folder) / integrity.SIGNATURES / f"approver-{key}.json"
     _write_new(target, data)
     return target
 

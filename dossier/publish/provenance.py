@@ -23,6 +23,7 @@ import re
 from dataclasses import dataclass, field
 
 from .. import __version__
+from ..conditioning.drift import DriftEstimate
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
 from ..metrics.evaluate import MetricValue
 from ..project.catalogue import METRICS
@@ -67,7 +68,7 @@ class Evidence:
     points: tuple[OperatingPoint, ...]  # after the drift correction, as the fits used them
     models: tuple = ()
     metrics: tuple[MetricValue, ...] = ()
-    drift: object | None = None  # DriftEstimate
+    drift: DriftEstimate | None = None
     offset_splits: tuple = ()
     verdicts: tuple = ()
     standings: tuple = ()
@@ -474,8 +475,8 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
         },
         derived_from=[man] + outcome,
     )
-    for p in people:
-        r.rel("wasAttributedTo", {"prov:entity": dossier, "prov:agent": p})
+    for agent in people:
+        r.rel("wasAttributedTo", {"prov:entity": dossier, "prov:agent": agent})
     return {k: v for k, v in doc.items() if v}
 
 

@@ -7,10 +7,12 @@ build against it. This module only assembles a plain dict; the writer serialises
 from __future__ import annotations
 
 import csv
+import datetime as dt
 import hashlib
 import io
 import json
 import math
+from collections.abc import Sequence
 
 from .. import __version__
 from ..conditioning.drift import DriftEstimate
@@ -29,6 +31,11 @@ def _num(x: float | None) -> float | None:
     if x is None or not math.isfinite(x):
         return None
     return float(f"{x:.10g}")
+
+
+def _iso(when: dt.datetime | None) -> str | None:
+    """Return `when` in ISO 8601, or None when unknown."""
+    return None if when is None else when.isoformat()
 
 
 def _point(p: OperatingPoint) -> dict:
@@ -189,7 +196,7 @@ def results_record(
     fits: list[ChannelFit],
     metrics: list[MetricValue],
     drift: DriftEstimate | None = None,
-    offset_splits: list[OffsetSplit] = (),
+    offset_splits: Sequence[OffsetSplit] = (),
     verdicts=(),
     standings=(),
     recommendation=(None, ""),
@@ -219,9 +226,7 @@ def results_record(
                 "sha256": c.account.sha256,
                 "specimen": c.account.specimen,
                 "run": c.account.run_index,
-                "tested_at": None
-                if manifest.runs[c.account.run_index].tested_at is None
-                else manifest.runs[c.account.run_index].tested_at.isoformat(),
+                "tested_at": _iso(manifest.runs[c.account.run_index].tested_at),
                 "rolling_direction": manifest.runs[c.account.run_index].rolling_direction,
                 "samples": c.account.n_samples,
                 "samples_kept": c.account.n_kept,
