@@ -1,7 +1,7 @@
 """Drift: how the rig's force level moved through the session, seen on the control tire.
 
 The control specimen is re-tested at intervals. For each repeat we take model-free metrics at
-its load (:mod:`dossier.estimates`); a straight line in time through them is the drift. The
+its load (:mod:`dossier.conditioning.estimates`); a straight line in time through them is the drift. The
 force level is tracked by the control's peak friction: the correction factor for a run tested at
 time t is level(t_ref)/level(t), with t_ref the first control repeat, applied to the forces and
 moments (not the load) of every non-control run when the manifest asks for it (``[drift]

@@ -176,14 +176,6 @@ class OperatingPoint:
         """True at the nominal condition the metrics are made at: zero camber, pressure p0 (to 1 kPa)."""
         return self.camber_deg == 0.0 and round(self.pressure_kpa) == round(p0_kpa)
 
-    @property
-    def raw_slip_angle_deg(self) -> np.ndarray:
-        return self.raw_x
-
-    @property
-    def raw_fy_n(self) -> np.ndarray:
-        return self.raw_main
-
 
 @dataclass(frozen=True)
 class RunOverview:

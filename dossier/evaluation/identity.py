@@ -1,6 +1,6 @@
 """Specimen identity as the dossier shows it: decoded sidewall, age at test, test loads vs rating.
 
-Combines :mod:`dossier.sidewall` (pure decoding) with the manifest's specimens and runs.
+Combines :mod:`dossier.standards.sidewall` (pure decoding) with the manifest's specimens and runs.
 """
 
 from __future__ import annotations

@@ -93,10 +93,6 @@ class FitStatistics:
     success: bool
     message: str
 
-    @property
-    def rmse_n(self) -> float:
-        return self.rmse
-
 
 @dataclass(frozen=True)
 class LoadOut:
@@ -170,10 +166,6 @@ class ChannelFit:
     def pressure_kpa(self) -> float:
         return self.p0_kpa
 
-    @property
-    def slip_range_deg(self) -> tuple[float, float]:
-        return self.slip_range
-
     def predict(self, x, load_n, camber_deg=0.0, pressure_kpa=None, values: dict | None = None):
         """Return the model at slip `x` (deg, or slip ratio for fx), load (N), camber (deg), pressure."""
         p = self.p0_kpa if pressure_kpa is None else pressure_kpa
@@ -189,9 +181,6 @@ class ChannelFit:
             self.fy_values,
         )
 
-    def predict_fy_n(self, slip_angle_deg, load_n, values: dict | None = None):
-        return self.predict(slip_angle_deg, load_n, values=values)
-
     def strongly_correlated_pairs(self) -> list[tuple[str, str, float]]:
         out = []
         names = self.fitted_names
@@ -201,9 +190,6 @@ class ChannelFit:
                 if np.isfinite(r) and abs(r) >= STRONG_CORRELATION:
                     out.append((names[i], names[j], float(r)))
         return out
-
-
-LateralFit = ChannelFit  # the lateral fit is the channel fit of "fy"
 
 
 def _model(channel, x, fz, gamma_deg, dpi, values, fz0_n, r0_m, fy_values):

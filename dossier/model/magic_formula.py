@@ -8,7 +8,7 @@ the 2006 edition's list of pure-slip equations *(numbering from memory; the form
 themselves are those of the domain primer, §4)*. The placement of the pressure terms follows
 the domain primer's summary of the 2010 paper and has not been checked against the paper.
 
-Signs: the equations are used in the internal ISO 8855 axes (:mod:`dossier.axes`). A tire
+Signs: the equations are used in the internal ISO 8855 axes (:mod:`dossier.standards.axes`). A tire
 gives negative Fy for positive slip angle there, so fitted ``pKy1`` is negative and ``pDy1``
 positive; the cornering stiffness reported to people is −dFy/dα (SAE J670 definition).
 Driving slip (κ > 0) gives positive Fx, so ``pDx1`` and ``pKx1`` are positive.
@@ -150,17 +150,11 @@ del C
 
 CATALOGUE = {"fy": FY0_COEFFICIENTS, "mz": MZ0_COEFFICIENTS, "fx": FX0_COEFFICIENTS}
 INFO = {c.name: c for cat in CATALOGUE.values() for c in cat}
-FY0_NAMES = tuple(c.name for c in FY0_COEFFICIENTS)
-FY0_INFO = {c.name: c for c in FY0_COEFFICIENTS}
 
 
 def defaults(channel: str) -> dict[str, float]:
     """Return every coefficient of a channel ("fy", "mz", "fx") at its default value."""
     return {c.name: c.default for c in CATALOGUE[channel]}
-
-
-def fy0_defaults() -> dict[str, float]:
-    return defaults("fy")
 
 
 def _fy0_parts(alpha, fz, c, fz0_n, gamma, dpi):

@@ -17,7 +17,6 @@ MANIFEST_NAME = "dossier.toml"
 ROLES = ("baseline", "candidate", "control")
 STATUSES = ("draft", "in review", "released")
 SIGNOFF_ROLES = ("author", "checker", "approver")
-NARRATIVE_PARTS = ("summary", "test_notes", "conclusions")
 
 # Channels a rig file may carry: channel -> quantity (for its unit).
 CHANNELS: dict[str, str] = {

@@ -130,7 +130,7 @@ class Date:
 
 @dataclass(frozen=True)
 class Unit:
-    """A unit spelling accepted for `quantity` (see :mod:`dossier.units`)."""
+    """A unit spelling accepted for `quantity` (see :mod:`dossier.standards.units`)."""
 
     quantity: str
 

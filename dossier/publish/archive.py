@@ -2,7 +2,7 @@
 them (rebuilding one is the engine's: :mod:`dossier.engine.rebuild`).
 
 Reading and the few writes (signature files, key files, an exported bag) happen here; the checks
-themselves are the pure functions of :mod:`dossier.integrity`.
+themselves are the pure functions of :mod:`dossier.publish.integrity`.
 """
 
 from __future__ import annotations

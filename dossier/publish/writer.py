@@ -3,7 +3,7 @@
 The whole dossier is written into a fresh temporary folder beside the target, then swapped in.
 An existing target is replaced only if it carries our marker file (so it is a previous build);
 anything else there is refused, not deleted. An interrupted build (Ctrl-C, SIGTERM: see
-:mod:`dossier.interrupts`) removes its temporary folder and leaves the previous output as it
+:mod:`dossier.common.interrupts`) removes its temporary folder and leaves the previous output as it
 was; a signal that comes while the finished folder is being swapped in waits until the swap is
 complete. Our folders are removed marker last, so that one whose removal was cut short (a killed
 process) is still recognisably ours and is removed by the next build.
