@@ -76,3 +76,100 @@ def test_toml_syntax_error_is_located(tmp_path):
 
 def test_manifest_text_is_still_valid_toml_after_our_edits():
     tomllib.loads(P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [1]))
+
+
+# --- the crash corpus: inputs that once ended in an internal error, each now a located problem --
+
+VEHICLE = """
+[vehicle]
+name = "Test car"
+wheelbase = { value = 2.7, unit = "m" }
+front_axle_load = { value = 8000, unit = "N" }
+rear_axle_load = { value = 7000, unit = "N" }
+front = { tires = 2 }
+rear = { tires = 2 }
+"""
+BASE = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000])
+
+
+def _one_run(file):
+    return P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", file, [4000])
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        (_one_run("a" * 300 + ".csv"), "runs[0].file: has a name longer than 255 bytes"),
+        (_one_run("."), "runs[0].file: must name a file inside the project folder; got '.'"),
+        (_one_run("rig"), "runs[0].file: is not a regular file: 'rig' (a folder)"),
+        (_one_run("rig/\\u0000a.csv"), "runs[0].file: contains a NUL byte"),
+        (BASE + VEHICLE.replace('unit = "m"', 'unit = "metre"'), "vehicle.wheelbase.unit: unknown unit 'metre'"),
+        (
+            BASE + VEHICLE.replace('{ value = 2.7, unit = "m" }', '{ unit = "m" }'),
+            "vehicle.wheelbase.value: is required",
+        ),
+        (
+            BASE + '\n[[targets]]\nmetric = ["cornering_stiffness"]\nload_n = 4000\nminimum = 1\nreference = "x"\n',
+            "targets[0].metric: unknown metric a list",
+        ),
+        (
+            BASE.replace('decimal = "."', 'decimal = "."\nheader_line = ' + str(2**70)),
+            "runs[0].header_line: must be an integer from 1 to 1000000",
+        ),
+        (
+            BASE + VEHICLE.replace("front = { tires = 2 }", "front = { tires = 99999999 }"),
+            "vehicle.front.tires: must be an integer from 1 to 16",
+        ),
+        (BASE.replace("values = [4000]", "values = [1.79e308]"), "runs[0].load_setpoints.values[0]: must be <= 1e+07"),
+        (
+            P.MANIFEST_HEAD
+            + P.specimen_block("PRD-A")
+            + P.specimen_block("PRD A", role="candidate")
+            + P.run_block("PRD-A", "rig/a.csv", [4000])
+            + P.run_block("PRD A", "rig/a.csv", [4000]),
+            "specimens[1].id: 'PRD A' and 'PRD-A' would share the file and page names 'prd-a'",
+        ),
+        (
+            P.MANIFEST_HEAD + P.specimen_block("+++") + P.run_block("+++", "rig/a.csv", [4000]),
+            "specimens[0].id: must contain a letter or a digit",
+        ),
+        ("x = " + "[" * 600 + "]" * 600 + "\n", "TOML syntax: nested too deeply"),
+    ],
+)
+def test_hostile_manifest_values_are_located_problems(tmp_path, text, expected):
+    problems = _problems(_write(tmp_path, text))
+    assert any(p.startswith(expected) for p in problems), problems
+
+
+def test_tested_at_with_and_without_utc_offset_is_one_located_problem(tmp_path):
+    run = P.run_block("A", "rig/a.csv", [4000])
+    local = run.replace("[runs.columns]", "tested_at = 2026-11-03T09:40:00\n[runs.columns]")
+    zoned = run.replace("[runs.columns]", "tested_at = 2026-11-03T10:40:00+01:00\n[runs.columns]")
+    problems = _problems(_write(tmp_path, P.MANIFEST_HEAD + P.specimen_block("A") + local + zoned))
+    assert "runs[1].tested_at: has a UTC offset but runs[0].tested_at has none" in " ".join(problems), problems
+
+
+def test_a_symbolic_link_that_points_to_itself_is_a_located_problem(tmp_path):
+    _write(tmp_path, _one_run("rig/loop.csv"))
+    (tmp_path / "rig/loop.csv").symlink_to("loop.csv")
+    assert any(p.startswith("runs[0].file: is a symbolic link that loops") or "loops" in p for p in _problems(tmp_path))
+
+
+def test_ten_thousand_runs_stop_at_the_stated_limit(tmp_path):
+    text = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000]) * 10_000
+    problems = _problems(_write(tmp_path, text))
+    assert problems == ["runs: must have at most 1000 item(s); got 10000"]
+
+
+def test_a_template_override_that_links_out_of_the_project_is_refused(tmp_path):
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (outside / "base.html").write_text("stolen", encoding="utf-8")
+    root = tmp_path / "p"
+    root.mkdir()
+    _write(root, BASE)
+    (root / "templates").mkdir()
+    (root / "templates" / "base.html").symlink_to(outside / "base.html")
+    with pytest.raises(ManifestError) as exc:
+        load_project(root)
+    assert "templates/base.html: (a template override) resolves outside the project folder" in str(exc.value)

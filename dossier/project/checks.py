@@ -8,6 +8,7 @@ that the files the manifest names exist and reads them, :mod:`dossier.project.lo
 from __future__ import annotations
 
 from ..common.errors import Problem
+from ..common.names import slug
 from ..standards import sidewall
 from .manifest import REQUIRED_CHANNELS, SWEEP_CHANNELS, quantity_value
 from .validation import suggest
@@ -18,11 +19,27 @@ def check_references(data: dict, problems: list[Problem]) -> None:
     specimens = data.get("specimens") or []
     ids = [s["id"] for s in specimens if s and s.get("id")]
     seen: set[str] = set()
+    named: dict[str, str] = {}  # file-name form -> the first id that has it
     for i, s in enumerate(specimens):
         if s and s.get("id") in seen:
             problems.append(Problem(f"specimens[{i}].id", f"duplicate specimen id {s['id']!r}"))
-        if s and s.get("id"):
-            seen.add(s["id"])
+        elif s and s.get("id"):
+            sid = s["id"]
+            seen.add(sid)
+            form = slug(sid)
+            if not form:
+                problems.append(Problem(f"specimens[{i}].id", f"must contain a letter or a digit; got {sid!r}"))
+            elif form in named:
+                problems.append(
+                    Problem(
+                        f"specimens[{i}].id",
+                        f"{sid!r} and {named[form]!r} would share the file and "
+                        f"page names '{form}' (ids are told apart by their letters and digits); "
+                        "rename one",
+                    )
+                )
+            else:
+                named[form] = sid
     for i, s in enumerate(specimens):
         if s and s.get("size") and sidewall.parse_size(s["size"]) is None:
             problems.append(
@@ -137,6 +154,17 @@ def check_references(data: dict, problems: list[Problem]) -> None:
                     "is required for every run when [drift] is set (drift is estimated over time)",
                 )
             )
+    times = [(i, r["tested_at"]) for i, r in enumerate(data.get("runs") or []) if r and r.get("tested_at")]
+    zoned = [i for i, t in times if t.tzinfo is not None]
+    if zoned and len(zoned) < len(times):
+        local = next(i for i, t in times if t.tzinfo is None)
+        problems.append(
+            Problem(
+                f"runs[{zoned[0]}].tested_at",
+                f"has a UTC offset but runs[{local}].tested_at has none; "
+                "give every run's tested_at with an offset (2026-11-03T09:40:00+01:00) or none",
+            )
+        )
     used = {r.get("specimen") for r in (data.get("runs") or []) if r}
     for i, s in enumerate(specimens):
         if s and s.get("id") and s["id"] not in used and data.get("runs"):

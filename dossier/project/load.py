@@ -16,9 +16,12 @@ from pathlib import Path
 from ..common.errors import ManifestError, Problem
 from .checks import check_references
 from .manifest import MANIFEST_NAME, Manifest, typed_manifest
+from .paths import guarded
 from .schema import MANIFEST_SCHEMA
 
 MAX_FILE_BYTES = 200 * 1024 * 1024  # refuse absurd inputs before reading them into memory
+MAX_MANIFEST_BYTES = 10 * 1024 * 1024
+MAX_TEMPLATE_FILES = 500
 TEMPLATES = "templates"  # a project's template and stylesheet overrides
 
 
@@ -80,8 +83,18 @@ def project_from_files(files: dict[str, bytes], project_dir: Path) -> Project:
 
 def _project(raw_bytes: bytes, project_dir: Path, read_named, read_templates) -> Project:
     shown = str(project_dir / MANIFEST_NAME)
+    if len(raw_bytes) > MAX_MANIFEST_BYTES:
+        raise ManifestError(
+            shown,
+            [Problem("file", f"is {len(raw_bytes) / 1e6:.1f} MB; the limit is {MAX_MANIFEST_BYTES / 1e6:.0f} MB")],
+        )
     try:
         raw = tomllib.loads(raw_bytes.decode("utf-8-sig"))
+    except RecursionError:
+        raise ManifestError(
+            shown,
+            [Problem("TOML syntax", "nested too deeply (tables or lists inside each other hundreds of levels deep)")],
+        ) from None
     except UnicodeDecodeError as exc:
         raise ManifestError(shown, [Problem("file", f"is not UTF-8 text ({exc.reason} at byte {exc.start})")]) from None
     except tomllib.TOMLDecodeError as exc:
@@ -109,7 +122,17 @@ def validated(raw: dict, problems: list[Problem]) -> dict | None:
     """Validate a parsed TOML document: the schema, then (if it holds) the cross-references."""
     data = MANIFEST_SCHEMA(raw, "", problems)
     if data is not None:
-        check_references(data, problems)
+        if not problems:
+            check_references(data, problems)
+        else:
+            # Report the cross-references too where the values they relate have the right types;
+            # a check that meets a value the schema rejected stops, the schema's problem stands.
+            found: list[Problem] = []
+            try:
+                check_references(data, found)
+            except (TypeError, KeyError, AttributeError, ValueError):
+                pass
+            problems.extend(found)
     return data
 
 
@@ -125,30 +148,46 @@ def parse_manifest(raw: dict, project_dir: Path, shown: str = MANIFEST_NAME) -> 
 
 def _read_named(project_dir: Path, key: str, rel: str, problems: list[Problem]) -> bytes | None:
     """The bytes of a file the manifest names at `key`, or None with a problem appended."""
-    target = project_dir / rel
-    try:
-        resolved = target.resolve()
-    except OSError:
-        resolved = target
-    if not resolved.is_relative_to(project_dir.resolve()):
-        problems.append(Problem(key, f"resolves outside the project folder (symbolic link?): {rel!r}"))
+    path, wrong = guarded(project_dir, rel)
+    if path is None:
+        problems.append(Problem(key, str(wrong)))
         return None
-    if not target.is_file():
-        problems.append(Problem(key, f"file not found: {rel!r} (paths are relative to the manifest's folder)"))
-        return None
+    return _read_bounded(path, key, rel, problems)
+
+
+def _read_bounded(path: Path, key: str, rel: str, problems: list[Problem]) -> bytes | None:
     try:
-        size = target.stat().st_size
+        size = path.stat().st_size
         if size > MAX_FILE_BYTES:
             problems.append(Problem(key, f"{rel!r} is {size / 1e6:.0f} MB; the limit is {MAX_FILE_BYTES / 1e6:.0f} MB"))
             return None
-        return target.read_bytes()
+        return path.read_bytes()
     except OSError as exc:
         problems.append(Problem(key, f"{rel!r} cannot be read: {exc.strerror}"))
         return None
 
 
 def _read_templates(project_dir: Path) -> dict[str, bytes]:
+    """Every file under ``templates/``, each guarded as a named file is (inside the project after
+    resolving links, a regular file); raise ManifestError naming each one that is not."""
     folder = project_dir / TEMPLATES
     if not folder.is_dir():
         return {}
-    return {p.relative_to(project_dir).as_posix(): p.read_bytes() for p in sorted(folder.rglob("*")) if p.is_file()}
+    problems: list[Problem] = []
+    out = {}
+    for p in sorted(folder.rglob("*")):
+        rel = p.relative_to(project_dir).as_posix()
+        if p.is_dir() and not p.is_symlink():
+            continue
+        path, wrong = guarded(project_dir, rel)
+        if path is None:
+            problems.append(Problem(rel, f"(a template override) {wrong}"))
+            continue
+        content = _read_bounded(path, rel, rel, problems)
+        if content is not None:
+            out[rel] = content
+    if len(out) > MAX_TEMPLATE_FILES:
+        problems.append(Problem(TEMPLATES, f"holds {len(out)} files; the limit is {MAX_TEMPLATE_FILES}"))
+    if problems:
+        raise ManifestError(str(folder), problems)
+    return out

@@ -45,15 +45,22 @@ from .validation import (
     suggest,
 )
 
+# Bounds of this tool's range, stated: an id short enough for file names and page headers; a
+# quantity small enough that no unit conversion overflows (1e7 of the largest unit stays finite).
+MAX_ID_CHARS = 120
+MAX_QUANTITY = 1e7
+
 
 def _quantity(quantity: str) -> Table:
-    return Table({"value": Key(Number(minimum=0, exclusive_minimum=True)), "unit": Key(Unit(quantity))})
+    return Table(
+        {"value": Key(Number(minimum=0, maximum=MAX_QUANTITY, exclusive_minimum=True)), "unit": Key(Unit(quantity))}
+    )
 
 
 def _axle() -> Table:
     return Table(
         {
-            "tires": Key(Integer(minimum=1)),
+            "tires": Key(Integer(minimum=1, maximum=16)),
             "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single"),
         }
     )
@@ -64,7 +71,7 @@ class MetricName:
     """The name of a metric in the catalogue (:data:`dossier.project.catalogue.METRICS`)."""
 
     def __call__(self, value, path, problems):
-        if value not in METRICS:
+        if not isinstance(value, str) or value not in METRICS:
             hint = suggest(value, list(METRICS)) if isinstance(value, str) else ""
             problems.append(Problem(path, f"unknown metric {shown(value)}{hint}; metrics are listed in the glossary"))
             return None
@@ -100,7 +107,7 @@ MANIFEST_SCHEMA = Table(
             ListOf(
                 Table(
                     {
-                        "id": Key(Text()),
+                        "id": Key(Text(max_length=MAX_ID_CHARS), help="the specimen's id, e.g. 'CND-B'"),
                         "role": Key(Choice(ROLES)),
                         "size": Key(Text(), help="sidewall size designation, e.g. '225/45 R17 94W'"),
                         "construction": Key(Text(), required=False, default=""),
@@ -141,7 +148,13 @@ MANIFEST_SCHEMA = Table(
                         "load_setpoints": Key(
                             Table(
                                 {
-                                    "values": Key(ListOf(Number(minimum=0, exclusive_minimum=True), min_items=1)),
+                                    "values": Key(
+                                        ListOf(
+                                            Number(minimum=0, maximum=MAX_QUANTITY, exclusive_minimum=True),
+                                            min_items=1,
+                                            max_items=100,
+                                        )
+                                    ),
                                     "unit": Key(Unit("force")),
                                 }
                             ),
@@ -154,7 +167,7 @@ MANIFEST_SCHEMA = Table(
                         "pressure": Key(
                             Table(
                                 {
-                                    "value": Key(Number(minimum=0, exclusive_minimum=True)),
+                                    "value": Key(Number(minimum=0, maximum=MAX_QUANTITY, exclusive_minimum=True)),
                                     "unit": Key(Unit("pressure")),
                                 }
                             ),

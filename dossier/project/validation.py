@@ -21,6 +21,10 @@ from ..standards import units
 
 Checker = Callable[[Any, str, list[Problem]], Any]
 
+# Bounds on every value, far beyond any real project, so that no input can exhaust time or memory.
+MAX_TEXT_CHARS = 2_000
+MAX_LIST_ITEMS = 1_000
+
 
 def _type_name(value: Any) -> str:
     return {
@@ -36,11 +40,20 @@ def _type_name(value: Any) -> str:
 
 @dataclass(frozen=True)
 class Text:
-    """A non-empty string."""
+    """A non-empty string of at most `max_length` characters, without control characters."""
+
+    max_length: int = MAX_TEXT_CHARS
 
     def __call__(self, value, path, problems):
         if not isinstance(value, str) or not value.strip():
             problems.append(Problem(path, f"must be a non-empty string; got {shown(value)}"))
+            return None
+        if len(value) > self.max_length:
+            problems.append(Problem(path, f"must be at most {self.max_length} characters; got {len(value)}"))
+            return None
+        bad = next((ch for ch in value if ord(ch) < 32 and ch not in "\t\n\r"), None)
+        if bad is not None:
+            problems.append(Problem(path, f"must not contain control characters; got {bad!r} in {value[:40]!r}"))
             return None
         return value.strip()
 
@@ -88,11 +101,16 @@ class Number:
 
 @dataclass(frozen=True)
 class Integer:
+    """An integer in [minimum, maximum] (both closed)."""
+
     minimum: int = 0
+    maximum: int = 1_000_000
 
     def __call__(self, value, path, problems):
-        if isinstance(value, bool) or not isinstance(value, int) or value < self.minimum:
-            problems.append(Problem(path, f"must be an integer >= {self.minimum}; got {shown(value)}"))
+        if isinstance(value, bool) or not isinstance(value, int) or not self.minimum <= value <= self.maximum:
+            problems.append(
+                Problem(path, f"must be an integer from {self.minimum} to {self.maximum}; got {shown(value)}")
+            )
             return None
         return value
 
@@ -108,11 +126,12 @@ class Boolean:
 
 @dataclass(frozen=True)
 class DateTime:
-    """A TOML local or offset date-time, e.g. 2026-11-03T09:40:00."""
+    """A TOML local or offset date-time, e.g. 2026-11-03T09:40:00 (a manifest uses one kind
+    throughout: see :func:`dossier.project.checks.check_references`)."""
 
     def __call__(self, value, path, problems):
         if isinstance(value, dt.datetime):
-            return value.replace(tzinfo=None) if value.tzinfo is None else value
+            return value
         problems.append(Problem(path, f"must be a TOML date-time such as 2026-11-03T09:40:00; got {shown(value)}"))
         return None
 
@@ -157,6 +176,9 @@ class RelativePath:
             problems.append(Problem(path, f"must be a file path relative to the project folder; got {shown(value)}"))
             return None
         posix = PurePosixPath(value.replace("\\", "/"))
+        if not posix.parts or posix.name in ("", "."):
+            problems.append(Problem(path, f"must name a file inside the project folder; got {value!r}"))
+            return None
         if posix.is_absolute() or ":" in posix.parts[0] or ".." in posix.parts:
             problems.append(Problem(path, f"must stay inside the project folder (relative, no '..'); got {value!r}"))
             return None
@@ -167,6 +189,7 @@ class RelativePath:
 class ListOf:
     item: Checker
     min_items: int = 0
+    max_items: int = MAX_LIST_ITEMS
 
     def __call__(self, value, path, problems):
         if not isinstance(value, list):
@@ -174,6 +197,9 @@ class ListOf:
             return None
         if len(value) < self.min_items:
             problems.append(Problem(path, f"must have at least {self.min_items} item(s); got {len(value)}"))
+        if len(value) > self.max_items:
+            problems.append(Problem(path, f"must have at most {self.max_items} item(s); got {len(value)}"))
+            return None
         return [self.item(v, f"{path}[{i}]", problems) for i, v in enumerate(value)]
 
 
