@@ -182,7 +182,11 @@ def test_slip_ratio_sweeps_are_conditioned_by_slip_ratio(tmp_path):
 @pytest.mark.parametrize(
     "body, message, line",
     [
-        ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n", "expected 4 fields; found 3 (truncated line?)", 3),
+        (
+            "TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000\n",
+            "expected 4 fields as in the header (line 1); found 3 (truncated line?)",
+            3,
+        ),
         ("TIME,SLIP_ANGLE,FZ,FY\n0,0,-4000,0\n0.04,1,-4000,nan\n", "expected a finite number; found 'nan'", 3),
         ("TIME,SLIP_ANGLE,FZ,FY\n0,-3,-4000,0\n0.08,0,-4000,1\n0.04,3,-4000,2\n", "time goes backwards", 4),
         ("TIME,SLIP_ANGLE,FZ\n0,0,-4000\n", "no column named 'FY' for channel 'fy'", 1),

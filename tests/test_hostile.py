@@ -94,7 +94,7 @@ CORPUS = {
     "thousands-separator": (
         (HEADER.replace(",", ";") + "\n0;1;-4.000;1.234,5\n").encode(),
         dict(delimiter=";", decimal=","),
-        "expected a number with decimal mark ','",
+        "found '-4.000' in a file with decimal comma",
     ),
     "units-in-header": (
         ("TIME [s],SLIP_ANGLE [deg],FZ [N],FY [N]\n" + "\n".join(_sweep_lines())).encode(),

@@ -1,3 +1,4 @@
+import dataclasses
 from pathlib import Path
 
 import numpy as np
@@ -106,3 +107,76 @@ def test_shuffling_the_conditioned_points_does_not_change_a_metric(tmp_path):
     for x, y in zip(a, b):
         assert x.metric == y.metric
         assert x.value == pytest.approx(y.value, rel=1e-6)
+
+
+# --- damaged rows: never accepted silently ------------------------------------------------------
+
+DAMAGE_HEADER = "TIME,SLIP_ANGLE,FZ,FY"
+
+
+def _damaged(tmp_path, rows, decimal=".", delimiter=","):
+    lines = [DAMAGE_HEADER.replace(",", delimiter)]
+    for i in range(60):
+        a = -6 + 0.2 * i
+        row = [f"{0.04 * i:.2f}", f"{a:.2f}", "-4000", f"{-900 * a:.1f}"]
+        lines.append(delimiter.join(c.replace(".", decimal) for c in row))
+    for at, text in rows:
+        lines.insert(at, text)
+    (tmp_path / "rig").mkdir(exist_ok=True)
+    (tmp_path / "rig/a.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    text = (
+        P.MANIFEST_HEAD
+        + P.specimen_block("A")
+        + P.run_block("A", "rig/a.csv", [4000], delimiter=delimiter, decimal=decimal)
+    )
+    (tmp_path / "dossier.toml").write_text(text, encoding="utf-8")
+    m = load_project(tmp_path).manifest
+    return (tmp_path / "rig/a.csv").read_bytes(), m.runs[0]
+
+
+@pytest.mark.parametrize(
+    ("rows", "kw", "message"),
+    [
+        ([(10, "0.36,-4.4,-4000,3960.0,7")], {}, "line 11: expected 4 fields as in the header (line 1); found 5"),
+        (
+            [(10, "0.36,-4.4,-4000,3,960.0")],
+            {},
+            "line 11: expected 4 fields as in the header (line 1); found 5 (a stray ','",
+        ),
+        (
+            [(10, "0,36;-4,4;4.000;3960")],
+            {"decimal": ",", "delimiter": ";"},
+            "line 11, column 'FZ': found '4.000' in a file with decimal comma",
+        ),
+    ],
+)
+def test_a_row_that_does_not_match_the_header_is_an_error_naming_the_line(tmp_path, rows, kw, message):
+    raw, spec = _damaged(tmp_path, rows, **kw)
+    with pytest.raises(RigDataError) as exc:
+        parse_run(raw, spec)
+    assert message in str(exc.value)
+
+
+def test_empty_rows_and_overflow_sentinels_are_dropped_and_counted_with_their_lines(tmp_path):
+    # -9.9e37: the overflow value some data-acquisition systems write  # common practice
+    raw, spec = _damaged(tmp_path, [(5, ",,,"), (20, "0.76,-2.2,-9.9e37,1980.0"), (30, "1.16,-0.2,-1e10,180.0")])
+    run = parse_run(raw, spec)
+    assert [(r.line, r.reason.split(" (")[0]) for r in run.rejected] == [
+        (6, "empty row"),
+        (21, "implausible value"),
+        (31, "implausible value"),
+    ]
+    assert run.n_samples == 60 and 6 not in run.line_numbers and 21 not in run.line_numbers
+    assert float(np.max(np.abs(run.channels["fz"]))) == pytest.approx(4000.0)
+    c = condition_run(run, ConditioningSettings(min_slip_range_deg=1.0, min_points_per_curve=5))
+    assert c.account.n_samples == 63 and c.account.dropped[run.rejected[1].reason] == 2
+    texts = " ".join(f.text for f in c.account.findings)
+    assert "1 row(s) dropped, empty row (every cell blank): line 6" in texts
+    assert "2 row(s) dropped, implausible value" in texts and "line 21 (FZ = 9.9e+37" in texts
+
+
+def test_a_value_that_overflows_in_unit_conversion_is_dropped_not_infinite(tmp_path):
+    raw, spec = _damaged(tmp_path, [(8, "0.28,-4.8,-1.79e308,4320.0")])
+    spec = dataclasses.replace(spec, columns={**spec.columns, "fz": dataclasses.replace(spec.columns["fz"], unit="kN")})
+    run = parse_run(raw.replace(b"-4000", b"-4"), spec)
+    assert [r.line for r in run.rejected] == [9] and np.all(np.isfinite(run.channels["fz"]))

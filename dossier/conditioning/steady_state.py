@@ -307,6 +307,14 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
             if point is not None:
                 points.append(point)
 
+    # Rows the reader did not keep as samples (empty, or beyond any rig's range) are counted here
+    # too, each reason with the lines it was found on: a reviewer sees every row of the file.
+    for reason in dict.fromkeys(r.reason for r in run.rejected):
+        rows = [r for r in run.rejected if r.reason == reason]
+        dropped[reason] = len(rows)
+        shown = ", ".join(f"line {r.line}" + (f" ({r.column} = {r.cell})" if r.column else "") for r in rows[:3])
+        more = f" and {len(rows) - 3} more" if len(rows) > 3 else ""
+        run_findings.append(Finding(FINDING, f"{len(rows)} row(s) dropped, {reason}: {shown}{more}"))
     n_dropped = sum(dropped.values())
     if dropped[REASON_SPIKE] > 0.01 * n:
         run_findings.append(
@@ -314,16 +322,17 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
                 FINDING, f"{dropped[REASON_SPIKE]} spikes removed ({100 * dropped[REASON_SPIKE] / n:.1f} % of samples)"
             )
         )
-    if n_dropped > 0.5 * n:
-        run_findings.append(Finding(FINDING, f"{100 * n_dropped / n:.0f} % of the samples were dropped"))
+    n_rows = n + len(run.rejected)
+    if n_dropped > 0.5 * n_rows:
+        run_findings.append(Finding(FINDING, f"{100 * n_dropped / n_rows:.0f} % of the samples were dropped"))
     verdict, reasons = _verdict(points, run_findings)
     account = ConditioningAccount(
         run_index=spec.index,
         specimen=spec.specimen,
         source_file=spec.file,
         sha256=run.sha256,
-        n_samples=n,
-        n_kept=n - n_dropped,
+        n_samples=n_rows,
+        n_kept=n_rows - n_dropped,
         dropped=dropped,
         operating_points_found=len(points),
         load_levels_n=tuple(float(v) for v in loads),

@@ -21,6 +21,32 @@ from ..common.errors import RigDataError
 from ..project.manifest import CHANNELS, RunSpec
 from ..standards import axes, units
 
+EMPTY_ROW = "empty row (every cell blank)"
+IMPLAUSIBLE = "implausible value (beyond any rig's range: an overflow or no-data sentinel?)"
+
+# Magnitudes no rig measures, in internal units: values beyond them are not data (data-acquisition
+# systems write sentinels such as -9.9e37 for an overflow). Far above every tire: a truck tire
+# carries about 60 kN, rigs load to a few hundred kN.
+PLAUSIBLE_LIMIT = {
+    "force": 1e6,
+    "moment": 1e5,
+    "angle": 90.0,
+    "slip_ratio": 100.0,
+    "pressure": 1e5,
+    "speed": 1e4,
+    "time": 1e9,
+}
+
+
+@dataclass(frozen=True)
+class RejectedRow:
+    """A row of the file that is not a sample: where, why, and the cell that shows it."""
+
+    line: int
+    reason: str
+    column: str = ""
+    cell: str = ""
+
 
 @dataclass(frozen=True)
 class RigRun:
@@ -30,6 +56,7 @@ class RigRun:
     sha256: str
     channels: dict[str, np.ndarray]  # channel -> values (internal units, ISO 8855)
     line_numbers: np.ndarray  # 1-based line in the file of each sample, for provenance
+    rejected: tuple[RejectedRow, ...] = ()  # rows read but not kept as samples, each with its reason
 
     @property
     def n_samples(self) -> int:
@@ -46,14 +73,15 @@ def parse_run(raw: bytes, spec: RunSpec) -> RigRun:
     except UnicodeDecodeError:
         encoding = "latin-1"  # labs' tools often write Windows-1252 headers (e.g. '°')
         text = raw.decode(encoding)
-    channels, lines = parse_table(text, spec, shown, raw=raw, encoding=encoding)
-    return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines)
+    channels, lines, rejected = parse_table(text, spec, shown, raw=raw, encoding=encoding)
+    return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines, rejected=rejected)
 
 
 def parse_table(
     text: str, spec: RunSpec, shown: str, raw: bytes | None = None, encoding: str = "utf-8-sig"
-) -> tuple[dict[str, np.ndarray], np.ndarray]:
-    """Parse rig-file text per `spec`; return internal channels and source line numbers.
+) -> tuple[dict[str, np.ndarray], np.ndarray, tuple[RejectedRow, ...]]:
+    """Parse rig-file text per `spec`; return internal channels, source line numbers and the rows
+    not kept (empty, or with implausible values), each with its reason.
 
     `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text.
     """
@@ -96,9 +124,11 @@ def parse_table(
         first,
     )
     if fast is not None:
-        channels = _to_internal(fast[0], spec)
-        _check_plausible(channels, fast[1], spec, shown)
-        return channels, fast[1]
+        kept, kept_lines, rejected = _keep_plausible(_to_internal(fast[0], spec), fast[1], spec, header, index, ())
+        if not kept_lines.size:
+            raise RigDataError(shown, f"has no usable data rows ({len(rejected)} rejected: {rejected[0].reason})")
+        _check_plausible(kept, kept_lines, spec, shown)
+        return kept, kept_lines, rejected
     try:
         rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
     except csv.Error as exc:
@@ -107,14 +137,25 @@ def parse_table(
         ) from None
     values: dict[str, list[float]] = {ch: [] for ch in index}
     lines: list[int] = []
+    empty: list[RejectedRow] = []
     for row_i in range(first, len(rows)):
         row = rows[row_i]
         line_no = row_i + 1
-        if not any(cell.strip() for cell in row) or row[0].lstrip().startswith("#"):
+        if not row or row[0].lstrip().startswith("#"):
+            continue  # a blank line or a comment
+        if not any(cell.strip() for cell in row):
+            empty.append(RejectedRow(line_no, EMPTY_ROW))
             continue
-        if len(row) < len(header):
+        if len(row) != len(header):
+            hint = (
+                "truncated line?"
+                if len(row) < len(header)
+                else f"a stray {spec.delimiter!r}, or a thousands separator splitting a number?"
+            )
             raise RigDataError(
-                shown, f"expected {len(header)} fields; found {len(row)} (truncated line?)", line=line_no
+                shown,
+                f"expected {len(header)} fields as in the header (line {spec.header_line}); found {len(row)} ({hint})",
+                line=line_no,
             )
         for ch, col_i in index.items():
             values[ch].append(_number(row[col_i], spec.decimal, shown, line_no, header[col_i]))
@@ -125,8 +166,40 @@ def parse_table(
     channels = _to_internal({ch: np.asarray(vals, dtype=float) for ch, vals in values.items()}, spec)
     line_arr = np.asarray(lines, dtype=np.int64)
     line_arr.setflags(write=False)
+    channels, line_arr, rejected = _keep_plausible(channels, line_arr, spec, header, index, tuple(empty))
+    if not line_arr.size:
+        raise RigDataError(shown, f"has no usable data rows ({len(rejected)} rejected: {rejected[0].reason})")
     _check_plausible(channels, line_arr, spec, shown)
-    return channels, line_arr
+    return channels, line_arr, rejected
+
+
+def _keep_plausible(channels, lines, spec: RunSpec, header, index, rejected: tuple[RejectedRow, ...]):
+    """Drop the rows with a value no rig measures (non-finite after conversion, or beyond
+    :data:`PLAUSIBLE_LIMIT`), each recorded with its line, column and value."""
+    bad = np.zeros(lines.size, dtype=bool)
+    first_bad: dict[int, tuple[str, float]] = {}
+    for ch, arr in channels.items():
+        limit = PLAUSIBLE_LIMIT[CHANNELS[ch]]
+        with np.errstate(invalid="ignore"):
+            wrong = ~np.isfinite(arr) | (np.abs(arr) > limit)
+        for i in np.flatnonzero(wrong & ~bad):
+            first_bad[int(i)] = (header[index[ch]], float(arr[i]))
+        bad |= wrong
+    if not bad.any():
+        return channels, lines, rejected
+    out = []
+    for i in np.flatnonzero(bad):
+        column, value = first_bad[int(i)]
+        out.append(RejectedRow(int(lines[i]), IMPLAUSIBLE, column, f"{value:.6g} (internal units)"))
+    keep = ~bad
+    kept = {}
+    for ch, arr in channels.items():
+        a = np.array(arr[keep])
+        a.setflags(write=False)
+        kept[ch] = a
+    line_arr = np.array(lines[keep])
+    line_arr.setflags(write=False)
+    return kept, line_arr, tuple(sorted((*rejected, *out), key=lambda r: r.line))
 
 
 def _to_internal(raw: dict[str, np.ndarray], spec: RunSpec) -> dict[str, np.ndarray]:
@@ -161,6 +234,8 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
     if end <= start or spec.delimiter == spec.decimal:
         return None
     body = raw[start:end]
+    if spec.decimal == "," and b"." in body:
+        return None  # a '.' in a decimal-comma file: the careful parser says where
     n_lines = body.count(b"\n") + 1
     first_line = body.split(b"\n", 1)[0]
     if first_line.count(spec.delimiter.encode()) != n_fields - 1:
@@ -171,8 +246,7 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
             io.BytesIO(body),
             sep=spec.delimiter,
             decimal=spec.decimal,
-            header=None,
-            usecols=cols,
+            header=None,  # every column, not `usecols`: with it, the reader ignores extra fields
             dtype=float,
             engine="c",
             na_filter=False,
@@ -181,9 +255,9 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
         )
     except (ValueError, TypeError, UnicodeDecodeError, pandas.errors.ParserError):
         return None
-    if frame.shape[0] != n_lines:
-        return None
-    arr = frame.to_numpy(dtype=float)
+    if frame.shape != (n_lines, n_fields):
+        return None  # a row with more or fewer fields: the careful parser names its line
+    arr = frame.to_numpy(dtype=float)[:, cols]
     if not np.all(np.isfinite(arr)):
         return None
     line_numbers = np.arange(first + 1, first + 1 + n_lines, dtype=np.int64)
@@ -193,6 +267,14 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
 
 def _number(cell: str, decimal: str, shown: str, line: int, column: str) -> float:
     s = cell.strip()
+    if decimal == "," and "." in s:
+        raise RigDataError(
+            shown,
+            f"found {cell!r} in a file with decimal comma (manifest decimal = ','); a '.' here is "
+            "a thousands separator or a different decimal mark: the value is ambiguous",
+            line=line,
+            column=column,
+        )
     if decimal == ",":
         s = s.replace(",", ".")
     try:
