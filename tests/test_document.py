@@ -194,3 +194,25 @@ def test_a_narrative_expression_that_fails_or_runs_away_is_a_narrative_error(tmp
         build(root, tmp_path / "o", use_cache=False, workers=1)
     assert message in str(exc.value)
     assert not (tmp_path / "o").exists()  # nothing half-written
+
+
+@pytest.mark.parametrize(
+    "markup",
+    [
+        '<script src="https://tracker.invalid/x.js"></script>',
+        '<img src="//cdn.invalid/logo.png">',
+        '<link rel="stylesheet" href="file:///etc/style.css">',
+        "<style>@import 'https://fonts.invalid/a.css';</style>",
+        '<img src="../../outside.png">',
+        '<meta http-equiv="refresh" content="0; url=https://elsewhere.invalid/">',
+    ],
+)
+def test_a_site_template_override_may_not_load_anything_from_outside(tmp_path, markup):
+    root = make_project(tmp_path / "p")
+    (root / "templates").mkdir()
+    (root / "templates" / "quality.html").write_text(
+        '{% extends "base.html" %}{% block main %}' + markup + "{% endblock %}", encoding="utf-8"
+    )
+    with pytest.raises(StageError, match="would load resources from outside the dossier"):
+        build(root, tmp_path / "o", use_cache=False, workers=1)
+    assert not (tmp_path / "o").exists()

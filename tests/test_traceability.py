@@ -188,6 +188,11 @@ def test_editing_any_file_or_signature_field_fails_verification(sealed, tmp_path
         assert verify(lambda t: _flip(t / name)).altered == (name,), name
     assert verify(lambda t: (t / "site/extra.html").write_text("x", encoding="utf-8")).added == ("site/extra.html",)
     assert verify(lambda t: (t / "provenance.json").unlink()).missing == ("provenance.json",)
+    linked = verify(lambda t: (t / "site/notes.html").symlink_to("/etc/hostname"))
+    assert linked.state == "failed"  # a link out of the dossier is reported, not skipped
+    assert linked.problems == (
+        "not a regular file (a dossier holds none): site/notes.html (symbolic link to /etc/hostname)",
+    )
 
     def manifest_line_removed(t):
         lines = (t / "manifest-sha256.txt").read_text(encoding="utf-8").splitlines()

@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import re
+
 import jinja2
 
+from ..common.errors import StageError
 from .context import DossierContext
 from .pages import downloads, page, require_cautions
 from .theme import STATIC_FILES, Theme
@@ -39,4 +42,41 @@ def render_site(
         if sheet is not None:
             files[f"static/{name}"] = sheet
     require_cautions(files)
+    refuse_external(files)
     return files
+
+
+# What a page loads when it is opened (not what a reader may follow by clicking a link).
+_LOADED = re.compile(
+    rb"<(?:img|script|link|iframe|frame|source|video|audio|embed|object|track|input|image|use)\b[^>]*?"
+    rb"\s(?:src|href|data|srcset|poster|xlink:href)\s*=\s*[\"']?([^\"'\s>]+)",
+    re.I,
+)
+_CSS_URL = re.compile(rb"(?:url\(\s*[\"']?|@import\s+[\"'])([^\"')\s]+)", re.I)
+_REFRESH = re.compile(rb"<meta\b[^>]*http-equiv\s*=\s*[\"']?refresh", re.I)
+
+
+def refuse_external(files: dict[str, bytes]) -> None:
+    """A dossier opens offline and shows only what it holds: no page or stylesheet may load
+    anything from outside the output (another site, the disk, a parent folder)."""
+    found = []
+    for name, data in sorted(files.items()):
+        if not name.endswith((".html", ".css", ".svg")):
+            continue
+        urls = _CSS_URL.findall(data) + (_LOADED.findall(data) if not name.endswith(".css") else [])
+        found += [f"{name}: {u.decode('utf-8', 'replace')[:100]}" for u in urls if _outside(u)]
+        if name.endswith(".html") and _REFRESH.search(data):
+            found.append(f"{name}: a meta refresh")
+    if found:
+        raise StageError(
+            "the site would load resources from outside the dossier (a template override?), refused: "
+            + "; ".join(found[:5])
+            + (f"; and {len(found) - 5} more" if len(found) > 5 else "")
+        )
+
+
+def _outside(url: bytes) -> bool:
+    u = url.strip().lower()
+    if u.startswith((b"#", b"data:image/")):
+        return False
+    return b":" in u.split(b"/")[0] or u.startswith((b"/", b"\\")) or b"../" in u or u.startswith(b"..")

@@ -145,7 +145,8 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     pool = pool or WorkerPool(1)
     conditioned = check(project, cache)
     measured = [p for c in conditioned for p in c.points]
-    fz0_n = nominal_load_n(manifest)
+    detected = [float(v) for c in conditioned if c.account.levels_detected for v in c.account.load_levels_n]
+    fz0_n = nominal_load_n(manifest, detected)
     drift: DriftEstimate | None = None
     if manifest.drift:
         drift = estimate_drift(measured, manifest.drift.control, fz0_n)

@@ -5,19 +5,23 @@ unloaded radius."""
 from __future__ import annotations
 
 import statistics
+from collections.abc import Sequence
 
 from ..common.errors import StageError
 from ..standards.sidewall import parse_size
 from .manifest import Manifest
 
 
-def nominal_load_n(manifest: Manifest) -> float:
-    """Fz0: the manifest's choice, else the median of all nominal load set-points."""
+def nominal_load_n(manifest: Manifest, detected_loads_n: Sequence[float] = ()) -> float:
+    """Fz0: the manifest's choice, else the median of all nominal load set-points, a run without
+    set-points contributing the load levels detected in its data (`detected_loads_n`)."""
     if manifest.fit.nominal_load_n:
         return manifest.fit.nominal_load_n
-    # A run without set-points (None: detected from the data) makes this raise TypeError: a known
-    # gap, kept as it is here (behaviour unchanged); the type says None is possible.
-    return float(statistics.median(load for r in manifest.runs for load in r.load_setpoints_n))  # type: ignore[union-attr]
+    declared = [load for r in manifest.runs for load in (r.load_setpoints_n or ())]
+    loads = declared + (list(detected_loads_n) if any(r.load_setpoints_n is None for r in manifest.runs) else [])
+    if not loads:
+        raise StageError("no load level was declared or found in the data; set [fit] nominal_load_n")
+    return float(statistics.median(loads))
 
 
 def nominal_pressure_kpa(manifest: Manifest) -> float:

@@ -74,17 +74,32 @@ def _trusted_keys(public_keys) -> dict[str, bytes]:
 
 
 def verify(folder: Path, public_keys=()) -> integrity.Report:
-    """Check every file of a dossier folder against its manifest, and every signature."""
+    """Check every file of a dossier folder against its manifest, and every signature; symbolic
+    links and anything else that is not a regular file are reported (a dossier holds none)."""
     files = read_folder(folder)
     trusted = _trusted_keys(public_keys)
     if integrity.MANIFEST not in files:
-        return integrity.check(files, None, None)
-    try:
-        ident = _identity(files, Path(folder))
-    except VerifyError as exc:  # an altered results.json is reported with everything else
-        report = integrity.check(files, None, None, trusted)
-        return replace(report, problems=report.problems + (str(exc),))
-    return integrity.check(files, ident["number"], ident["revision"], trusted)
+        report = integrity.check(files, None, None)
+    else:
+        try:
+            ident = _identity(files, Path(folder))
+            report = integrity.check(files, ident["number"], ident["revision"], trusted)
+        except VerifyError as exc:  # an altered results.json is reported with everything else
+            report = integrity.check(files, None, None, trusted)
+            report = replace(report, problems=report.problems + (str(exc),))
+    odd = tuple(f"not a regular file (a dossier holds none): {name}" for name in _not_regular(Path(folder)))
+    return replace(report, problems=report.problems + odd) if odd else report
+
+
+def _not_regular(folder: Path) -> list[str]:
+    """Symbolic links, sockets, pipes and devices under `folder` (links are not followed)."""
+    out = []
+    for p in sorted(folder.rglob("*")):
+        if p.is_symlink():
+            out.append(f"{p.relative_to(folder).as_posix()} (symbolic link to {os.readlink(p)})")
+        elif not p.is_file() and not p.is_dir():
+            out.append(p.relative_to(folder).as_posix())
+    return out
 
 
 def digest(folder: Path) -> tuple[str, dict]:
