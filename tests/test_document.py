@@ -216,3 +216,15 @@ def test_a_site_template_override_may_not_load_anything_from_outside(tmp_path, m
     with pytest.raises(StageError, match="would load resources from outside the dossier"):
         build(root, tmp_path / "o", use_cache=False, workers=1)
     assert not (tmp_path / "o").exists()
+
+
+def test_the_longest_id_allowed_lays_out_in_every_pdf(tmp_path):
+    # an id of the full 120 characters (project/schema.py MAX_ID_CHARS), with spaces to wrap at:
+    # contents entries, headers and tables must take it (a wrapping contents entry once crashed)
+    long_id = ("CND-B belt 27deg + full-width_nylon_cap_ply_NT-S47_compound_lot4126 " * 2)[:120].strip()
+    root = make_project(tmp_path / "p", narrative="x\n")
+    text = (root / "dossier.toml").read_text(encoding="utf-8")
+    (root / "dossier.toml").write_text(text.replace('"A"', f'"{long_id}"'), encoding="utf-8")
+    build(root, tmp_path / "o", use_cache=False, workers=1)
+    for pdf in sorted((tmp_path / "o").glob("*.pdf")):
+        assert long_id[:40] in "".join(page.extract_text() for page in PdfReader(pdf).pages), pdf.name

@@ -129,12 +129,18 @@ def parse_table(
             raise RigDataError(shown, f"has no usable data rows ({len(rejected)} rejected: {rejected[0].reason})")
         _check_plausible(kept, kept_lines, spec, shown)
         return kept, kept_lines, rejected
-    try:
-        rows = list(csv.reader(io.StringIO(text, newline=""), delimiter=spec.delimiter))
-    except csv.Error as exc:
-        raise RigDataError(
-            shown, f"cannot be read as delimited text ({exc}); is it a text export of the rig data?"
-        ) from None
+    # One row per physical line (a quote never joins lines), so that every line number is the
+    # file's own.
+    rows = []
+    for line_i, line in enumerate(text.split("\n")):
+        try:
+            rows.append(next(csv.reader([line.removesuffix("\r")], delimiter=spec.delimiter), []))
+        except csv.Error as exc:
+            raise RigDataError(
+                shown,
+                f"cannot be read as delimited text ({exc}); is it a text export of the rig data?",
+                line=line_i + 1,
+            ) from None
     values: dict[str, list[float]] = {ch: [] for ch in index}
     lines: list[int] = []
     empty: list[RejectedRow] = []
