@@ -48,3 +48,31 @@ def test_check_reports_the_demo_project_ok(capsys):
     assert "manifest and 18 rig file(s) OK" in out
     assert "rig/HR-4470_CTL-1_1000.csv: 413 samples" in out and ": sound" in out
     assert "test load is above the rated load of 6570 N" in out
+
+
+def test_every_command_names_its_own_bad_input_without_a_traceback(tmp_path, capsys):
+    # inputs of the commands themselves (keys, folders, targets), missing, of the wrong kind or
+    # in a place that cannot be written: a user error with its documented code, never exit 70
+    (tmp_path / "empty").mkdir()
+    (tmp_path / "afile").write_text("x\n", encoding="utf-8")
+    missing = str(tmp_path / "missing")
+    cases = [
+        (["verify", missing], 3, "no such folder"),
+        (["verify", str(tmp_path / "afile")], 3, "not a folder"),
+        (["verify", str(tmp_path / "empty"), "--public-key", missing], 3, "cannot read the public key"),
+        (
+            ["verify", str(tmp_path / "empty"), "--public-key", str(tmp_path / "afile")],
+            3,
+            "expected an Ed25519 public key",
+        ),
+        (["digest", str(tmp_path / "empty")], 3, "not a dossier output folder"),
+        (["diff", str(tmp_path / "empty"), str(tmp_path / "empty")], 3, "no results.json"),
+        (["keygen", str(tmp_path / "nofolder/k.pem"), str(tmp_path / "nofolder/k.pub")], 3, "does not exist"),
+        (["keygen", "/proc/k.pem", "/proc/k.pub"], 3, "cannot be created"),
+        (["export", str(tmp_path / "empty"), str(tmp_path / "bag")], 3, "not a dossier output folder"),
+        (["seal", str(tmp_path / "empty"), "--private-key", missing], 3, ""),
+    ]
+    for args, code, message in cases:
+        assert main(args) == code, args
+        err = capsys.readouterr().err
+        assert "Traceback" not in err and message in err, (args, err)

@@ -257,10 +257,17 @@ def keygen(private_path: Path, public_path: Path) -> None:
         if not Path(p).parent.is_dir():
             raise UserError(f"{p}: the folder {Path(p).parent} does not exist")
     private, public = integrity.new_key_pair()
-    fd = os.open(private_path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    try:
+        fd = os.open(private_path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    except OSError as exc:
+        raise UserError(f"{private_path}: cannot be created ({exc.strerror}); nothing was written") from None
     with os.fdopen(fd, "wb") as fh:
         fh.write(private)
-    Path(public_path).write_bytes(public)
+    try:
+        Path(public_path).write_bytes(public)
+    except OSError as exc:
+        Path(private_path).unlink()  # ours, made a moment ago: no half of a pair is left behind
+        raise UserError(f"{public_path}: cannot be written ({exc.strerror}); no key was kept") from None
 
 
 def export(folder: Path, target: Path, as_zip: bool = False) -> Path:
@@ -284,8 +291,12 @@ def export(folder: Path, target: Path, as_zip: bool = False) -> Path:
         bagging_date=dt.date.today().isoformat(),
         software=f"dossier {__version__}",
     )
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.export-", dir=target.parent))
+    if not target.parent.is_dir():
+        raise UserError(f"{target}: the folder {target.parent} does not exist (nothing was changed)")
+    try:
+        tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.export-", dir=target.parent))
+    except OSError as exc:
+        raise UserError(f"{target}: cannot write in {target.parent} ({exc.strerror}); nothing was changed") from None
     try:
         if as_zip:
             top = target.stem

@@ -47,7 +47,10 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
             )
         refuse_sealed(out_dir)
     parent = out_dir.parent
-    parent.mkdir(parents=True, exist_ok=True)
+    try:
+        parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"{out_dir}: the folder {parent} cannot be made ({exc.strerror})") from None
     _remove_stale_builds(parent, out_dir.name)
     tmp: Path | None = None
     try:
@@ -69,6 +72,11 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
         acknowledge(exc)  # an interruption has reached us: let this cleanup run to its end
         if tmp is not None:
             _remove_ours(tmp)  # gone already if it was swapped in
+        if isinstance(exc, OSError):  # a full disk, a folder we may not write in: the user's to fix
+            raise OutputError(
+                f"{out_dir}: cannot be written ({exc.strerror or exc}: {exc.filename}); "
+                "the previous output, if any, is unchanged"
+            ) from None
         raise
 
 
