@@ -125,23 +125,19 @@ class Outcome:
 
 # --- rig files ----------------------------------------------------------------------------------
 
-RIG_MUTATIONS = (
+# The mutations that rewrite the cells of one line.
+CELL_MUTATIONS = (
     "extra_field",
     "missing_field",
     "text_cell",
     "number_cell",
     "sentinel_cell",
     "empty_row",
-    "blank_line",
     "thousands",
     "decimal_swap",
-    "truncate",
-    "byte",
-    "delete_line",
-    "swap_lines",
-    "header_cell",
     "nul",
 )
+RIG_MUTATIONS = (*CELL_MUTATIONS, "blank_line", "truncate", "byte", "delete_line", "swap_lines", "header_cell")
 SENTINELS = ("-9.9e37", "9.9e37", "1e10", "1.79e308", "-1.79e308", "nan", "inf", "-0", "1e-320", "99999")
 
 
@@ -189,17 +185,7 @@ def mutate_rig(
         h[j % len(h)] = text
         out[0] = delimiter.join(h)
         where = 1
-    if kind in (
-        "extra_field",
-        "missing_field",
-        "text_cell",
-        "number_cell",
-        "sentinel_cell",
-        "empty_row",
-        "thousands",
-        "decimal_swap",
-        "nul",
-    ):
+    if kind in CELL_MUTATIONS:
         out[i] = delimiter.join(cells)
     elif kind == "blank_line":
         out.insert(i, "")
