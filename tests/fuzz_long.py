@@ -4,7 +4,8 @@
     python tests/fuzz_long.py [--cases 10000] [--seed 0]
 
 Cases are drawn with numpy's generator from the seed, so a run can be repeated; each case is
-timed out after 20 s (a hang counts as a failure).
+timed out after 20 s, a full build after 120 s (a hang counts as a failure).
+`--builds N` also assembles N mutated projects in full (figures and PDFs: seconds each).
 """
 
 from __future__ import annotations
@@ -38,20 +39,22 @@ def main() -> int:
     ap = argparse.ArgumentParser()
     ap.add_argument("--cases", type=int, default=10_000)
     ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--only", choices=["rig", "manifest"], default=None)
+    ap.add_argument("--only", choices=["rig", "manifest", "build"], default=None)
+    ap.add_argument("--builds", type=int, default=0, help="also assemble this many mutated projects in full")
     args = ap.parse_args()
     rng = np.random.default_rng(args.seed)
     signal.signal(signal.SIGALRM, _alarm)
     root = Path(tempfile.mkdtemp(prefix="dossier-fuzz-"))
     bases = {(d, s): F.base_rig_lines(d, s) for d, s in ((".", ","), (",", ";"))}
-    for family in ("rig", "manifest"):
-        if args.only and family != args.only:
+    for family in ("rig", "manifest", "build"):
+        if (args.only and family != args.only) or (family == "build" and not args.builds):
             continue
+        n_cases = args.builds if family == "build" else args.cases
         counts: collections.Counter = collections.Counter()
         examples: dict[str, list[str]] = collections.defaultdict(list)
         start = time.monotonic()
-        for _ in range(args.cases):
-            signal.alarm(20)
+        for _ in range(n_cases):
+            signal.alarm(120 if family == "build" else 20)
             try:
                 if family == "rig":
                     decimal, delimiter = [(".", ","), (",", ";")][int(rng.integers(2))]
@@ -72,7 +75,8 @@ def main() -> int:
                     op = ["set", "set", "set", "delete", "add", "nest"][int(rng.integers(6))]
                     path = F.MANIFEST_PATHS[int(rng.integers(len(F.MANIFEST_PATHS)))]
                     value = F.TARGETED[int(rng.integers(len(F.TARGETED)))]
-                    outcome = F.check_manifest_case(root / "manifest", op, path, value)
+                    check = F.check_build_case if family == "build" else F.check_manifest_case
+                    outcome = check(root / family, op, path, value)
                     label = op
             except Hang:
                 outcome, label = F.Outcome("hang", "over 20 s"), "hang"
@@ -83,8 +87,7 @@ def main() -> int:
                 examples[outcome.kind].append(f"{label}: {outcome.detail[:300]}")
         elapsed = time.monotonic() - start
         print(
-            f"{family}: {args.cases} cases in {elapsed:.0f} s: "
-            + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
+            f"{family}: {n_cases} cases in {elapsed:.0f} s: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
         )
         for kind, lines in examples.items():
             for line in lines:

@@ -430,3 +430,23 @@ def _names(locations: list[str], mutated: str, message: str) -> bool:
         if loc in ("TOML syntax", "file", "project"):
             return True
     return any(p in message for p in parts if p)
+
+
+def check_build_case(root: Path, operation: str, path: tuple, value) -> Outcome:
+    """As :func:`check_manifest_case`, then the whole dossier assembled in memory (every stage,
+    figures and PDFs included) when the mutated manifest loads."""
+    first = check_manifest_case(root, operation, path, value)
+    if first.kind != ACCEPTED or first.detail:
+        return first
+    from dossier.document.theme import load_theme
+    from dossier.engine.build import assemble
+
+    try:
+        assemble(load_project(root), load_theme("default"))
+    except UserError as exc:
+        return Outcome(REFUSED, str(exc))
+    except Exception as exc:
+        return Outcome(
+            INTERNAL, f"build, mutated {shown_path(path)!r} ({operation} {value!r:.60}): {type(exc).__name__}: {exc}"
+        )
+    return Outcome(ACCEPTED)

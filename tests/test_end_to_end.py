@@ -70,24 +70,26 @@ def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
         "annex-d-provenance.pdf": ("How the numbers were made", "Metric definitions", "Where every number came from"),
     }
     report = PdfReader(demo_out / "dossier.pdf")
+    attached = report.attachments
+    texts = {}
     for name, headings in expected.items():
         reader = PdfReader(demo_out / name)
-        text = "\n".join(page.extract_text() for page in reader.pages)
+        pages = [page.extract_text() for page in reader.pages]
+        text = texts[name] = "\n".join(pages)
         for heading in (*headings, "Safety cautions", "NTW-EVD-2026-031"):  # every volume carries the cautions
             assert heading in text, (name, heading)
         n = len(reader.pages)
-        assert f"Page 2 of {n}" in reader.pages[1].extract_text()
-        assert f"Page {n} of {n}" in reader.pages[-1].extract_text()
+        assert f"Page 2 of {n}" in pages[1]
+        assert f"Page {n} of {n}" in pages[-1]
         titles = [o["/Title"] for o in reader.outline if isinstance(o, dict)]
         assert "Safety cautions" in titles
         if name != "dossier.pdf":
             # the report carries every annex, byte for byte as written beside it
-            assert report.attachments[name][0] == (demo_out / name).read_bytes()
+            assert attached[name][0] == (demo_out / name).read_bytes()
     # the narrative (summary, conclusions, test notes) is in the report only, so that editing it
     # re-renders the report only
-    for name in expected:
+    for name, text in texts.items():
         if name != "dossier.pdf":
-            text = "\n".join(p.extract_text() for p in PdfReader(demo_out / name).pages)
             assert "Test notes" not in text and "Conclusions" not in text, name
 
 

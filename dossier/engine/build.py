@@ -46,7 +46,7 @@ from ..publish.layout import (
 )
 from ..publish.provenance import Evidence, provenance_bytes, provenance_record
 from ..publish.results import coefficient_files, conditioned_data_files, results_record
-from ..publish.writer import json_bytes, refuse_sealed, write_dossier
+from ..publish.writer import json_bytes, refuse_foreign, write_dossier
 from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
 from .figure_jobs import figure_tasks, place_figures, run_figure_tasks
 from .freshness import build_key, output_is_current
@@ -120,7 +120,7 @@ def build(
     if not isinstance(project, Project):
         project = load_project(project)
     out_dir = Path(out_dir) if out_dir else project.folder / "dossier-out"
-    refuse_sealed(out_dir)
+    refuse_foreign(out_dir)  # before any work: a folder that is not ours is never replaced
     theme = load_theme(theme_name)
     key = build_key(project.files, theme.files, theme_name)
     if use_cache and output_is_current(out_dir, key):

@@ -31,11 +31,9 @@ def refuse_sealed(out_dir: Path) -> None:
         )
 
 
-def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes] | None = None) -> None:
-    """Write `files` (relative path -> bytes) as the folder `out_dir`, atomically.
-
-    `extra` are hidden bookkeeping files beside the marker (not part of the dossier's payload).
-    """
+def refuse_foreign(out_dir: Path) -> None:
+    """Refuse, before any work, a target that is not ours to replace: a file, a folder of the
+    user's (not empty, no marker), or a sealed release."""
     out_dir = Path(out_dir)
     if out_dir.exists():
         if not out_dir.is_dir():
@@ -46,6 +44,15 @@ def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes
                 f"(no {MARKER} file); choose another --out. Nothing was changed."
             )
         refuse_sealed(out_dir)
+
+
+def write_dossier(out_dir: Path, files: dict[str, bytes], extra: dict[str, bytes] | None = None) -> None:
+    """Write `files` (relative path -> bytes) as the folder `out_dir`, atomically.
+
+    `extra` are hidden bookkeeping files beside the marker (not part of the dossier's payload).
+    """
+    out_dir = Path(out_dir)
+    refuse_foreign(out_dir)
     parent = out_dir.parent
     try:
         parent.mkdir(parents=True, exist_ok=True)
