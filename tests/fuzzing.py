@@ -210,6 +210,7 @@ def number_byte(number: float) -> int:
 
 
 FILE_LEVEL = (
+    "beyond any rig's range (",
     "the file is empty",
     "has no usable data rows",
     "has a header but no data rows",

@@ -180,3 +180,18 @@ def test_a_value_that_overflows_in_unit_conversion_is_dropped_not_infinite(tmp_p
     spec = dataclasses.replace(spec, columns={**spec.columns, "fz": dataclasses.replace(spec.columns["fz"], unit="kN")})
     run = parse_run(raw.replace(b"-4000", b"-4"), spec)
     assert [r.line for r in run.rejected] == [9] and np.all(np.isfinite(run.channels["fz"]))
+
+
+@pytest.mark.parametrize(
+    ("channel", "written", "looks"),
+    [("slip_angle", "rad", "the values look like deg"), ("fz", "kN", "the values look like N")],
+)
+def test_a_unit_written_wrong_is_named_with_what_the_values_look_like(tmp_path, channel, written, looks):
+    # a whole column beyond any rig's range is a unit mistake, not bad rows  # common practice
+    raw, spec = _damaged(tmp_path, [])
+    column = spec.columns[channel]
+    spec = dataclasses.replace(spec, columns={**spec.columns, channel: dataclasses.replace(column, unit=written)})
+    with pytest.raises(RigDataError) as exc:
+        parse_run(raw, spec)
+    assert f"after converting from '{written}'" in str(exc.value) and looks in str(exc.value)
+    assert f"runs[0].columns.{channel}.unit" in str(exc.value)

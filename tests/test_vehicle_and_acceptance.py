@@ -1,7 +1,9 @@
 """Vehicle balance against a worked textbook example and a hand-computed truck; verdict edges."""
 
 import math
+import tomllib
 
+import projects as P
 import pytest
 
 from dossier.evaluation.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
@@ -131,3 +133,44 @@ def _value(v, ci, extrapolated=False):
 )
 def test_verdict_edges(target, value, verdict):
     assert judge(target, value, 240.0)[0] == verdict
+
+
+# --- a recommendation only from evidence ---------------------------------------------------------
+
+
+def _standing(candidate, meets, marginal=0, fails=0, stiffness_pct=0.0):
+    from dossier.evaluation.comparison import Difference, Standing
+
+    d = Difference(
+        "cornering_stiffness", "N/deg", 4000.0, candidate, "BASE", 1.0, 1.0, 0.0, None, stiffness_pct, None, False
+    )
+    return Standing(candidate, (d,), meets, marginal, fails, "")
+
+
+def test_no_target_judged_means_no_recommendation():
+    from dossier.evaluation.comparison import recommend
+
+    best, why = recommend([_standing("CND-B", 0), _standing("CND-C", 0)])
+    assert best is None and why.startswith("no recommendation: no target was judged")
+
+
+def test_a_tie_is_reported_as_a_tie_with_what_would_separate_it():
+    from dossier.evaluation.comparison import recommend
+
+    best, why = recommend([_standing("CND-C", 3, stiffness_pct=3.1), _standing("CND-B", 3, stiffness_pct=10.2)])
+    assert best is None  # never broken by the order of the ids
+    assert why.startswith("no recommendation: CND-C and CND-B tie (3 target(s) met, 0 marginal)")
+    assert "they differ most in cornering stiffness (CND-C +3.1 %, CND-B +10.2 % against the baseline)" in why
+    best, why = recommend([_standing("CND-C", 3), _standing("CND-B", 2)])
+    assert best == "CND-C" and why.startswith("CND-C meets 3 target(s)")
+
+
+def test_the_default_nominal_load_is_a_measured_one(tmp_path):
+    # 2, 4, 6, 8 kN: the median (5 kN) was never measured; the set-point nearest it, the lower of
+    # the two, is taken
+    from dossier.project.conditions import nominal_load_n
+    from dossier.project.load import parse_manifest
+
+    text = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [2000, 4000, 6000, 8000])
+    manifest = parse_manifest(tomllib.loads(text), tmp_path)
+    assert nominal_load_n(manifest) == 4000.0

@@ -174,15 +174,32 @@ def _sentence(c, baseline, diffs, mine, counts) -> str:
 
 
 def recommend(standings: list[Standing]) -> tuple[str | None, str]:
-    """Pick the candidate with no target failed, then fewest marginal, then most met; say why."""
+    """Pick the candidate with no target failed, then fewest marginal, then most met; say why.
+
+    No recommendation without evidence: when no target was judged for any candidate, or when the
+    best candidates tie on every count, none is recommended and the reason says so (for a tie,
+    with the metric on which the tied candidates differ most, as what would separate them).
+    """
     if not standings:
         return None, "no candidate to compare"
-    ranked = sorted(standings, key=lambda s: (s.fails, s.marginal, -s.meets, s.candidate))
+    if all(s.meets == s.marginal == s.fails == 0 for s in standings):
+        return None, (
+            "no recommendation: no target was judged for any candidate (none given, or none measured); "
+            "the candidates are compared with the baseline only"
+        )
+    ranked = sorted(standings, key=lambda s: (s.fails, s.marginal, -s.meets))
     best = ranked[0]
     if best.fails:
         return None, (
             f"no candidate meets every target; the closest is {best.candidate} "
             f"({best.fails} not met, {best.marginal} marginal)"
+        )
+    tied = [s for s in ranked if (s.fails, s.marginal, s.meets) == (best.fails, best.marginal, best.meets)]
+    if len(tied) > 1:
+        names = " and ".join(s.candidate for s in tied)
+        return None, (
+            f"no recommendation: {names} tie ({best.meets} target(s) met, {best.marginal} marginal); "
+            + _what_separates(tied)
         )
     why = f"{best.candidate} meets {best.meets} target(s)"
     why += f" with {best.marginal} marginal" if best.marginal else " with none marginal"
@@ -192,6 +209,21 @@ def recommend(standings: list[Standing]) -> tuple[str | None, str]:
             f"{s.candidate}: {s.meets} met, {s.marginal} marginal, {s.fails} not met" for s in others
         )
     return best.candidate, why
+
+
+def _what_separates(tied: list[Standing]) -> str:
+    """The metric on which tied candidates differ most from each other (in % of the baseline)."""
+    spread = {}
+    for name in {d.metric for s in tied for d in s.differences}:
+        pcts = {s.candidate: d.diff_pct for s in tied for d in s.differences if d.metric == name}
+        if len(pcts) == len(tied) and all(math.isfinite(v) for v in pcts.values()):
+            spread[name] = (max(pcts.values()) - min(pcts.values()), pcts)
+    if not spread:
+        return "a target on a metric where they differ would separate them"
+    name = max(sorted(spread), key=lambda n: spread[n][0])
+    shown = ", ".join(f"{c} {v:+.1f} %" for c, v in spread[name][1].items())
+    label = METRICS[name].label.lower()
+    return f"they differ most in {label} ({shown} against the baseline): a target there would separate them"
 
 
 def compare_candidates(manifest: Manifest, metrics, fz0_n, drift, judged):

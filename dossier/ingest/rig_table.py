@@ -179,6 +179,26 @@ def parse_table(
     return channels, line_arr, rejected
 
 
+def _unit_mislabel(channel: str, values: np.ndarray, spec: RunSpec, column: str, limit: float) -> None:
+    """Most of a column beyond any rig's range is a unit written wrong, not a few bad rows: say
+    which unit the values look like, where the manifest can set it."""
+    quantity = CHANNELS[channel]
+    unit = spec.columns[channel].unit
+    factor = units.factor_to_internal(quantity, unit)
+    typical = float(np.nanmedian(np.abs(values[np.isfinite(values)]))) if np.isfinite(values).any() else float("inf")
+    raw = typical / factor
+    fits = [
+        u for u in units.accepted_units(quantity) if u != unit and raw * units.factor_to_internal(quantity, u) <= limit
+    ]
+    internal = units.UNITS[quantity][0]
+    looks = f": the values look like {fits[0]}" if fits else ""
+    raise RigDataError(
+        spec.file,
+        f"column {column!r} reaches a typical {typical:.4g} {internal} after converting from {unit!r}, beyond any "
+        f"rig's range ({limit:g} {internal}){looks} (manifest {spec.location}.columns.{channel}.unit)",
+    )
+
+
 def _keep_plausible(channels, lines, spec: RunSpec, header, index, rejected: tuple[RejectedRow, ...]):
     """Drop the rows with a value no rig measures (non-finite after conversion, or beyond
     :data:`PLAUSIBLE_LIMIT`), each recorded with its line, column and value."""
@@ -188,6 +208,8 @@ def _keep_plausible(channels, lines, spec: RunSpec, header, index, rejected: tup
         limit = PLAUSIBLE_LIMIT[CHANNELS[ch]]
         with np.errstate(invalid="ignore"):
             wrong = ~np.isfinite(arr) | (np.abs(arr) > limit)
+        if arr.size and np.count_nonzero(wrong) > arr.size // 2:
+            _unit_mislabel(ch, arr, spec, header[index[ch]], limit)
         for i in np.flatnonzero(wrong & ~bad):
             first_bad[int(i)] = (header[index[ch]], float(arr[i]))
         bad |= wrong

@@ -13,15 +13,17 @@ from .manifest import Manifest
 
 
 def nominal_load_n(manifest: Manifest, detected_loads_n: Sequence[float] = ()) -> float:
-    """Fz0: the manifest's choice, else the median of all nominal load set-points, a run without
-    set-points contributing the load levels detected in its data (`detected_loads_n`)."""
+    """Fz0: the manifest's choice, else a load that was measured: the set-point nearest the median
+    of all nominal load set-points (ties: the lower), a run without set-points contributing the
+    load levels detected in its data (`detected_loads_n`)."""
     if manifest.fit.nominal_load_n:
         return manifest.fit.nominal_load_n
     declared = [load for r in manifest.runs for load in (r.load_setpoints_n or ())]
     loads = declared + (list(detected_loads_n) if any(r.load_setpoints_n is None for r in manifest.runs) else [])
     if not loads:
         raise StageError("no load level was declared or found in the data; set [fit] nominal_load_n")
-    return float(statistics.median(loads))
+    median = statistics.median(loads)
+    return float(min(sorted(set(loads)), key=lambda load: abs(load - median)))
 
 
 def nominal_pressure_kpa(manifest: Manifest) -> float:
