@@ -195,3 +195,22 @@ def test_a_unit_written_wrong_is_named_with_what_the_values_look_like(tmp_path, 
         parse_run(raw, spec)
     assert f"after converting from '{written}'" in str(exc.value) and looks in str(exc.value)
     assert f"runs[0].columns.{channel}.unit" in str(exc.value)
+
+
+def test_a_load_column_in_lbf_labelled_n_is_named_with_the_factor(tmp_path):
+    # set-points 4, 6, 8 kN; the file holds pound-force labelled as newton: every steady level is
+    # the set-point divided by 4.448 (NIST SP 811 B.8)
+    loads_n = [4000.0, 6000.0, 8000.0]
+    t, a, fz, fy = P.sweep_samples(loads_n, lambda s, z: -z * np.sin(1.4 * np.arctan(0.25 * s)), seed=3)
+    lbf = 4.4482216152605
+    P.write_csv(tmp_path / "rig/a.csv", ["TIME", "SLIP_ANGLE", "FZ", "FY"], [t, -a, -fz / lbf, -fy])
+    (tmp_path / "dossier.toml").write_text(
+        P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", loads_n), encoding="utf-8"
+    )
+    m = load_project(tmp_path).manifest
+    run = parse_run((tmp_path / "rig/a.csv").read_bytes(), m.runs[0])
+    c = condition_run(run, m.conditioning)
+    assert c.account.verdict == "unusable"
+    text = " ".join(c.account.verdict_reasons)
+    assert "load steps at 899, 1349, 1798 N: the set-points are 4.448 times these, which is the lbf-to-N factor" in text
+    assert "runs[0].columns.fz.unit" in text

@@ -33,6 +33,7 @@ import numpy as np
 
 from ..ingest.rig_table import RigRun
 from ..project.manifest import ConditioningSettings
+from ..standards import units
 
 REASON_TRANSITION = "load or camber off set-point (transition)"
 REASON_UNMATCHED = "steady level matching no set-point (out of range)"
@@ -253,6 +254,9 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
                     )
                 )
             dropped[REASON_UNMATCHED] += count
+        mislabel = _load_unit_mislabel([level for level, _ in unmatched], loads, settings.load_tolerance_pct, spec)
+        if mislabel:
+            run_findings.append(Finding(FINDING, mislabel))
         dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band)) - dropped[REASON_UNMATCHED]
     else:
         dropped[REASON_TRANSITION] = int(np.count_nonzero(~in_band))
@@ -484,7 +488,9 @@ def _coverage(p: OperatingPoint, settings: ConditioningSettings, rated_load_n: f
 
 def _verdict(points, run_findings) -> tuple[str, list[str]]:
     if not points:
-        return UNUSABLE, ["no operating point survived conditioning"]
+        return UNUSABLE, ["no operating point survived conditioning"] + [
+            f.text for f in run_findings if f.severity == FINDING
+        ]
     blocking = [f.text for p in points for f in p.findings if f.severity == BLOCKING]
     if len(blocking) == len(points):
         return UNUSABLE, blocking
@@ -494,6 +500,26 @@ def _verdict(points, run_findings) -> tuple[str, list[str]]:
 
 
 # --- levels --------------------------------------------------------------------------------
+
+# Factors between force units that a mislabelled column shows as steady levels off the set-points
+# by exactly that factor (NIST SP 811 B.8 for lbf; kgf by standard gravity).
+_FORCE_FACTORS = {"lbf": units.LBF_IN_N, "kgf": units.STANDARD_GRAVITY_M_PER_S2, "kN": 1000.0}
+
+
+def _load_unit_mislabel(levels, loads: np.ndarray, tolerance_pct: float, spec) -> str:
+    """Say so when every set-point is a steady level times a unit factor: the load column's unit
+    is written wrong ("load steps at 899, 1349, 1798 N: the set-points are 4.45 times these")."""
+    if not levels or not loads.size:
+        return ""
+    for name, factor in _FORCE_FACTORS.items():
+        tol = tolerance_pct / 100.0
+        if all(any(abs(level * factor - sp) <= tol * sp for level in levels) for sp in loads):
+            steps = ", ".join(f"{level:.0f}" for level in sorted(levels))
+            return (
+                f"load steps at {steps} N: the set-points are {factor:.4g} times these, which is the "
+                f"{name}-to-N factor; the column is probably in {name} (manifest {spec.location}.columns.fz.unit)"
+            )
+    return ""
 
 
 def _levels(values: np.ndarray, hints, resolution: float) -> tuple[np.ndarray, bool]:
