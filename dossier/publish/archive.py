@@ -143,16 +143,22 @@ def _private_key(path: Path) -> bytes:
         raise UserError(f"{path}: cannot read the private key ({exc.strerror or exc})") from None
 
 
-def seal(folder: Path, private_key: Path, signer: str | None = None, organisation: str | None = None) -> str:
-    """The supplier's seal of a released, intact, unsealed revision; returns the key id."""
-    folder = Path(folder)
+def _intact(folder: Path, action: str) -> tuple[dict[str, bytes], str, str, integrity.Report]:
+    """Read a dossier folder and check it; refuse `action` on one that fails verification."""
     files = read_folder(folder)
     number, revision = ids(files, folder)
     report = integrity.check(files, number, revision)
     if report.state == integrity.FAILED:
         raise VerifyError(
-            f"{folder}: will not seal a dossier that fails verification:\n  " + "\n  ".join(report.lines())
+            f"{folder}: will not {action} a dossier that fails verification:\n  " + "\n  ".join(report.lines())
         )
+    return files, number, revision, report
+
+
+def seal(folder: Path, private_key: Path, signer: str | None = None, organisation: str | None = None) -> str:
+    """The supplier's seal of a released, intact, unsealed revision; returns the key id."""
+    folder = Path(folder)
+    files, number, revision, report = _intact(folder, "seal")
     if integrity.SUPPLIER_SEAL in files:
         raise StateError(f"{folder}: already sealed ({integrity.SUPPLIER_SEAL}); a released revision is frozen")
     ident = _identity(files, folder)
@@ -207,13 +213,7 @@ def countersign(
         raise UserError("--signer: the approver's name is needed")
     if folder is not None:
         folder = Path(folder)
-        files = read_folder(folder)
-        number, revision = ids(files, folder)
-        report = integrity.check(files, number, revision)
-        if report.state == integrity.FAILED:
-            raise VerifyError(
-                f"{folder}: will not countersign a dossier that fails verification:\n  " + "\n  ".join(report.lines())
-            )
+        files, number, revision, report = _intact(folder, "countersign")
         if not any(s.role == integrity.SUPPLIER for s in report.signatures):
             raise StateError(f"{folder}: not sealed by the supplier; only a sealed, released revision is countersigned")
         digest_hex, document = report.digest, number
@@ -274,13 +274,7 @@ def export(folder: Path, target: Path, as_zip: bool = False) -> Path:
     """Write a BagIt bag (RFC 8493) of an intact dossier: a new folder, or a zip with the bag as
     its one top folder. Nothing existing is overwritten."""
     folder, target = Path(folder), Path(target)
-    files = read_folder(folder)
-    number, revision = ids(files, folder)
-    report = integrity.check(files, number, revision)
-    if report.state == integrity.FAILED:
-        raise VerifyError(
-            f"{folder}: will not export a dossier that fails verification:\n  " + "\n  ".join(report.lines())
-        )
+    files, number, revision, report = _intact(folder, "export")
     if target.exists():
         raise UserError(f"{target}: exists; choose a new name (nothing was changed)")
     ident = _identity(files, folder)
