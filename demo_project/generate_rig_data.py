@@ -23,7 +23,8 @@ The test session (one day, 2026-11-12; see :data:`RUNS`):
 * force-level drift: Fy, Mz and Fx of a run are multiplied by one factor per run,
   g(t) = 1 - 0.01 (t - 08:00) / 1 h, where t is the run's start time (the force level falls by
   1 % an hour as the belt surface and the tread condition change). The truth keeps the UNdrifted
-  values and records each run's factor. For simplicity the same law is applied to the Eisenau runs;
+  values and records each run's factor. The Eisenau rig, with no control tire, drifts
+  slowly: g(t) = 1 - 0.002 (t - 10:30) / 1 h;
 * PRD-A's zero-slip offset is conicity + ply-steer: pHy1 = 0 and pVy1 = c + p rolling forward,
   c - p rolling in reverse (c = 0.012, p = 0.008, fractions of Fz, ISO 8855 rig axes).
 
@@ -34,12 +35,12 @@ What is simulated per run:
   with a decaying load oscillation (settling), then a continuous triangular slip sweep
   0 -> +12 -> -12 -> 0 deg at 4 deg/s (in ISO 8855 axes). The tire responds to a *lagged* slip
   angle: a first-order lag with time constant relaxation length / speed, which gives the up/down
-  hysteresis of a real sweep. Fy from ``dossier.magic_formula.fy0`` and Mz from
-  ``dossier.magic_formula.mz0`` with the specimen's true coefficients, at the set camber and
+  hysteresis of a real sweep. Fy from ``dossier.model.magic_formula.fy0`` and Mz from
+  ``dossier.model.magic_formula.mz0`` with the specimen's true coefficients, at the set camber and
   the run's relative pressure dpi = (p - p0)/p0;
 * longitudinal runs (slip-ratio sweeps): loads 2, 4, 6, 8 kN at camber 0, each a ramp, a hold and
   a continuous triangular slip-ratio sweep 0 -> +0.25 -> -0.25 -> 0 at 0.1 per second; Fx from
-  ``dossier.magic_formula.fx0`` of the slip ratio lagged by a first-order lag of 0.02 s; sampled
+  ``dossier.model.magic_formula.fx0`` of the slip ratio lagged by a first-order lag of 0.02 s; sampled
   at 100 Hz (lateral runs at 25 Hz);
 * the main force (Fy, or Fx) and Mz times the run's drift factor, plus gaussian noise; a few
   isolated spikes on the main force; measurement noise on every channel; the recorded inflation
@@ -58,7 +59,7 @@ from pathlib import Path
 
 import numpy as np
 
-from dossier.magic_formula import FX0_COEFFICIENTS, FY0_COEFFICIENTS, MZ0_COEFFICIENTS, fx0, fy0, mz0
+from dossier.model.magic_formula import FX0_COEFFICIENTS, FY0_COEFFICIENTS, MZ0_COEFFICIENTS, fx0, fy0, mz0
 
 HERE = Path(__file__).resolve().parent
 RIG_DIR = HERE / "rig"
@@ -68,6 +69,8 @@ SEED = 20261120
 
 # --- test session and force-level drift ----------------------------------------------------------
 SESSION_START = dt.datetime(2026, 11, 12, 8, 0)
+EZ_START = dt.datetime(2026, 11, 12, 10, 30)  # the first Eisenau run
+EZ_DRIFT_RATE_PER_H = 0.002  # the Eisenau rig's slower drift (no control tire there)
 DRIFT_RATE_PER_H = 0.01  # fraction of the force level lost per hour since SESSION_START
 
 # --- tire and model reference values ------------------------------------------------------------
@@ -303,9 +306,13 @@ RUNS: tuple[DemoRun, ...] = (
 )
 
 
-def drift_factor(tested_at: dt.datetime) -> float:
-    """g(t) = 1 - 0.01 (t - 08:00) / 1 h: the factor on Fy, Mz and Fx of a run started at `tested_at`."""
-    return 1.0 - DRIFT_RATE_PER_H * ((tested_at - SESSION_START) / dt.timedelta(hours=1))
+def drift_factor(run: DemoRun) -> float:
+    """The factor on Fy, Mz and Fx of a run: on the Harlow Ridge rig g(t) = 1 - 0.01 (t - 08:00) / 1 h;
+    on the Eisenau rig, which has no control tire, a slow g(t) = 1 - 0.002 (t - 10:30) / 1 h (a 1 %
+    fall over its five hours, inside the 2 % drift allowance its manifest entry declares)."""
+    if run.lab == HR:
+        return 1.0 - DRIFT_RATE_PER_H * ((run.tested_at - SESSION_START) / dt.timedelta(hours=1))
+    return 1.0 - EZ_DRIFT_RATE_PER_H * ((run.tested_at - EZ_START) / dt.timedelta(hours=1))
 
 
 def control_span_h() -> float:
@@ -397,7 +404,7 @@ def simulate(run: DemoRun, rng: np.random.Generator) -> dict[str, np.ndarray]:
     spec = SPECIMENS[run.specimen]
     p_fy = spec.coefficients_for(run.rolling_direction)
     lateral = run.sweep == "slip_angle"
-    g = drift_factor(run.tested_at)
+    g = drift_factor(run)
     dpi = relative_pressure(run.pressure_kpa)
     t_fine, fz_fine, camber_fine, slip_fine = rig_program(run.steps, run.sweep)
     time_constant = RELAXATION_LENGTH_M / (SPEED_KMH / 3.6) if lateral else SLIP_RATIO_LAG_S
@@ -677,7 +684,7 @@ def zero_slip_truth(spec: DemoSpecimen) -> dict:
     fz = FZ0_N
     forward = float(fy0(0.0, fz, spec.coefficients_for("forward"), FZ0_N))
     reverse = float(fy0(0.0, fz, spec.coefficients_for("reverse"), FZ0_N))
-    factors = {run.rolling_direction: drift_factor(run.tested_at) for run in RUNS
+    factors = {run.rolling_direction: drift_factor(run) for run in RUNS
                if run.specimen == spec.id and run.is_nominal_lateral and fz in run.loads_n}
     fwd_drifted, rev_drifted = factors["forward"] * forward, factors["reverse"] * reverse
     return {
@@ -735,7 +742,7 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
     span_h = control_span_h()
     return {
         "note": "Fictional demo data. True Magic Formula coefficients (Pacejka 2006, 4.3.2, lambda = 1, "
-                "pressure terms as in dossier.magic_formula) in ISO 8855 axes, alpha and gamma in rad, "
+                "pressure terms as in dossier.model.magic_formula) in ISO 8855 axes, alpha and gamma in rad, "
                 "kappa as a fraction; dpi = (p - p0)/p0 with p0 = p0_kpa and p the run's set pressure. "
                 "coefficients_fy (= coefficients), coefficients_mz and coefficients_fx are complete: every "
                 "catalogue coefficient, 0 where not used. All values here are UNdrifted (the rig files carry "
@@ -772,7 +779,7 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
             "noise_slip_ratio": NOISE_SLIP_RATIO,
             "noise_inclination_deg": NOISE_INCLINATION_DEG,
             "spike_size_n": SPIKE_SIZE_N,
-            "mz_model": "dossier.magic_formula.mz0 with the specimen's true Mz0 and Fy0 coefficients, "
+            "mz_model": "dossier.model.magic_formula.mz0 with the specimen's true Mz0 and Fy0 coefficients, "
                         "of the lagged slip angle",
             "pressure_model": "the forces see the run's set pressure; the recorded channel adds a warm-up "
                               f"rise of {PRESSURE_WARMUP_KPA:g} kPa over the run and noise",
@@ -780,7 +787,9 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
         "session": {
             "date": SESSION_START.date().isoformat(),
             "drift": {
-                "law": f"g(t) = 1 - {DRIFT_RATE_PER_H:g} * (t - {SESSION_START:%H:%M}) / 1 h, t = the run's tested_at",
+                "law": f"g(t) = 1 - {DRIFT_RATE_PER_H:g} * (t - {SESSION_START:%H:%M}) / 1 h, t = the run's tested_at, "
+                f"on the Harlow Ridge rig; g(t) = 1 - {EZ_DRIFT_RATE_PER_H:g} * (t - {EZ_START:%H:%M}) / 1 h on the "
+                "Eisenau rig",
                 "applies_to": "Fy, Mz and Fx of every run (true values times g, before noise and spikes); "
                               "one factor per run, constant within the run",
                 "reference_time": SESSION_START.isoformat(),
@@ -799,7 +808,7 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
                     "pressure_kpa": run.pressure_kpa,
                     "camber_setpoints_deg": list(run.cambers_deg),
                     "loads_n": list(run.loads_n),
-                    "drift_factor": round(drift_factor(run.tested_at), 6),
+                    "drift_factor": round(drift_factor(run), 6),
                     "spike_rows_0_based": spike_rows[run.file],
                 }
                 for run in RUNS
@@ -823,7 +832,7 @@ def main() -> None:
         else:
             write_eisenau(path, ch, run)
         print(f"wrote {path.relative_to(HERE)} ({path.stat().st_size / 1024:.0f} KiB, {ch['time'].size} samples, "
-              f"drift factor {drift_factor(run.tested_at):.4f})")
+              f"drift factor {drift_factor(run):.4f})")
     TRUTH_FILE.write_text(json.dumps(truth_document(spike_rows), indent=2) + "\n", encoding="utf-8")
     print(f"wrote {TRUTH_FILE.relative_to(HERE)}")
 

@@ -1,12 +1,18 @@
-"""Drift: how the rig's force level moved through the session, seen on the control tire.
+"""Drift: how a rig's force level moved through the session, seen on the control tire.
 
 The control specimen is re-tested at intervals. For each repeat we take model-free metrics at
 its load (:mod:`dossier.conditioning.estimates`); a straight line in time through them is the drift. The
 force level is tracked by the control's peak friction: the correction factor for a run tested at
 time t is level(t_ref)/level(t), with t_ref the first control repeat, applied to the forces and
-moments (not the load) of every non-control run when the manifest asks for it (``[drift]
-correct = true``). The drift found is always reported. This is the usual control-tire practice
-of test labs (common practice); its form (linear in time, one factor per run) is stated on the page.
+moments (not the load) of every run on the same rig — the control's own repeats included, so that
+every value refers to the level at t_ref — when the manifest asks for it (``[drift] correct =
+true``). The drift found is always reported. This is the usual control-tire practice of test labs
+(common practice); its form (linear in time, one factor per run) is stated on the page.
+
+Drift belongs to a rig: each station (lab and rig) where the control was tested twice or more gets
+its own line, and only the runs of that station are corrected by it. The scatter of the repeats
+about the line is the rig's repeatability, and the line's covariance gives the uncertainty of each
+correction factor (:mod:`dossier.metrics.budget`).
 """
 
 from __future__ import annotations
@@ -47,6 +53,9 @@ class RunCorrection:
     force_scale: float
 
 
+Station = tuple[str, str]  # (lab, rig) of a run, as the manifest gives them
+
+
 @dataclass(frozen=True)
 class DriftEstimate:
     control: str
@@ -58,16 +67,51 @@ class DriftEstimate:
     level_slope_per_hour: float
     corrected: bool
     corrections: tuple[RunCorrection, ...] = ()
+    station: Station = ("", "")
+    # The line's covariance over (intercept, slope per hour) from the scatter of the repeats about it,
+    # s²·(XᵀX)⁻¹ (ordinary least squares), and that scatter's degrees of freedom (repeats − 2). With two
+    # repeats the line has no scatter to show: level_dof is 0 and the covariance is left to the budget.
+    level_covariance: tuple[tuple[float, float], tuple[float, float]] = ((0.0, 0.0), (0.0, 0.0))
+    level_dof: int = 0
+    level_residual_sd: float = 0.0  # of the repeats about the line, in the level's unit
 
     def force_scale_at(self, when: dt.datetime) -> float:
         """Return level(t_ref)/level(when) from the straight line through the repeats."""
-        hours = (when - self.reference_time).total_seconds() / 3600.0
-        level = self.level_intercept + self.level_slope_per_hour * hours
+        level = self.level_intercept + self.level_slope_per_hour * self.hours(when)
         return float(self.level_intercept / level)
+
+    def hours(self, when: dt.datetime) -> float:
+        return (when - self.reference_time).total_seconds() / 3600.0
+
+    def scale_gradient(self, when: dt.datetime) -> tuple[float, float]:
+        """∂ ln(force scale at `when`) / ∂(intercept, slope): how an error of the line moves the factor."""
+        a, b, h = self.level_intercept, self.level_slope_per_hour, self.hours(when)
+        level = a + b * h
+        return (1.0 / a - 1.0 / level, -h / level)
+
+    @property
+    def relative_repeatability(self) -> float:
+        """The scatter of the repeats about the line, as a fraction of the level at t_ref."""
+        return self.level_residual_sd / self.level_intercept
+
+
+def estimate_drifts(
+    points: list[OperatingPoint], control: str, nominal_load_n: float, stations: dict[int, Station]
+) -> tuple[DriftEstimate, ...]:
+    """One drift line per station (run index -> lab and rig in `stations`) where the control was
+    tested at two times or more, in the order of the stations' names."""
+    found = []
+    for station in sorted(set(stations.values())):
+        here = [p for p in points if stations.get(p.run_index) == station]
+        est = estimate_drift(here, control, nominal_load_n)
+        if est is not None:
+            found.append(replace(est, station=station))
+    return tuple(found)
 
 
 def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: float) -> DriftEstimate | None:
-    """Estimate drift from the control specimen's repeats; None if it was tested fewer than twice."""
+    """Estimate drift from the control specimen's repeats (all on one rig); None if it was tested
+    fewer than twice."""
     ctl = [
         p
         for p in points
@@ -107,7 +151,29 @@ def estimate_drift(points: list[OperatingPoint], control: str, nominal_load_n: f
         line[name] = (intercept, slope)
         drifts.append(MetricDrift(name, 100.0 * slope / intercept, 100.0 * slope * span / intercept))
     intercept, slope = line["peak_friction"]
-    return DriftEstimate(control, load, repeats, tuple(drifts), t_ref, float(intercept), float(slope), False)
+    level = np.array([r.peak_friction for r in repeats], dtype=float)
+    dof = len(repeats) - 2
+    cov = ((0.0, 0.0), (0.0, 0.0))
+    sd = 0.0
+    if dof > 0:
+        resid = level - (intercept + slope * hours)
+        sd = float(np.sqrt(np.sum(resid**2) / dof))
+        design = np.column_stack([np.ones_like(hours), hours])
+        c = sd**2 * np.linalg.inv(design.T @ design)
+        cov = ((float(c[0, 0]), float(c[0, 1])), (float(c[1, 0]), float(c[1, 1])))
+    return DriftEstimate(
+        control,
+        load,
+        repeats,
+        tuple(drifts),
+        t_ref,
+        float(intercept),
+        float(slope),
+        False,
+        level_covariance=cov,
+        level_dof=max(dof, 0),
+        level_residual_sd=sd,
+    )
 
 
 def _tested_at(p: OperatingPoint) -> dt.datetime:
@@ -116,12 +182,16 @@ def _tested_at(p: OperatingPoint) -> dt.datetime:
     return p.tested_at
 
 
-def correct_points(points: list[OperatingPoint], estimate: DriftEstimate) -> tuple[list[OperatingPoint], DriftEstimate]:
-    """Scale forces and moments of every non-control run by the drift factor at its test time."""
+def correct_points(
+    points: list[OperatingPoint], estimate: DriftEstimate, stations: dict[int, Station] | None = None
+) -> tuple[list[OperatingPoint], DriftEstimate]:
+    """Scale forces and moments of every run of the estimate's station (run index -> station in
+    `stations`; None: every run), the control's own included, by the drift factor at its test time."""
     out = []
     corrections: dict[int, RunCorrection] = {}
     for p in points:
-        if p.specimen == estimate.control or p.tested_at is None:
+        elsewhere = stations is not None and stations.get(p.run_index) != estimate.station
+        if elsewhere or p.tested_at is None:
             out.append(p)
             continue
         k = estimate.force_scale_at(p.tested_at)

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..common.errors import StageError
-from ..conditioning.drift import DriftEstimate, correct_points, estimate_drift
+from ..conditioning.drift import DriftEstimate, correct_points, estimate_drifts
 from ..conditioning.offsets import split_offsets
 from ..conditioning.steady_state import UNUSABLE, ConditionedRun, condition_run
 from ..document.context import make_context, with_narrative
@@ -31,6 +31,7 @@ from ..evaluation.acceptance import verdicts as judge_targets
 from ..evaluation.comparison import compare_candidates
 from ..evaluation.vehicle import fitment_matrix
 from ..ingest.rig_table import parse_run
+from ..metrics.budget import BudgetInputs, attach_budgets
 from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n
 from ..project.load import Project, load_project
 from ..publish.environment import embedded_font_record, environment_record
@@ -138,8 +139,29 @@ def build(
     )
 
 
-def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Dossier:
-    """Every file of the dossier of `project` with `theme`, as bytes; nothing is written."""
+@dataclass(frozen=True)
+class Evaluation:
+    """Everything the dossier says, before it is drawn and written: the stages from conditioning to
+    the fitment matrix."""
+
+    conditioned: tuple[ConditionedRun, ...]
+    points: tuple  # operating points after drift correction
+    fz0_n: float
+    p0_kpa: float
+    drift: DriftEstimate | None  # the first rig's line (the pages show it)
+    drifts: tuple[DriftEstimate, ...]  # every rig's line
+    offset_splits: tuple
+    models: tuple
+    metrics: tuple
+    judged: tuple
+    standings: tuple
+    recommendation: tuple
+    fitments: tuple
+
+
+def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Evaluation:
+    """Condition, correct drift, fit, evaluate with uncertainty budgets, judge and compare: no
+    figures, no documents, nothing written."""
     manifest = project.manifest
     cache = cache or Cache(None)
     pool = pool or WorkerPool(1)
@@ -147,18 +169,53 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     measured = [p for c in conditioned for p in c.points]
     detected = [float(v) for c in conditioned if c.account.levels_detected for v in c.account.load_levels_n]
     fz0_n = nominal_load_n(manifest, detected)
-    drift: DriftEstimate | None = None
-    if manifest.drift:
-        drift = estimate_drift(measured, manifest.drift.control, fz0_n)
+    stations = {r.index: r.station for r in manifest.runs}
+    drifts = estimate_drifts(measured, manifest.drift.control, fz0_n, stations) if manifest.drift else ()
     points = measured
-    if drift and manifest.drift.correct:
-        points, drift = correct_points(measured, drift)
+    if manifest.drift and manifest.drift.correct:
+        applied = []
+        for line in drifts:  # each rig's line corrects that rig's runs only
+            points, line = correct_points(points, line, stations)
+            applied.append(line)
+        drifts = tuple(applied)
+    drift: DriftEstimate | None = drifts[0] if drifts else None  # the pages show the first rig's line
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
-    models, metrics = fit_specimens(points, manifest, fz0_n, p0_kpa, cache=cache, pool=pool)
+    models, metrics = fit_specimens(points, manifest, fz0_n, cache=cache, pool=pool)  # each at its own p0
+    corrected = bool(manifest.drift and manifest.drift.correct)
+    metrics = attach_budgets(
+        metrics, points, BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
+    )
     judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
     standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
     fitments = fitment_matrix(manifest, models)
+
+    return Evaluation(
+        tuple(conditioned),
+        tuple(points),
+        fz0_n,
+        p0_kpa,
+        drift,
+        drifts,
+        tuple(offset_splits),
+        tuple(models),
+        tuple(metrics),
+        tuple(judged),
+        tuple(standings),
+        recommendation,
+        tuple(fitments),
+    )
+
+
+def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Dossier:
+    """Every file of the dossier of `project` with `theme`, as bytes; nothing is written."""
+    manifest = project.manifest
+    cache = cache or Cache(None)
+    pool = pool or WorkerPool(1)
+    e = evaluate(project, cache=cache, pool=pool)
+    conditioned, points, fz0_n, p0_kpa, drift = list(e.conditioned), list(e.points), e.fz0_n, e.p0_kpa, e.drift
+    offset_splits, models, metrics = list(e.offset_splits), list(e.models), list(e.metrics)
+    judged, standings, recommendation, fitments = list(e.judged), list(e.standings), e.recommendation, list(e.fitments)
 
     style = theme.figure_style
     tasks = figure_tasks(

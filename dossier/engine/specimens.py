@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from ..conditioning.steady_state import OperatingPoint
 from ..metrics.evaluate import MetricValue, metric_values, specimen_metrics
 from ..model.fit import ChannelFit, SpecimenModel, fit_channel, leave_one_load_out
-from ..project.conditions import nominal_pressure_kpa, unloaded_radius_m
+from ..project.conditions import specimen_pressure_kpa, unloaded_radius_m
 from ..project.manifest import FitSettings, Manifest, MetricSettings
 from .cache import MISSING, Cache, digest, with_content_key
 from .workers import WorkerPool
@@ -45,7 +45,6 @@ def fit_specimens(
     Each specimen is one job keyed by its own data and settings: a change to one run refits only
     that run's specimen. Jobs missing from the cache run in the pool's workers.
     """
-    p0 = p0_kpa if p0_kpa is not None else nominal_pressure_kpa(manifest)
     cache = cache or Cache(None)
     extra_loads = tuple(sorted(set(manifest.metrics.loads_n) | {t.load_n for t in manifest.targets}))
     jobs = []
@@ -53,7 +52,8 @@ def fit_specimens(
         own = tuple(p for p in points if p.specimen == s.id)
         has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in own)
         r0 = unloaded_radius_m(manifest, s.id) if has_mz else None
-        jobs.append(SpecimenJob(s.id, own, manifest.fit, fz0_n, p0, r0, manifest.metrics, extra_loads))
+        own_p0 = specimen_pressure_kpa(manifest, s.id) if p0_kpa is None else p0_kpa
+        jobs.append(SpecimenJob(s.id, own, manifest.fit, fz0_n, own_p0, r0, manifest.metrics, extra_loads))
     keys = [digest("specimen", job) for job in jobs]
     results = {key: cache.get(key) for key in keys}
     todo = [(key, job) for key, job in zip(keys, jobs) if results[key] is MISSING]

@@ -36,8 +36,9 @@ def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None
     """Return (verdict, reason) of one metric value against one target window."""
     if target.camber_deg != 0.0:
         return NOT_MEASURED, "metrics are evaluated at zero camber; this target asks for another inclination"
-    if target.pressure_kpa is not None and p0_kpa is not None and round(target.pressure_kpa) != round(p0_kpa):
-        return NOT_MEASURED, f"metrics are evaluated at the nominal pressure {p0_kpa:.0f} kPa"
+    at_kpa = value.pressure_kpa if value is not None else p0_kpa  # the specimen's own nominal pressure
+    if target.pressure_kpa is not None and at_kpa is not None and round(target.pressure_kpa) != round(at_kpa):
+        return NOT_MEASURED, f"this specimen's metrics are evaluated at its nominal pressure {at_kpa:.0f} kPa"
     if value is None:
         return NOT_MEASURED, "no data for this metric"
     if value.extrapolated:
@@ -53,7 +54,7 @@ def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None
         )
     a, b = value.ci95
     if lo <= a and b <= hi:
-        return MEETS, "the whole 95 % interval lies inside the window"
+        return MEETS, "the whole 95 % interval (expanded uncertainty of the budget) lies inside the window"
     if b < lo or a > hi:
         return FAILS, "the whole 95 % interval lies outside the window"
     return MARGINAL, "the 95 % interval straddles a limit"

@@ -1,10 +1,13 @@
-"""Comparison: every candidate against the baseline, with intervals and the rig's repeatability.
+"""Comparison: every candidate against the baseline, with intervals from both uncertainty budgets.
 
-A difference of a metric (candidate − baseline) has a 95 % interval from both specimens'
-standard errors (independent fits). Where the control tire was re-tested, the scatter of its
-repeats about the drift line is the rig's repeatability for cornering stiffness and peak
-friction; a difference counts as real when its interval excludes zero *and* it exceeds twice
-that repeatability (common practice). The summary in words is built from these numbers only.
+A difference of a metric (candidate − baseline) has a 95 % interval from both values' budgets
+(:func:`dossier.metrics.budget.difference_uncertainty`): the parts they share are correlated (the
+same lab's calibration largely cancels; corrections from the same control line are correlated),
+the rest independent; ν_eff by Welch–Satterthwaite and k = t₀.₉₇₅(ν_eff), the one rule of
+:mod:`dossier.standards.coverage`. The budgets already carry the rig's repeatability, so a
+difference is real when its expanded interval excludes zero — unless the two specimens were tested
+in different labs with no specimen tested in both (no common reference): such a difference is
+labelled so and never called real on its own. The summary in words is built from these numbers only.
 """
 
 from __future__ import annotations
@@ -16,6 +19,7 @@ import numpy as np
 
 from ..conditioning.drift import DriftEstimate
 from ..evaluation.acceptance import FAILS, MARGINAL, MEETS, Verdict
+from ..metrics.budget import difference_uncertainty
 from ..metrics.evaluate import MetricValue
 from ..project.catalogue import METRICS
 from ..project.manifest import Manifest
@@ -55,6 +59,8 @@ class Difference:
     significant: bool
     normalised: float | None = None  # diff / target half-width (or tolerance), for the chart
     normalised_by: str = ""
+    correlation_note: str = ""  # how the parts both values share were treated
+    across_labs: str = ""  # set when the two were tested in different labs: with or without a common reference
 
 
 @dataclass(frozen=True)
@@ -90,8 +96,12 @@ def compare(
     load_n: float,
     drift: DriftEstimate | None,
     verdicts: list[Verdict],
+    labs_of: dict[str, frozenset[str]] | None = None,
 ) -> list[Standing]:
-    """Compare every candidate with the baseline at `load_n`; one Standing per candidate."""
+    """Compare every candidate with the baseline at `load_n`; one Standing per candidate.
+
+    `labs_of` gives the labs each specimen was tested in (for the cross-lab label)."""
+    labs_of = labs_of or {}
     rep = repeatability_pct(drift)
     at = {(m.specimen, m.metric): m for m in metrics if math.isclose(m.load_n, load_n)}
     windows = {}
@@ -108,13 +118,17 @@ def compare(
                 continue
             d = a.value - b.value
             ci = None
-            if a.stderr is not None and b.stderr is not None:
+            note = ""
+            if a.budget is not None and b.budget is not None:
+                sd, dof, note = difference_uncertainty(a.budget, a.value, b.budget, b.value)
+                ci = interval(d, sd, dof)
+            elif a.stderr is not None and b.stderr is not None:
                 sd = math.hypot(a.stderr, b.stderr)
                 ci = interval(d, sd, effective_dof([(a.stderr, a.dof), (b.stderr, b.dof)]))
             pct = 100.0 * d / b.value if b.value else float("nan")
             r = rep.get(REPEATABILITY_OF.get(name, ""))
             excludes_zero = ci is not None and (ci[0] > 0 or ci[1] < 0)
-            beyond_rig = r is None or abs(pct) > 2.0 * r * math.sqrt(2.0)  # difference of two tests
+            crossing = _across_labs(c, baseline, labs_of)
             norm, by = None, ""
             if name in windows:
                 norm, by = d / windows[name][0], windows[name][1]
@@ -133,9 +147,11 @@ def compare(
                     ci,
                     pct,
                     r,
-                    excludes_zero and beyond_rig,
+                    excludes_zero and not crossing.startswith("no common reference"),
                     norm,
                     by,
+                    note,
+                    crossing,
                 )
             )
         mine = [v for v in verdicts if v.specimen == c]
@@ -153,6 +169,20 @@ def compare(
     return out
 
 
+def _across_labs(candidate: str, baseline: str, labs_of: dict[str, frozenset[str]]) -> str:
+    """ "" when both were tested in the same labs; else whether a specimen tested in both links them."""
+    a, b = labs_of.get(candidate, frozenset()), labs_of.get(baseline, frozenset())
+    if not a or not b or a == b:
+        return ""
+    if a & b:
+        return "partly in different labs"
+    linked = [s for s, labs in sorted(labs_of.items()) if s not in (candidate, baseline) and labs & a and labs & b]
+    where = f"{', '.join(sorted(a))} against {', '.join(sorted(b))}"
+    if linked:
+        return f"different labs ({where}), linked by {', '.join(linked)} tested in both"
+    return f"no common reference: tested in different labs ({where}) and no specimen was tested in both"
+
+
 def _sentence(c, baseline, diffs, mine, counts) -> str:
     real = [d for d in diffs if d.significant]
     parts = []
@@ -160,6 +190,9 @@ def _sentence(c, baseline, diffs, mine, counts) -> str:
         parts.append(f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f} %")
     same = [METRICS[d.metric].label.lower() for d in diffs if not d.significant][:3]
     text = f"{c} against {baseline}: "
+    crossing = next((d.across_labs for d in diffs if d.across_labs.startswith("no common reference")), "")
+    if crossing:
+        text += f"{crossing[len('no common reference: ') :]}, so no difference is called real on its own; "
     text += ("real differences in " + ", ".join(parts)) if parts else "no difference beyond the uncertainty"
     if same:
         text += "; within the uncertainty: " + ", ".join(same)
@@ -232,5 +265,8 @@ def compare_candidates(manifest: Manifest, metrics, fz0_n, drift, judged):
     candidates = [s.id for s in manifest.specimens if s.role == "candidate"]
     if base is None or not candidates:
         return [], (None, "no baseline and candidates to compare")
-    standings = compare(base, candidates, metrics, fz0_n, drift, judged)
+    labs_of: dict[str, frozenset[str]] = {}
+    for r in manifest.runs:
+        labs_of[r.specimen] = labs_of.get(r.specimen, frozenset()) | {r.lab or "(lab not given)"}
+    standings = compare(base, candidates, metrics, fz0_n, drift, judged, labs_of)
     return standings, recommend(standings)

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -24,6 +25,9 @@ from ..conditioning.steady_state import OperatingPoint
 from ..model.fit import ChannelFit, SpecimenModel
 from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
 from ..standards.coverage import interval
+
+if TYPE_CHECKING:
+    from .budget import Budget
 
 SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
 SLIP_STEP_RATIO = 1e-5
@@ -53,7 +57,8 @@ class MetricValue:
     crosscheck: float | None = None  # model-free estimate from the conditioned data
     crosscheck_diff_pct: float | None = None
     finding: str = ""
-    dof: int | None = None  # degrees of freedom of the interval (dossier.standards.coverage)
+    dof: float | None = None  # degrees of freedom of the interval (dossier.standards.coverage)
+    budget: Budget | None = None  # the uncertainty budget the interval comes from (dossier.metrics.budget)
 
 
 # --- evaluation helpers -----------------------------------------------------------------------

@@ -11,7 +11,7 @@ from ..common.errors import Problem
 from ..common.names import slug
 from ..standards import sidewall
 from .manifest import REQUIRED_CHANNELS, SWEEP_CHANNELS, quantity_value
-from .validation import suggest
+from .validation import join_path, suggest
 
 
 def check_references(data: dict, problems: list[Problem]) -> None:
@@ -170,4 +170,14 @@ def check_references(data: dict, problems: list[Problem]) -> None:
         if s and s.get("id") and s["id"] not in used and data.get("runs"):
             problems.append(
                 Problem(f"specimens[{i}]", f"specimen {s['id']!r} has no rig run; add a [[runs]] entry or remove it")
+            )
+    run_labs = sorted({r.get("lab") or "" for r in (data.get("runs") or []) if r})
+    for name in data.get("labs") or {}:
+        if name not in run_labs:
+            named = ", ".join(repr(n) for n in run_labs if n) or "none (no run gives a lab)"
+            problems.append(
+                Problem(
+                    join_path("labs", name),
+                    f"no run names this lab{suggest(name, [n for n in run_labs if n])}; the runs' labs are {named}",
+                )
             )

@@ -35,6 +35,23 @@ def nominal_pressure_kpa(manifest: Manifest) -> float:
     return float(next(r.pressure_kpa for r in manifest.runs if round(r.pressure_kpa) == best))
 
 
+def specimen_pressure_kpa(manifest: Manifest, specimen_id: str) -> float:
+    """A specimen's own nominal pressure, the one its metrics are given at: its manifest key
+    ``nominal_pressure_kpa``, else p0 when it was tested there (to 1 kPa), else the pressure of most
+    of its runs (ties: the one nearest p0, then the lower). A specimen tested only at its own
+    pressure is never labelled with one it did not see."""
+    s = manifest.specimen(specimen_id)
+    if s.nominal_pressure_kpa:
+        return s.nominal_pressure_kpa
+    p0 = nominal_pressure_kpa(manifest)
+    own = [r.pressure_kpa for r in manifest.runs if r.specimen == specimen_id]
+    rounded = [round(p) for p in own]
+    if not own or round(p0) in rounded:
+        return p0
+    best = max(sorted(set(rounded), key=lambda p: (abs(p - p0), p)), key=rounded.count)
+    return float(next(p for p in own if round(p) == best))
+
+
 def rated_load_n(specimen) -> float | None:
     """The rated load per tire: the manifest's value, else from the load index of the size."""
     if specimen.rated_load_n:

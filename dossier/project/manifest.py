@@ -60,6 +60,7 @@ class Specimen:
     rated_load_n: float | None
     unloaded_radius_m: float | None = None
     tin: str | None = None
+    nominal_pressure_kpa: float | None = None  # None: the specimen's most-tested pressure
 
 
 @dataclass(frozen=True)
@@ -86,6 +87,12 @@ class RunSpec:
     sweep: str = "slip_angle"
     rolling_direction: str = "forward"
     tested_at: dt.datetime | None = None
+    rig: str = ""  # the machine within the lab; drift is tracked per lab and rig
+
+    @property
+    def station(self) -> tuple[str, str]:
+        """The lab and rig the run was tested on: a control tracks drift only where it was tested."""
+        return (self.lab, self.rig)
 
     @property
     def location(self) -> str:
@@ -181,6 +188,25 @@ class MetricSettings:
 
 
 @dataclass(frozen=True)
+class LabSettings:
+    """What a lab declares about its rig's accuracy (`[labs."NAME"]`), each a bound (± a, read as
+    a rectangular distribution, u = a/√3, GUM 4.3.7). A value not declared takes the default below,
+    stated as assumed on the dossier's pages."""
+
+    force_accuracy_pct: float = 0.5  # % of reading (common practice for rig load cells)
+    moment_accuracy_pct: float = 1.0  # % of reading (common practice)
+    load_accuracy_pct: float = 0.5  # % of reading of the normal-load channel (common practice)
+    force_full_scale_n: float | None = None  # with force_accuracy_pct_of_full_scale: a part in % of full scale
+    force_accuracy_pct_of_full_scale: float = 0.0
+    angle_accuracy_deg: float = 0.05  # slip-angle and camber set-point accuracy (common practice)
+    drift_allowance_pct: float = 1.0  # where no control was tested on the lab's rig (common practice)
+    repeatability_allowance_pct: float = 0.5  # where nothing was repeated (common practice)
+
+
+LAB_DEFAULTS = LabSettings()
+
+
+@dataclass(frozen=True)
 class DriftSettings:
     control: str
     correct: bool = False
@@ -211,9 +237,14 @@ class Manifest:
     revisions: tuple[Revision, ...] = ()
     narrative: dict[str, str] = field(default_factory=dict)  # part -> relative path
     sha256: str = ""  # of the manifest file as read
+    labs: tuple[tuple[str, LabSettings, tuple[str, ...]], ...] = ()  # name, settings, the keys declared
 
     def specimen(self, specimen_id: str) -> Specimen:
         return next(s for s in self.specimens if s.id == specimen_id)
+
+    def lab(self, name: str) -> tuple[LabSettings, tuple[str, ...]]:
+        """A lab's declared accuracy and the keys it declared (nothing declared: the defaults)."""
+        return next(((s, keys) for n, s, keys in self.labs if n == name), (LAB_DEFAULTS, ()))
 
 
 def typed_manifest(data: dict, project_dir: Path) -> Manifest:
@@ -231,7 +262,14 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
     )
     specimens = tuple(
         Specimen(
-            s["id"], s["role"], s["size"], s["construction"] or "", s["rated_load_n"], s["unloaded_radius_m"], s["tin"]
+            s["id"],
+            s["role"],
+            s["size"],
+            s["construction"] or "",
+            s["rated_load_n"],
+            s["unloaded_radius_m"],
+            s["tin"],
+            s["nominal_pressure_kpa"],
         )
         for s in data["specimens"]
     )
@@ -260,6 +298,7 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
                 sweep=r["sweep"],
                 rolling_direction=r["rolling_direction"],
                 tested_at=r["tested_at"],
+                rig=r["rig"] or "",
             )
         )
     cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()
@@ -290,6 +329,14 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
         signoff,
         revisions,
         narrative,
+        labs=tuple(
+            (
+                name,
+                LabSettings(**{k: v for k, v in lab.items() if v is not None}),
+                tuple(sorted(k for k in lab if lab[k] is not None)),
+            )
+            for name, lab in sorted((data.get("labs") or {}).items())
+        ),
     )
 
 

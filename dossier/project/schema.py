@@ -21,6 +21,7 @@ from .manifest import (
     ConditioningSettings,
     DriftSettings,
     FitSettings,
+    LabSettings,
     MetricSettings,
     RunSpec,
 )
@@ -33,6 +34,7 @@ from .validation import (
     Key,
     ListOf,
     MapOf,
+    NamedTables,
     Number,
     Problem,
     RelativePath,
@@ -64,6 +66,24 @@ def _axle() -> Table:
             "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single"),
         }
     )
+
+
+_LAB_CHECKERS = {
+    "force_accuracy_pct": Number(minimum=0, maximum=20),
+    "moment_accuracy_pct": Number(minimum=0, maximum=20),
+    "load_accuracy_pct": Number(minimum=0, maximum=20),
+    "force_full_scale_n": Number(minimum=0, maximum=MAX_QUANTITY, exclusive_minimum=True),
+    "force_accuracy_pct_of_full_scale": Number(minimum=0, maximum=20),
+    "angle_accuracy_deg": Number(minimum=0, maximum=2),
+    "drift_allowance_pct": Number(minimum=0, maximum=50),
+    "repeatability_allowance_pct": Number(minimum=0, maximum=50),
+}
+
+
+def _lab() -> Table:
+    """A lab's accuracy: every key optional; what is not declared is the stated default (assumed)."""
+    options_of(LabSettings, _LAB_CHECKERS)  # the checkers and the settings' fields name the same keys
+    return Table({name: Key(checker, required=False, default=None) for name, checker in _LAB_CHECKERS.items()})
 
 
 @dataclass(frozen=True)
@@ -120,6 +140,11 @@ MANIFEST_SCHEMA = Table(
                             required=False,
                             help="R0 for the aligning-moment model; default from the size designation",
                         ),
+                        "nominal_pressure_kpa": Key(
+                            Number(minimum=0, maximum=MAX_QUANTITY, exclusive_minimum=True),
+                            required=False,
+                            help="the pressure its headline metrics are given at; default: its most-tested pressure",
+                        ),
                     }
                 ),
                 min_items=1,
@@ -132,6 +157,7 @@ MANIFEST_SCHEMA = Table(
                         "specimen": Key(Text()),
                         "file": Key(RelativePath()),
                         "lab": Key(Text(), required=False, default=""),
+                        "rig": Key(Text(), required=False, default="", help="the machine within the lab"),
                         "axis_convention": Key(Choice(axes.CONVENTIONS)),
                         "delimiter": Key(Choice((",", ";", "\t")), required=False, default=","),
                         "decimal": Key(Choice((".", ",")), required=False, default="."),
@@ -305,6 +331,12 @@ MANIFEST_SCHEMA = Table(
             ),
             required=False,
             default=None,
+        ),
+        "labs": Key(
+            NamedTables(_lab()),
+            required=False,
+            default={},
+            help="each lab's declared rig accuracy, by the name its runs give in `lab`",
         ),
         "drift": Key(
             options_of(

@@ -224,12 +224,12 @@ class Table:
         out = {}
         for name in value:
             if name not in self.keys:
-                problems.append(Problem(_join(path, name), f"unknown key{suggest(name, list(self.keys))}"))
+                problems.append(Problem(join_path(path, name), f"unknown key{suggest(name, list(self.keys))}"))
         for name, key in self.keys.items():
             if name in value:
-                out[name] = key.checker(value[name], _join(path, name), problems)
+                out[name] = key.checker(value[name], join_path(path, name), problems)
             elif key.required:
-                problems.append(Problem(_join(path, name), "is required" + (f" ({key.help})" if key.help else "")))
+                problems.append(Problem(join_path(path, name), "is required" + (f" ({key.help})" if key.help else "")))
                 out[name] = None
             else:
                 out[name] = key.default
@@ -251,17 +251,44 @@ class MapOf:
             if name not in self.allowed:
                 problems.append(
                     Problem(
-                        _join(path, name),
+                        join_path(path, name),
                         f"unknown channel{suggest(name, list(self.allowed))}; channels are {', '.join(self.allowed)}",
                     )
                 )
                 continue
-            out[name] = self.allowed[name](item, _join(path, name), problems)
+            out[name] = self.allowed[name](item, join_path(path, name), problems)
         return out
 
 
-def _join(path: str, name: str) -> str:
-    return f"{path}.{name}" if path else name
+@dataclass(frozen=True)
+class NamedTables:
+    """A table of entries named by the user (a lab's name, …), each checked by `item`."""
+
+    item: Checker
+    max_name_chars: int = 120
+
+    def __call__(self, value, path, problems):
+        if not isinstance(value, dict):
+            problems.append(Problem(path, f"must be a table; got {shown(value)}"))
+            return None
+        out = {}
+        for name, item in value.items():
+            if not name.strip() or len(name) > self.max_name_chars:
+                problems.append(
+                    Problem(
+                        join_path(path, name), f"a name of 1 to {self.max_name_chars} characters; got {shown(name)}"
+                    )
+                )
+                continue
+            out[name] = self.item(item, join_path(path, name), problems)
+        return out
+
+
+def join_path(path: str, name: str) -> str:
+    """`path.name`, the name quoted as TOML quotes it when it is not a bare key."""
+    bare = name.replace("_", "").replace("-", "").isalnum() and name.isascii()
+    shown_name = name if bare else '"' + name.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    return f"{path}.{shown_name}" if path else shown_name
 
 
 def shown(value: Any) -> str:

@@ -18,6 +18,7 @@ from .. import __version__
 from ..conditioning.drift import DriftEstimate
 from ..conditioning.offsets import OffsetSplit
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
+from ..metrics.budget import Budget
 from ..metrics.evaluate import MetricValue
 from ..model.fit import MODEL_NAME, ChannelFit
 from ..project.catalogue import METRICS
@@ -277,7 +278,9 @@ def results_record(
                 "pressure_kpa": _num(v.pressure_kpa),
                 "value": _num(v.value),
                 "stderr": _num(v.stderr),
+                "dof": _num(v.dof),
                 "ci95": None if v.ci95 is None else [_num(v.ci95[0]), _num(v.ci95[1])],
+                "uncertainty": _budget_record(v.budget),
                 "basis": v.basis,
                 "extrapolated": v.extrapolated,
                 "note": v.note,
@@ -508,3 +511,28 @@ def conditioned_data_files(conditioned: list[ConditionedRun]) -> dict[str, bytes
                 )
         files[f"conditioned/run-{a.run_index:02d}.csv"] = ("\n".join(lines) + "\n").encode("utf-8")
     return files
+
+
+def _budget_record(b: Budget | None) -> dict | None:
+    """Every component of a metric's uncertainty budget, its combination and its expansion."""
+    if b is None:
+        return None
+    return {
+        "method": "GUM (JCGM 100:2008): independent components, Welch-Satterthwaite, k = t(0.975, nu_eff)",
+        "components": [
+            {
+                "name": c.name,
+                "type": c.kind,
+                "standard_uncertainty": _num(c.u),
+                "dof": _num(c.dof),
+                "basis": c.basis,
+                "shared": c.shared or None,
+            }
+            for c in b.components
+        ],
+        "combined_standard_uncertainty": _num(b.u_combined),
+        "effective_dof": _num(b.dof_effective),
+        "coverage_factor": _num(b.k),
+        "expanded_uncertainty": _num(b.expanded),
+        "coverage_probability": 0.95,
+    }
