@@ -111,7 +111,7 @@ def test_combination_follows_the_gum():
     assert b.u_combined == pytest.approx(5.0)
     assert b.dof_effective == pytest.approx(625.0 / (81.0 / 4.0))
     assert b.k == pytest.approx(2.04, abs=0.005)  # GUM Table G.2: t95 for 30 dof is 2.04
-    assert RECTANGULAR == pytest.approx(math.sqrt(3.0))
+    assert pytest.approx(math.sqrt(3.0)) == RECTANGULAR
 
 
 def test_a_shared_calibration_cancels_in_a_difference_and_a_foreign_one_does_not():

@@ -46,6 +46,11 @@ class SpecimenView:
         return sorted({m.load_n for m in self.metrics if METRICS[m.metric].per_load})
 
     @property
+    def pressure_kpa(self) -> float | None:
+        """The pressure this specimen's metrics are given at (its own nominal pressure)."""
+        return next((m.pressure_kpa for m in self.metrics), None)
+
+    @property
     def specimen_level(self) -> list[MetricValue]:
         return [m for m in self.metrics if not METRICS[m.metric].per_load]
 

@@ -26,7 +26,10 @@ def fmt_ci(ci, unit: str) -> str:
 def fmt_sig(value: float | None, digits: int = 4) -> str:
     if value is None or not math.isfinite(value):
         return "–"
-    return f"{value:.{digits}g}"
+    text = f"{value:.{digits}g}"
+    if "e+" in text and abs(value) < 1e7:  # 1.5e+02 reads as 150: no exponent below ten million
+        return f"{float(text):.0f}"
+    return text
 
 
 def fmt_kn(value_n: float) -> str:

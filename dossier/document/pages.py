@@ -12,8 +12,12 @@ import hashlib
 import jinja2
 
 from ..common.errors import StageError
+from ..conditioning import estimates
+from ..metrics.budget import LABELS as BUDGET_LABELS
+from ..metrics.budget import ORDER as BUDGET_ORDER
 from ..model.fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME
 from ..project.catalogue import METRICS
+from ..project.manifest import LAB_DEFAULTS
 from .cautions import CAUTIONS_ID
 from .context import DossierContext
 from .numbers import fmt_ci, fmt_fixed, fmt_kn, fmt_metric, fmt_sig
@@ -60,6 +64,13 @@ def make_environment(
         annexes=ANNEXES,
         volumes=VOLUMES,
         volume_by_key={v.key: v for v in VOLUMES},
+        budget_order=BUDGET_ORDER,
+        method={
+            "local_half_range_deg": estimates.LOCAL_HALF_RANGE_DEG,
+            "local_half_range_ratio": estimates.LOCAL_HALF_RANGE_RATIO,
+            "lab_defaults": LAB_DEFAULTS,
+        },
+        budget_labels=BUDGET_LABELS,
     )
     return env
 

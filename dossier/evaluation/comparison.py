@@ -184,16 +184,29 @@ def _across_labs(candidate: str, baseline: str, labs_of: dict[str, frozenset[str
 
 
 def _sentence(c, baseline, diffs, mine, counts) -> str:
+    def label(d):
+        return f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f} %"
+
+    def excludes_zero(d):
+        return d.diff_ci95 is not None and (d.diff_ci95[0] > 0 or d.diff_ci95[1] < 0)
+
     real = [d for d in diffs if d.significant]
-    parts = []
-    for d in real[:4]:
-        parts.append(f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f} %")
-    same = [METRICS[d.metric].label.lower() for d in diffs if not d.significant][:3]
+    unlinked = [d for d in diffs if not d.significant and excludes_zero(d)]  # only ever across unlinked labs
+    same = [METRICS[d.metric].label.lower() for d in diffs if not d.significant and not excludes_zero(d)][:3]
     text = f"{c} against {baseline}: "
     crossing = next((d.across_labs for d in diffs if d.across_labs.startswith("no common reference")), "")
     if crossing:
         text += f"{crossing[len('no common reference: ') :]}, so no difference is called real on its own; "
-    text += ("real differences in " + ", ".join(parts)) if parts else "no difference beyond the uncertainty"
+        if unlinked:
+            text += "apparent differences, not confirmed across the labs: " + ", ".join(label(d) for d in unlinked[:4])
+        else:
+            text += "no difference beyond the uncertainty"
+    else:
+        text += (
+            ("real differences in " + ", ".join(label(d) for d in real[:4]))
+            if real
+            else "no difference beyond the uncertainty"
+        )
     if same:
         text += "; within the uncertainty: " + ", ".join(same)
     if mine:

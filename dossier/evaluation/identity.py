@@ -139,6 +139,7 @@ def _pressure_finding(r: RunSpec, kind: str | None) -> str | None:
             lambda v: lo <= v <= hi,
             lambda vs: f"{_nums(vs)} kPa",
             f"{r.location}.pressure",
+            low=p < lo,
         )
     )
 
@@ -166,7 +167,9 @@ def _load_findings(r: RunSpec, rated_n: float, rating: str) -> list[str]:
         out.append(
             f"run {r.index} ({r.file}): {what} {_nums(group)} N {verb} {pcts} % of the rated load {rating}, "
             f"{side} the {_num(lo_pct)}–{_num(hi_pct)} % a rig test uses; "
-            + _mix_up(tuple(group), "N", LOAD_MIX_UPS, plausible, shown, f"{r.location}.load_setpoints")
+            + _mix_up(
+                tuple(group), "N", LOAD_MIX_UPS, plausible, shown, f"{r.location}.load_setpoints", low=group is below
+            )
         )
     return out
 
@@ -178,11 +181,12 @@ def _mix_up(
     plausible: Callable[[float], bool],
     shown: Callable[[Sequence[float]], str],
     key: str,
+    *,
+    low: bool,
 ) -> str:
     """Name the unit mix-ups that would bring every value into the plausible range, or say none does."""
     one = len(values) == 1
     looks = "the value looks like" if one else "the values look like"
-    low = not plausible(values[0]) and all(v < _lowest_plausible(plausible, v) for v in values)
     readings, names = [], []
     for name, factor in mix_ups:
         # Too low: the number was meant in the larger unit; too high: it was meant in `unit` but
@@ -200,17 +204,6 @@ def _mix_up(
     which = " or ".join(names)
     mixed = f"{which} entered as {unit}" if low else f"{unit} entered as {which}"
     return f"{', '.join(readings)}: {looks} {mixed} (manifest {key})"
-
-
-def _lowest_plausible(plausible: Callable[[float], bool], v: float) -> float:
-    """Return a value the range holds above `v` when `v` is below it, else `v` itself."""
-    # The callers' ranges are intervals: scaling up finds the range when `v` lies below it.
-    x = v
-    for _ in range(60):
-        if plausible(x):
-            return x
-        x = x * 2.0 if x > 0 else 1.0
-    return v
 
 
 def _how_far(v: float, lo: float, hi: float) -> str:

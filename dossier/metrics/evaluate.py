@@ -16,7 +16,6 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -24,10 +23,7 @@ from ..conditioning import estimates
 from ..conditioning.steady_state import OperatingPoint
 from ..model.fit import ChannelFit, SpecimenModel
 from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
-from ..standards.coverage import interval
-
-if TYPE_CHECKING:
-    from .budget import Budget
+from ..standards.coverage import Budget, interval
 
 SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
 SLIP_STEP_RATIO = 1e-5

@@ -174,10 +174,10 @@ def check_references(data: dict, problems: list[Problem]) -> None:
     run_labs = sorted({r.get("lab") or "" for r in (data.get("runs") or []) if r})
     for name in data.get("labs") or {}:
         if name not in run_labs:
-            named = ", ".join(repr(n) for n in run_labs if n) or "none (no run gives a lab)"
+            lab_names = ", ".join(repr(n) for n in run_labs if n) or "none (no run gives a lab)"
             problems.append(
                 Problem(
                     join_path("labs", name),
-                    f"no run names this lab{suggest(name, [n for n in run_labs if n])}; the runs' labs are {named}",
+                    f"no run names this lab{suggest(name, [n for n in run_labs if n])}; the runs' labs are {lab_names}",
                 )
             )

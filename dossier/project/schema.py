@@ -27,6 +27,7 @@ from .manifest import (
 )
 from .validation import (
     Boolean,
+    Checker,
     Choice,
     Date,
     DateTime,
@@ -68,7 +69,7 @@ def _axle() -> Table:
     )
 
 
-_LAB_CHECKERS = {
+_LAB_CHECKERS: dict[str, Checker] = {
     "force_accuracy_pct": Number(minimum=0, maximum=20),
     "moment_accuracy_pct": Number(minimum=0, maximum=20),
     "load_accuracy_pct": Number(minimum=0, maximum=20),

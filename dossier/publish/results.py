@@ -334,6 +334,8 @@ def results_record(
                         "diff_pct": _num(d.diff_pct),
                         "repeatability_pct": _num(d.repeatability_pct),
                         "significant": d.significant,
+                        "across_labs": d.across_labs or None,
+                        "correlated_parts": d.correlation_note or None,
                     }
                     for d in s.differences
                 ],

