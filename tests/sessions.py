@@ -56,6 +56,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import minimize_scalar
 from scipy.signal import lfilter, lfilter_zi
+from test_fit_checks import TRUE_FX
 
 from dossier.model import magic_formula as mf
 
@@ -159,18 +160,7 @@ BASE_MZ = {
     "qHz1": 0.0015,
     "qBz10": 0.2,
 }
-BASE_FX = {
-    "pCx1": 1.65,
-    "pDx1": 1.2,
-    "pDx2": -0.07,
-    "pEx1": 0.3,
-    "pEx2": 0.1,
-    "pEx4": 0.05,
-    "pKx1": 22.0,
-    "pKx2": 2.0,
-    "pHx1": 0.001,
-    "pVx1": 0.005,
-}
+BASE_FX = dict(TRUE_FX)  # the same invented longitudinal set as the fit checks
 
 METRIC_NAMES = (
     "cornering_stiffness",
