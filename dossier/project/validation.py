@@ -243,8 +243,7 @@ class MapOf:
     allowed: dict[str, Checker]
 
     def __call__(self, value, path, problems):
-        if not isinstance(value, dict):
-            problems.append(Problem(path, f"must be a table; got {shown(value)}"))
+        if not _is_table(value, path, problems):
             return None
         out = {}
         for name, item in value.items():
@@ -268,8 +267,7 @@ class NamedTables:
     max_name_chars: int = 120
 
     def __call__(self, value, path, problems):
-        if not isinstance(value, dict):
-            problems.append(Problem(path, f"must be a table; got {shown(value)}"))
+        if not _is_table(value, path, problems):
             return None
         out = {}
         for name, item in value.items():
@@ -282,6 +280,14 @@ class NamedTables:
                 continue
             out[name] = self.item(item, join_path(path, name), problems)
         return out
+
+
+def _is_table(value, path: str, problems: list[Problem]) -> bool:
+    """Whether `value` is a TOML table; if not, a located problem says what was found."""
+    if isinstance(value, dict):
+        return True
+    problems.append(Problem(path, f"must be a table; got {shown(value)}"))
+    return False
 
 
 def join_path(path: str, name: str) -> str:
