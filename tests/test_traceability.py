@@ -12,6 +12,7 @@ from dossier.common.errors import OutputError, StateError
 from dossier.engine import rebuild
 from dossier.engine.build import build
 from dossier.publish import archive
+from dossier.publish.provenance import metric_id
 
 
 @pytest.fixture(scope="module")
@@ -43,7 +44,8 @@ def test_provenance_parses_as_prov_json_and_every_metric_traces_to_a_file_hash(r
 
     results = json.loads((out / "results.json").read_text(encoding="utf-8"))
     for m in results["metrics"]:
-        ident = f"d:metric-{m['specimen']}-{m['metric']}-{m['load_n']:.0f}N"
+        condition = None if m["nominal_condition"] else (m["camber_deg"], m["pressure_kpa"])
+        ident = metric_id(m["specimen"], m["metric"], m["load_n"], condition)
         assert ident in raw["entity"], ident
         assert reaches_a_file(ident), ident
     rig = [e for e in raw["entity"].values() if e.get("prov:label") == "rig/a.csv"]

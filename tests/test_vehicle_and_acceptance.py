@@ -127,12 +127,33 @@ def _value(v, ci, extrapolated=False):
         (_target(maximum=1000), _value(900, (850, 950)), MEETS),
         (_target(1000, 1200), None, NOT_MEASURED),  # missing metric
         (_target(1000, 1200), _value(1100, (1050, 1150), extrapolated=True), NOT_MEASURED),  # outside the load range
-        (_target(1000, 1200, camber=-2.0), _value(1100, (1050, 1150)), NOT_MEASURED),
-        (_target(1000, 1200, pressure=280.0), _value(1100, (1050, 1150)), NOT_MEASURED),
     ],
 )
 def test_verdict_edges(target, value, verdict):
-    assert judge(target, value, 240.0)[0] == verdict
+    assert judge(target, value)[0] == verdict
+
+
+def test_targets_are_judged_at_their_own_camber_and_pressure():
+    """A target naming a camber or pressure takes the value there, never the nominal one; one that
+    names no pressure takes the specimen's own nominal pressure."""
+    from dataclasses import replace
+
+    from dossier.evaluation.acceptance import verdicts
+
+    nominal = _value(1100, (1050, 1150))  # 0°, 240 kPa: inside 1000–1200
+    cambered = replace(nominal, camber_deg=-2.0, value=950.0, ci95=(900.0, 990.0))  # outside
+    soft = replace(nominal, pressure_kpa=200.0, value=1190.0, ci95=(1150.0, 1230.0))  # straddles
+    values = [nominal, cambered, soft]
+    found = verdicts(
+        (_target(1000, 1200), _target(1000, 1200, camber=-2.0), _target(1000, 1200, pressure=200.0)),
+        ["S"],
+        values,
+        {"S": 240.0},
+    )
+    assert [v.verdict for v in found] == [MEETS, FAILS, MARGINAL]
+    assert [(v.camber_deg, v.pressure_kpa) for v in found] == [(0.0, 240.0), (-2.0, 240.0), (0.0, 200.0)]
+    missing = verdicts((_target(1000, 1200, pressure=300.0),), ["S"], values, {"S": 240.0})
+    assert missing[0].verdict == NOT_MEASURED  # nothing evaluated at 300 kPa
 
 
 # --- a recommendation only from evidence ---------------------------------------------------------

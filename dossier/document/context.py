@@ -20,11 +20,37 @@ from ..evaluation.identity import SpecimenIdentity, specimen_identity
 from ..evaluation.vehicle import SIMPLIFICATIONS
 from ..metrics.evaluate import MetricValue
 from ..model.fit import ChannelFit
-from ..project.catalogue import METRICS, MetricDefinition
+from ..project.catalogue import METRICS, PRESSURE_SENSITIVE, MetricDefinition
 from ..project.manifest import Manifest, RunSpec, Specimen
 from ..standards import axes
 from .artifacts import FigureArtifact
 from .cautions import CAUTIONS, CAUTIONS_ID
+
+
+@dataclass(frozen=True)
+class ConditionGroup:
+    """A specimen's metric values at one camber and pressure other than its nominal ones."""
+
+    camber_deg: float
+    pressure_kpa: float
+    values: tuple[MetricValue, ...]
+
+    @property
+    def loads(self) -> list[float]:
+        return sorted({m.load_n for m in self.values})
+
+    def metric(self, name: str, load_n: float) -> MetricValue | None:
+        return next((m for m in self.values if m.metric == name and math.isclose(m.load_n, load_n)), None)
+
+    def tables(self, groups: list[tuple[str, list[MetricDefinition]]], columns: int = 6):
+        """The headline `groups` as (title, metrics) with only the metrics that have a value here; the
+        groups joined into one table where that fits `columns` metrics."""
+        have = {m.metric for m in self.values}
+        shown = [(title, [m for m in defs if m.name in have]) for title, defs in groups]
+        shown = [(title, defs) for title, defs in shown if defs]
+        if len(shown) > 1 and sum(len(defs) for _, defs in shown) <= columns:
+            return [("headline", [m for _, defs in shown for m in defs])]
+        return [(title.lower(), defs) for title, defs in shown]
 
 
 @dataclass(frozen=True)
@@ -37,9 +63,39 @@ class SpecimenView:
     figures: tuple[FigureArtifact, ...]
 
     identity: SpecimenIdentity | None = None
+    condition_metrics: tuple[MetricValue, ...] = ()  # at the other cambers × pressures tested
 
     def metric(self, name: str, load_n: float) -> MetricValue | None:
         return next((m for m in self.metrics if m.metric == name and math.isclose(m.load_n, load_n)), None)
+
+    @property
+    def pressure_pairs(self) -> list[tuple[str, MetricDefinition, MetricDefinition]]:
+        """(label, per-10-kPa metric, %-per-bar metric) of each metric this specimen has a tested slope
+        against pressure of (the catalogue's order)."""
+        have = {m.metric for m in self.metrics if METRICS[m.metric].group == "pressure" and not m.extrapolated}
+        return [
+            (label, METRICS[f"{name}_per_10kpa"], METRICS[f"{name}_pct_per_bar"])
+            for name, (label, _, _) in PRESSURE_SENSITIVE.items()
+            if f"{name}_per_10kpa" in have
+        ]
+
+    @property
+    def pressure_loads(self) -> list[float]:
+        """The loads at which two or more pressures were tested (a slope against pressure that is not extrapolated)."""
+        return sorted({m.load_n for m in self.metrics if METRICS[m.metric].group == "pressure" and not m.extrapolated})
+
+    @property
+    def camber_deg(self) -> float | None:
+        """The camber this specimen's headline metrics are given at (its own nominal camber)."""
+        return next((m.camber_deg for m in self.metrics), None)
+
+    @property
+    def conditions(self) -> list[ConditionGroup]:
+        """The values at every other camber × pressure, one group per condition (camber, then pressure)."""
+        groups: dict[tuple[float, float], list[MetricValue]] = {}
+        for m in self.condition_metrics:
+            groups.setdefault((round(m.camber_deg, 2), round(m.pressure_kpa)), []).append(m)
+        return [ConditionGroup(c, p, tuple(vs)) for (c, p), vs in sorted(groups.items())]
 
     @property
     def loads(self) -> list[float]:
@@ -147,9 +203,19 @@ class DossierContext:
         out = []
         for v in self.verdicts:
             if v.verdict in ("marginal", "does not meet"):
+                where = "" if not v.target.camber_deg else f", camber {v.camber_deg:g}°"
+                where += "" if v.target.pressure_kpa is None else f", {v.target.pressure_kpa:.0f} kPa"
                 out.append(
-                    f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN "
+                    f"{v.specimen}: {METRICS[v.target.metric].label.lower()} at {v.target.load_n / 1000:.1f} kN{where} "
                     f"{v.verdict} the target {v.target.window} {v.unit} ({v.target.reference}): {v.reason}"
+                )
+        for v in self.verdicts:
+            if v.untestable:
+                out.append(
+                    f"{v.specimen}: the target for {METRICS[v.target.metric].label.lower()} at "
+                    f"{v.target.load_n / 1000:.1f} kN, camber {v.camber_deg:g}°"
+                    f"{'' if v.pressure_kpa is None else f', {v.pressure_kpa:.0f} kPa'} ({v.target.reference}) "
+                    f"cannot be judged from this test: {v.reason}"
                 )
         for view in self.specimens:
             if view.identity:
@@ -225,6 +291,7 @@ def make_context(
     recommendation=(None, ""),
     fitments=(),
     comparison_figures=None,
+    condition_metrics=(),
 ) -> DossierContext:
     accounts = [c.account for c in conditioned]
     quality_figures = quality_figures or {}
@@ -243,6 +310,7 @@ def make_context(
                 metrics=tuple(m for m in metrics if m.specimen == s.id),
                 figures=tuple(specimen_figures.get(s.id, ())),
                 identity=specimen_identity(s, manifest),
+                condition_metrics=tuple(m for m in condition_metrics if m.specimen == s.id),
             )
         )
     return DossierContext(

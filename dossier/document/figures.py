@@ -102,8 +102,11 @@ def _measured(p: OperatingPoint, channel: str):
 
 
 def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) -> FigureArtifact:
-    """Measured and fitted curves at the nominal condition (zero camber, nominal pressure), per load."""
-    nominal = sorted((p for p in points if p.at_nominal(fit.p0_kpa)), key=lambda q: (q.load_n, q.run_index))
+    """Measured and fitted curves at the condition the fit is read at (the specimen's nominal camber
+    and pressure), per load."""
+    nominal = sorted(
+        (p for p in points if p.at_condition(fit.camber_deg, fit.pressure_kpa)), key=lambda q: (q.load_n, q.run_index)
+    )
     shown = nominal or sorted(points, key=lambda q: q.load_n)
     xlabel, ylabel = _AXIS[fit.channel]
 
@@ -126,7 +129,7 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) 
             ax.plot(grid, fit.predict(grid, load), "-", lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(title="Nominal load", fontsize="small", title_fontsize="small")
-        ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}, {fit.p0_kpa:.0f} kPa, camber 0°")
+        ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}, {fit.pressure_kpa:.0f} kPa, camber {fit.camber_deg:g}°")
 
     loads_txt = ", ".join(f"{v / 1000:.1f}" for v in sorted({p.load_n for p in shown}))
     return FigureArtifact(
@@ -397,12 +400,19 @@ def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, s
                     and p.load_n == load_n
                     and p.sweep == "slip_angle"
                     and p.rolling_direction == "forward"
-                    and p.at_nominal(p0_kpa)
+                    and p.at_condition(fit.camber_deg, fit.pressure_kpa)
                 ):
                     ax.plot(p.curve.x, _measured(p, channel), "o", ms=2.5, mfc="none", color=c, rasterized=True)
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="small")
-        ax.set_title(f"All specimens: {_WORD[channel]} at {load_n / 1000:.1f} kN, {p0_kpa:.0f} kPa, camber 0°")
+        fits = [getattr(m, channel) for m in models if getattr(m, channel) is not None]
+        conditions = {(round(f.camber_deg, 2), round(f.pressure_kpa)) for f in fits}
+        if len(conditions) == 1:
+            camber, pressure = next(iter(conditions))
+            where = f"{pressure:.0f} kPa, camber {camber:g}°"
+        else:
+            where = "each at its own nominal pressure and camber"
+        ax.set_title(f"All specimens: {_WORD[channel]} at {load_n / 1000:.1f} kN, {where}")
 
     return FigureArtifact(
         f"overlay-{channel}.svg",

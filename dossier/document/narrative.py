@@ -12,7 +12,8 @@ Functions available in the text::
     {{ value("CND-B", "cornering_stiffness") }}            → "1 537 N/deg" (at the nominal load)
     {{ value("CND-B", "cornering_stiffness", 6000) }}      → at 6 kN
     {{ interval("CND-B", "peak_lateral_friction") }}      → "1.040 … 1.041"
-    {{ verdict("CND-C", "pneumatic_trail") }}              → "does not meet"
+    {{ verdict("CND-C", "pneumatic_trail") }}              → "does not meet" (several targets on one
+                                                             metric: name load_n, camber_deg or pressure_kpa)
     {{ difference("CND-B", "cornering_stiffness") }}       → "+10.2 %" (against the baseline)
     {{ recommended }}                                      → "CND-B" (or "none")
     {{ metrics_table("CND-B") }}                           → a Markdown table of the headline metrics
@@ -185,16 +186,28 @@ def _functions(ctx) -> dict:
         m = metric_value(specimen, metric, load_n)
         return fmt_ci(m.ci95, m.unit)
 
-    def verdict(specimen, metric, load_n=None):
+    def verdict(specimen, metric, load_n=None, camber_deg=None, pressure_kpa=None):
         found = [
             v
             for v in ctx.verdicts
             if v.specimen == specimen
             and v.target.metric == metric
             and (load_n is None or math.isclose(v.target.load_n, float(load_n)))
+            and (camber_deg is None or math.isclose(v.camber_deg, float(camber_deg)))
+            and (pressure_kpa is None or (v.pressure_kpa is not None and round(v.pressure_kpa) == round(pressure_kpa)))
         ]
         if not found:
             raise _Unknown(f"no target on {metric!r} judged for {specimen!r}")
+        if len({v.target.index for v in found}) > 1:
+            where = "; ".join(
+                f"{v.target.load_n:g} N, {v.camber_deg:g}°, {v.pressure_kpa:.0f} kPa"
+                if v.pressure_kpa
+                else f"{v.target.load_n:g} N"
+                for v in found
+            )
+            raise _Unknown(
+                f"several targets on {metric!r} for {specimen!r} ({where}): name load_n, camber_deg or pressure_kpa"
+            )
         return found[0].verdict
 
     def difference(candidate, metric):

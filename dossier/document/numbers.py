@@ -8,7 +8,21 @@ from __future__ import annotations
 
 import math
 
-DECIMALS = {"N/deg": 0, "1/deg": 4, "1": 3, "deg": 2, "mm": 1, "N·m/deg": 2, "N·m": 1, "N": 0, "1/kN": 4}
+DECIMALS = {
+    "N/deg": 0,
+    "1/deg": 4,
+    "1": 3,
+    "deg": 2,
+    "mm": 1,
+    "N·m/deg": 2,
+    "N·m": 1,
+    "N": 0,
+    "1/kN": 4,
+    "N/deg per 10 kPa": 1,
+    "per 10 kPa": 4,
+    "mm per 10 kPa": 2,
+    "%/bar": 1,
+}
 
 
 def fmt_metric(value: float | None, unit: str) -> str:
@@ -34,6 +48,14 @@ def fmt_sig(value: float | None, digits: int = 4) -> str:
 
 def fmt_kn(value_n: float) -> str:
     return f"{value_n / 1000:.1f}"
+
+
+def fmt_camber(value_deg: float | None) -> str:
+    """An inclination as the tables print it: "0°", "−1.5°", "+3°" (a typographic minus)."""
+    if value_deg is None or not math.isfinite(value_deg):
+        return "–"
+    v = round(value_deg, 2)
+    return ("0" if v == 0 else f"{v:+g}".replace("-", "−")) + "°"
 
 
 def fmt_fixed(value: float | None, decimals: int = 1, signed: bool = False) -> str:

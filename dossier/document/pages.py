@@ -20,7 +20,7 @@ from ..project.catalogue import METRICS
 from ..project.manifest import LAB_DEFAULTS
 from .cautions import CAUTIONS_ID
 from .context import DossierContext
-from .numbers import fmt_ci, fmt_fixed, fmt_kn, fmt_metric, fmt_sig
+from .numbers import fmt_camber, fmt_ci, fmt_fixed, fmt_kn, fmt_metric, fmt_sig
 from .theme import Theme
 from .volumes import ANNEXES, VOLUMES
 
@@ -53,7 +53,13 @@ def make_environment(
         lstrip_blocks=True,
     )
     env.filters.update(
-        metric=fmt_metric, ci=fmt_ci, sig=fmt_sig, kn=fmt_kn, fixed=fmt_fixed, metric_label=_metric_label
+        metric=fmt_metric,
+        ci=fmt_ci,
+        sig=fmt_sig,
+        kn=fmt_kn,
+        fixed=fmt_fixed,
+        camber=fmt_camber,
+        metric_label=_metric_label,
     )
     env.globals.update(
         options=theme.options,

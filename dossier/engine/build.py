@@ -51,7 +51,7 @@ from ..publish.writer import json_bytes, refuse_foreign, write_dossier
 from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
 from .figure_jobs import figure_tasks, place_figures, run_figure_tasks
 from .freshness import build_key, output_is_current
-from .specimens import fit_specimens
+from .specimens import fit_specimens, split_nominal
 from .workers import WorkerPool
 
 
@@ -152,7 +152,8 @@ class Evaluation:
     drifts: tuple[DriftEstimate, ...]  # every rig's line
     offset_splits: tuple
     models: tuple
-    metrics: tuple
+    metrics: tuple  # at each specimen's nominal camber and pressure
+    condition_metrics: tuple  # at every other camber × pressure tested, and the targets' conditions
     judged: tuple
     standings: tuple
     recommendation: tuple
@@ -181,12 +182,16 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     drift: DriftEstimate | None = drifts[0] if drifts else None  # the pages show the first rig's line
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
-    models, metrics = fit_specimens(points, manifest, fz0_n, cache=cache, pool=pool)  # each at its own p0
+    models, every = fit_specimens(points, manifest, fz0_n, cache=cache, pool=pool)  # each at its own condition
     corrected = bool(manifest.drift and manifest.drift.correct)
-    metrics = attach_budgets(
-        metrics, points, BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
+    every = attach_budgets(
+        every, points, BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
     )
-    judged = judge_targets(manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], metrics, p0_kpa)
+    metrics, condition_metrics = split_nominal(models, every)
+    own_pressure = {m.specimen: m.channels[0].pressure_kpa for m in models}
+    judged = judge_targets(
+        manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], every, own_pressure
+    )
     standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
     fitments = fitment_matrix(manifest, models)
 
@@ -200,6 +205,7 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
         tuple(offset_splits),
         tuple(models),
         tuple(metrics),
+        tuple(condition_metrics),
         tuple(judged),
         tuple(standings),
         recommendation,
@@ -245,11 +251,22 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         recommendation=recommendation,
         fitments=fitments,
         comparison_figures=comparison_figures,
+        condition_metrics=e.condition_metrics,
     )  # without the narrative: what the annexes show
     ctx = with_narrative(facts, narrative_texts(manifest.narrative, project.files))
     all_fits = [f for m in models for f in m.channels]
     results = results_record(
-        manifest, conditioned, all_fits, metrics, drift, offset_splits, judged, standings, recommendation, fitments
+        manifest,
+        conditioned,
+        all_fits,
+        metrics,
+        drift,
+        offset_splits,
+        judged,
+        standings,
+        recommendation,
+        fitments,
+        list(e.condition_metrics),
     )
     evidence = Evidence(
         tuple(conditioned),
@@ -263,6 +280,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         recommendation,
         tuple(fitments),
         {name: sha256(data) for name, data in project.files.items()},
+        tuple(e.condition_metrics),
     )
     provenance = provenance_bytes(provenance_record(manifest, evidence))
     data_files = {

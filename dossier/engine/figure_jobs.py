@@ -14,7 +14,7 @@ def figure_tasks(models, points, conditioned, metrics, drift, standings, fitment
         for fit in m.channels:
             own = points_of(fit, points)
             tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
-            other = [p for p in own if not p.at_nominal(fit.p0_kpa)]
+            other = [p for p in own if not p.at_condition(fit.camber_deg, fit.pressure_kpa)]
             if other:
                 tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
             tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))

@@ -5,16 +5,22 @@ Verdicts (one per specimen and target):
 * **meets**: the whole 95 % interval lies inside the window (a limit touched counts as inside);
 * **marginal**: the interval straddles a limit, or there is no interval to judge by;
 * **does not meet**: the whole interval lies outside the window;
-* **not measured**: the specimen has no data for the metric, or the target's load lies outside
-  the measured load range, or its camber/pressure is not the nominal one the metrics are made at.
+* **not measured**: the specimen has no data for the metric, or the target's load, camber or
+  pressure lies outside the ranges the specimen was tested over (then also a finding: a target
+  the test cannot speak to).
+
+A target is judged at its own load, camber and pressure (no pressure named: the specimen's
+nominal one); between tested conditions the fitted model gives the value, and the value says so.
 
 Never a bare "meets" where the interval says otherwise.
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 
+from ..conditioning.steady_state import same_condition
 from ..metrics.evaluate import MetricValue
 from ..project.manifest import Target
 
@@ -30,19 +36,24 @@ class Verdict:
     ci95: tuple[float, float] | None
     unit: str
     reason: str
+    camber_deg: float = 0.0  # the condition it was judged at
+    pressure_kpa: float | None = None
+
+    @property
+    def untestable(self) -> bool:
+        """The target asks for a condition outside what the specimen was tested over."""
+        return self.verdict == NOT_MEASURED and self.reason.startswith(OUTSIDE)
 
 
-def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None) -> tuple[str, str]:
+OUTSIDE = "the target's condition lies outside the tested range"
+
+
+def judge(target: Target, value: MetricValue | None) -> tuple[str, str]:
     """Return (verdict, reason) of one metric value against one target window."""
-    if target.camber_deg != 0.0:
-        return NOT_MEASURED, "metrics are evaluated at zero camber; this target asks for another inclination"
-    at_kpa = value.pressure_kpa if value is not None else p0_kpa  # the specimen's own nominal pressure
-    if target.pressure_kpa is not None and at_kpa is not None and round(target.pressure_kpa) != round(at_kpa):
-        return NOT_MEASURED, f"this specimen's metrics are evaluated at its nominal pressure {at_kpa:.0f} kPa"
     if value is None:
         return NOT_MEASURED, "no data for this metric"
     if value.extrapolated:
-        return NOT_MEASURED, "the target's load lies outside the measured load range"
+        return NOT_MEASURED, f"{OUTSIDE} ({value.note})"
     lo = -float("inf") if target.minimum is None else target.minimum
     hi = float("inf") if target.maximum is None else target.maximum
     if value.ci95 is None:
@@ -61,17 +72,29 @@ def judge(target: Target, value: MetricValue | None, p0_kpa: float | None = None
 
 
 def verdicts(
-    targets: tuple[Target, ...], specimens: list[str], metrics: list[MetricValue], p0_kpa: float | None
+    targets: tuple[Target, ...],
+    specimens: list[str],
+    metrics: list[MetricValue],
+    nominal_pressure_kpa: Mapping[str, float],
 ) -> list[Verdict]:
-    """Judge every target for every specimen it applies to."""
+    """Judge every target for every specimen it applies to, at the target's condition (`metrics`: the
+    values at every condition; `nominal_pressure_kpa`: each specimen's, for targets that name none)."""
     out = []
     for t in targets:
         for sid in t.specimens or specimens:
+            pressure = t.pressure_kpa if t.pressure_kpa is not None else nominal_pressure_kpa.get(sid)
             v = next(
-                (m for m in metrics if m.specimen == sid and m.metric == t.metric and abs(m.load_n - t.load_n) < 1e-6),
+                (
+                    m
+                    for m in metrics
+                    if m.specimen == sid
+                    and m.metric == t.metric
+                    and abs(m.load_n - t.load_n) < 1e-6
+                    and (pressure is None or same_condition((m.camber_deg, m.pressure_kpa), (t.camber_deg, pressure)))
+                ),
                 None,
             )
-            verdict, reason = judge(t, v, p0_kpa)
+            verdict, reason = judge(t, v)
             out.append(
                 Verdict(
                     t,
@@ -81,6 +104,8 @@ def verdicts(
                     None if v is None else v.ci95,
                     "" if v is None else v.unit,
                     reason,
+                    t.camber_deg,
+                    pressure,
                 )
             )
     return out

@@ -42,7 +42,7 @@ import numpy as np
 from ..conditioning import estimates
 from ..conditioning.drift import DriftEstimate, Station
 from ..conditioning.steady_state import OperatingPoint, SlipCurve
-from ..project.catalogue import METRICS
+from ..project.catalogue import METRICS, PRESSURE_SENSITIVE, PRESSURE_SUFFIXES
 from ..project.manifest import LabSettings
 from ..standards.coverage import Budget, Component, combine, effective_dof
 from .evaluate import MetricValue
@@ -79,6 +79,9 @@ SCALING: dict[str, tuple[float, float, float, bool]] = {
     "friction_load_sensitivity": (1, 0, -2, False),
     "load_at_max_cornering_stiffness": (0, 0, 1, False),
 }
+# A slope against pressure scales as the metric itself; in % of the value no scale enters.
+SCALING |= {f"{name}_per_10kpa": SCALING[name] for name in PRESSURE_SENSITIVE}
+SCALING |= {f"{name}_pct_per_bar": (0, 0, 0, False) for name in PRESSURE_SENSITIVE}
 
 
 def _per_load(fn: Callable[[SlipCurve], float | None]) -> Callable[[SlipCurve], float | None]:
@@ -137,20 +140,84 @@ def metric_budget(
     fit_dof: float | None,
     points: Sequence[OperatingPoint],
     inputs: BudgetInputs,
+    slope: PressureSlope | None = None,
 ) -> Budget:
     """The budget of one metric value from the `points` behind it (the specimen's forward runs at the
-    value's condition; the nearest measured condition where it was not measured)."""
+    value's condition; the nearest measured condition where it was not measured; for a slope against
+    pressure, `slope` says what the slope was taken over and the points are those at every pressure)."""
     f_exp, m_exp, l_exp, is_angle = SCALING[metric]
     level_exp = f_exp + m_exp  # drift and repeatability scale forces and moments together
     parts = [Component("fit", "A", fit_u, fit_dof, "delta method over the fit covariance; ν: the fit's residuals")]
     parts += _direction_and_model(metric, value, load_n, points)
     runs = sorted({p.run_index for p in points})
     stations = sorted({inputs.stations.get(r, ("", "")) for r in runs})
-    if level_exp and runs:
+    if slope is not None and runs:
+        parts.append(_between_pressures(metric, slope, points, inputs))
+    elif level_exp and runs:
         parts += _drift(value, level_exp, points, inputs)
         parts.append(_repeatability(value, level_exp, points, inputs))
     parts.append(_calibration(value, load_n, (f_exp, m_exp, l_exp, is_angle), stations, inputs))
     return combine(sorted((p for p in parts if p is not None), key=lambda c: ORDER.index(c.name)))
+
+
+@dataclass(frozen=True)
+class PressureSlope:
+    """What a slope against pressure was taken over: the metric's value at the pressure given and
+    the pressures tested at that camber and load."""
+
+    base_value: float
+    pressures_kpa: tuple[float, ...]  # one per run behind the slope
+
+
+def _between_pressures(metric: str, slope: PressureSlope, points: Sequence[OperatingPoint], inputs) -> Component:
+    """Run-to-run scatter of the force level between the runs at different pressures, carried into
+    the slope: independent relative level errors r per run give u(slope of the relative level) =
+    r/√Sxx, Sxx = Σ(p − p̄)² over the runs (the least-squares slope, common practice of regression).
+    The drift line's scatter is part of r where a control was repeated; calibration scale errors
+    are common to all pressures and leave a relative slope unchanged."""
+    scatter = _repeatability(1.0, 1.0, points, inputs)
+    n_runs = len({p.run_index for p in points})
+    r = (scatter.relative or 0.0) * math.sqrt(n_runs)  # per run (the part is stated over √runs)
+    p = np.asarray(slope.pressures_kpa, dtype=float)
+    sxx = float(np.sum((p - p.mean()) ** 2))
+    u_rel_per_kpa = r / math.sqrt(sxx) if sxx > 0 else 0.0
+    if metric.endswith("_pct_per_bar"):
+        u = 100.0 * 100.0 * u_rel_per_kpa
+    else:
+        u = 10.0 * u_rel_per_kpa * abs(slope.base_value)
+    pressures = ", ".join(f"{v:.0f}" for v in sorted({round(x) for x in p}))
+    return Component(
+        "repeatability",
+        scatter.kind,
+        u,
+        scatter.dof,
+        f"level scatter between runs ({100 * r:.2f} % per run: {scatter.basis.split(' (')[0]}) over the "
+        f"{len(p)} runs at {pressures} kPa",
+    )
+
+
+def pressure_slope_of(v: MetricValue, values_here: dict, points: Sequence[OperatingPoint]):
+    """The base value and pressures tested behind a slope against pressure `v` (None for any other
+    metric): the runs of `v`'s specimen at its camber, at the tested load nearest `v`'s."""
+    if not v.metric.endswith(PRESSURE_SUFFIXES):
+        return None, []
+    base = next(n for n in PRESSURE_SENSITIVE if v.metric.startswith(n + "_"))
+    base_value = values_here.get((v.specimen, base, v.load_n, round(v.camber_deg, 2), round(v.pressure_kpa)))
+    sweep = "slip_angle"
+    here = [
+        p
+        for p in points
+        if p.specimen == v.specimen
+        and p.sweep == sweep
+        and p.rolling_direction == "forward"
+        and round(p.camber_deg, 2) == round(v.camber_deg, 2)
+    ]
+    if base_value is None or not here:
+        return None, []
+    nearest = min({p.load_n for p in here}, key=lambda load: (abs(load - v.load_n), load))
+    pts = [p for p in here if p.load_n == nearest]
+    per_run = {p.run_index: p.pressure_kpa for p in pts}
+    return PressureSlope(base_value, tuple(per_run[r] for r in sorted(per_run))), pts
 
 
 def _direction_and_model(metric: str, value: float, load_n: float, points: Sequence[OperatingPoint]) -> list[Component]:
@@ -292,11 +359,14 @@ def attach_budgets(
 ) -> list[MetricValue]:
     """Every value with its budget: the interval, standard uncertainty and ν become the budget's."""
     out = []
+    here = {(v.specimen, v.metric, v.load_n, round(v.camber_deg, 2), round(v.pressure_kpa)): v.value for v in values}
     for v in values:
         if v.stderr is None:  # a bound (peak not reached): no interval to widen
             out.append(v)
             continue
-        b = metric_budget(v.metric, v.value, v.load_n, v.stderr, v.dof, behind(v, points), inputs)
+        slope, across = pressure_slope_of(v, here, points)
+        behind_v = across if slope is not None else behind(v, points)
+        b = metric_budget(v.metric, v.value, v.load_n, v.stderr, v.dof, behind_v, inputs, slope)
         out.append(
             replace(
                 v,

@@ -8,8 +8,9 @@ metric is one entry here.
 Intervals come from the fit covariance by the delta method: the metric's gradient with
 respect to the fitted coefficients, ``var = gᵀ Σ g``, summed over the channels it uses (the
 channels are treated as independent: Mz0 is fitted given Fy0), times the Student-t quantile
-of the fit. Metrics are evaluated at zero camber and the nominal pressure p0, at any load:
-loads outside the fitted range are labelled extrapolation.
+of the fit. Metrics are evaluated at the condition the model is read at (`SpecimenModel.at`: the
+specimen's nominal camber and pressure, or any other tested one), at any load: a load, camber or
+pressure outside the fitted ranges is labelled extrapolation.
 """
 
 from __future__ import annotations
@@ -22,7 +23,13 @@ import numpy as np
 from ..conditioning import estimates
 from ..conditioning.steady_state import OperatingPoint
 from ..model.fit import ChannelFit, SpecimenModel
-from ..project.catalogue import LINEAR_RANGE_FRACTION, METRICS, MetricDefinition
+from ..project.catalogue import (
+    LINEAR_RANGE_FRACTION,
+    METRICS,
+    MIN_PRESSURE_SPAN_KPA,
+    PRESSURE_SENSITIVE,
+    MetricDefinition,
+)
 from ..standards.coverage import Budget, interval
 
 SLIP_STEP_DEG = 1e-3  # central-difference step for slopes at zero slip
@@ -257,8 +264,10 @@ def residual_aligning_moment(m, load, v):
 def camber_stiffness(m, load, v):
     if not any(c.status == "fitted" and c.name in ("pVy3", "pVy4", "pHy3", "pKy3") for c in m.fy.coefficients):
         return None  # no cambered data: camber dependence held at its default
-    h = 1e-3
-    return float((m.fy.predict(0.0, load, h, values=v["fy"]) - m.fy.predict(0.0, load, -h, values=v["fy"])) / (2 * h))
+    h, at = 1e-3, m.fy.camber_deg
+    return float(
+        (m.fy.predict(0.0, load, at + h, values=v["fy"]) - m.fy.predict(0.0, load, at - h, values=v["fy"])) / (2 * h)
+    )
 
 
 def slip_stiffness(m, load, v):
@@ -270,6 +279,8 @@ def _peak_mu_at(m, load, v):
 
 
 def friction_load_sensitivity(m, load, v):
+    if not any(c.status == "fitted" and c.name == "pDy2" for c in m.fy.coefficients):
+        return None  # one load only: the load dependence of friction is held at its default
     fz0 = m.fy.fz0_n
     h = 0.05 * fz0
     return float((_peak_mu_at(m, fz0 + h, v) - _peak_mu_at(m, fz0 - h, v)) / (2 * h / 1000.0))
@@ -286,6 +297,48 @@ def load_at_max_cornering_stiffness(m, load, v):
     if i == 0 or i == grid.size - 1:
         return float(grid[i])  # the stiffness still rises at the end of the searched range
     return _refine_max(stiffness, grid[i - 1], grid[i + 1])[0]
+
+
+# Which fitted coefficients carry a metric's pressure dependence (Besselink, Schmeitz & Pacejka 2010):
+# with none of them fitted the model has no pressure effect to report.
+PRESSURE_TERMS = {
+    "cornering_stiffness": ("ppy1", "ppy2"),
+    "peak_lateral_friction": ("ppy3", "ppy4"),
+    "pneumatic_trail": ("ppy1", "ppy2", "ppz1"),
+}
+
+
+def _pressure_slope(name: str, relative: bool):
+    """The change of a metric with inflation pressure over the tested pressures, at the camber and
+    load the model is read at: the model's secant between the lowest and highest pressure the
+    channels were fitted over, per 10 kPa, or in % per bar of the value at the pressure given.
+
+    A secant over the tested span, not the tangent at one pressure: with two pressures the data fix
+    only the secant (the quadratic terms are held at zero), and with more it is still what they
+    speak for.
+    """
+
+    def slope(m: SpecimenModel, load, v):
+        fitted = {c.name for f in m.channels for c in f.coefficients if c.status == "fitted"}
+        if not fitted & set(PRESSURE_TERMS[name]):
+            return None  # one pressure only: the pressure terms are held at their defaults
+        fits = [_fitted(m, c) for c in METRICS[name].channels]
+        lo = max(f.pressure_range_kpa[0] for f in fits)
+        hi = min(f.pressure_range_kpa[1] for f in fits)
+        if hi - lo < MIN_PRESSURE_SPAN_KPA:
+            return None
+        at = fits[0]
+        high = COMPUTE[name](m.at(at.camber_deg, hi), load, v)
+        low = COMPUTE[name](m.at(at.camber_deg, lo), load, v)
+        if high is None or low is None:
+            return None
+        per_kpa = (high - low) / (hi - lo)
+        if not relative:
+            return 10.0 * per_kpa
+        here = COMPUTE[name](m, load, v)
+        return None if not here else 100.0 * 100.0 * per_kpa / here
+
+    return slope
 
 
 # How each metric of the catalogue (:mod:`dossier.project.catalogue`) is computed: metric name ->
@@ -319,6 +372,10 @@ COMPUTE: dict[str, Callable[[SpecimenModel, float, Values], float | None]] = {
     "friction_load_sensitivity": friction_load_sensitivity,
     "load_at_max_cornering_stiffness": load_at_max_cornering_stiffness,
 }
+COMPUTE.update(
+    {f"{name}_per_10kpa": _pressure_slope(name, relative=False) for name in PRESSURE_SENSITIVE}
+    | {f"{name}_pct_per_bar": _pressure_slope(name, relative=True) for name in PRESSURE_SENSITIVE}
+)
 if set(COMPUTE) != set(METRICS):  # the catalogue and the functions must name the same metrics
     raise ImportError(
         f"metrics without a function or functions without a metric: {sorted(set(COMPUTE) ^ set(METRICS))}"
@@ -389,7 +446,7 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
         and p.sweep == "slip_angle"
         and p.rolling_direction == "forward"
         and ref is not None
-        and p.at_nominal(ref.p0_kpa)
+        and p.at_condition(ref.camber_deg, ref.pressure_kpa)
     ]
     for d in definitions:
         if any(models.get(c) is None for c in d.channels):
@@ -398,10 +455,11 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
         if value is None:
             continue
         fits = [models.get(c) for c in d.channels]
-        lo = max(f.load_range_n[0] for f in fits)
-        hi = min(f.load_range_n[1] for f in fits)
         at = value if d.name == "load_at_max_cornering_stiffness" else load_n
-        extrapolated = not (lo * 0.98 <= at <= hi * 1.02)
+        outside = _outside(fits, at)
+        if d.group == "pressure" and not _pressures_tested(points, load_n, fits[0].camber_deg, d.channels):
+            outside.append("pressure (fewer than two pressures at this load and camber)")
+        extrapolated = bool(outside)
         sd = _delta_stderr(models, d, load_n, base)
         notes = []
         if d.name in PEAK_BOUND:
@@ -411,7 +469,7 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                 if d.name.startswith(("slip_angle", "slip_ratio")) or d.name == "post_peak_retention":
                     sd = None  # the location of a peak that was not reached has no interval
         if extrapolated:
-            notes.append("outside the measured load range: extrapolated")
+            notes.append(f"outside the measured {' and '.join(outside)} range: extrapolated")
         dof = min(f.statistics.dof for f in fits)  # see dossier.standards.coverage
         ci = None if sd is None else interval(value, sd, dof)
         cc = diff = None
@@ -435,8 +493,8 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                 d.unit,
                 models.specimen,
                 float(load_n),
-                0.0,
-                ref_fit.p0_kpa,
+                ref_fit.camber_deg,
+                ref_fit.pressure_kpa,
                 float(value),
                 sd,
                 ci,
@@ -449,6 +507,33 @@ def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValu
                 dof,
             )
         )
+    return out
+
+
+def _pressures_tested(points: Sequence[OperatingPoint], load_n: float, camber_deg: float, channels) -> bool:
+    """Whether two or more pressures at least MIN_PRESSURE_SPAN_KPA apart were tested at this load
+    and camber, in the sweeps the channels come from."""
+    sweep = "slip_ratio" if "fx" in channels else "slip_angle"
+    found = [
+        p.pressure_kpa
+        for p in points
+        if p.load_n == load_n and p.sweep == sweep and round(p.camber_deg, 2) == round(camber_deg, 2)
+    ]
+    return bool(found) and max(found) - min(found) >= MIN_PRESSURE_SPAN_KPA
+
+
+def _outside(fits: list[ChannelFit], load_n: float) -> list[str]:
+    """Which of load, camber and pressure lie outside every fit's measured range (load within 2 %,
+    camber within 0.01°, pressure within 1 kPa)."""
+    out = []
+    lo, hi = max(f.load_range_n[0] for f in fits), min(f.load_range_n[1] for f in fits)
+    if not lo * 0.98 <= load_n <= hi * 1.02:
+        out.append("load")
+    camber, pressure = fits[0].camber_deg, fits[0].pressure_kpa
+    if not all(f.camber_range_deg[0] - 0.01 <= camber <= f.camber_range_deg[1] + 0.01 for f in fits):
+        out.append("camber")
+    if not all(f.pressure_range_kpa[0] - 1.0 <= pressure <= f.pressure_range_kpa[1] + 1.0 for f in fits):
+        out.append("pressure")
     return out
 
 

@@ -153,6 +153,10 @@ class ChannelFit:
     residual_load_n: np.ndarray
     residual: np.ndarray
     load_out: tuple[LoadOut, ...] = ()
+    # The condition the fit is read at where a caller names none (its metrics are made there): the
+    # specimen's nominal camber and pressure, or another tested condition (see `at`).
+    at_camber_deg: float = 0.0
+    at_pressure_kpa: float | None = None  # None: p0
 
     @property
     def values(self) -> dict[str, float]:
@@ -160,20 +164,25 @@ class ChannelFit:
 
     @property
     def camber_deg(self) -> float:
-        return 0.0
+        return self.at_camber_deg
 
     @property
     def pressure_kpa(self) -> float:
-        return self.p0_kpa
+        return self.p0_kpa if self.at_pressure_kpa is None else self.at_pressure_kpa
 
-    def predict(self, x, load_n, camber_deg=0.0, pressure_kpa=None, values: dict | None = None):
-        """Return the model at slip `x` (deg, or slip ratio for fx), load (N), camber (deg), pressure."""
-        p = self.p0_kpa if pressure_kpa is None else pressure_kpa
+    def at(self, camber_deg: float, pressure_kpa: float) -> ChannelFit:
+        """The same fit, read at another camber and pressure by default (the coefficients are shared)."""
+        return replace(self, at_camber_deg=float(camber_deg), at_pressure_kpa=float(pressure_kpa))
+
+    def predict(self, x, load_n, camber_deg=None, pressure_kpa=None, values: dict | None = None):
+        """Return the model at slip `x` (deg, or slip ratio for fx), load (N), camber (deg), pressure
+        (kPa); camber and pressure not given: the condition the fit is read at."""
+        p = self.pressure_kpa if pressure_kpa is None else pressure_kpa
         return _model(
             self.channel,
             np.asarray(x, float),
             load_n,
-            camber_deg,
+            self.camber_deg if camber_deg is None else camber_deg,
             (np.asarray(p) - self.p0_kpa) / self.p0_kpa,
             values or self.values,
             self.fz0_n,
@@ -794,6 +803,14 @@ class SpecimenModel:
 
     def get(self, channel: str) -> ChannelFit | None:
         return getattr(self, channel)
+
+    def at(self, camber_deg: float, pressure_kpa: float) -> SpecimenModel:
+        """The same fits, read at another camber and pressure."""
+        fits = {c: None if f is None else f.at(camber_deg, pressure_kpa) for c, f in self.channels_by_name()}
+        return SpecimenModel(self.specimen, fits["fy"], fits["mz"], fits["fx"])
+
+    def channels_by_name(self) -> list[tuple[str, ChannelFit | None]]:
+        return [("fy", self.fy), ("mz", self.mz), ("fx", self.fx)]
 
     @property
     def channels(self) -> list[ChannelFit]:

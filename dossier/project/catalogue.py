@@ -30,8 +30,57 @@ class MetricDefinition:
 
     @property
     def group(self) -> str:
-        """Which headline table a metric belongs to: "cornering" or "camber_longitudinal"."""
+        """Which table a metric belongs to: "cornering", "camber_longitudinal" or "pressure"."""
+        if self.name.endswith(PRESSURE_SUFFIXES):
+            return "pressure"
         return "camber_longitudinal" if ("fx" in self.channels or self.name.startswith("camber")) else "cornering"
+
+
+MIN_PRESSURE_SPAN_KPA = 5.0  # tested pressures closer than this give no slope against pressure
+PRESSURE_SUFFIXES = ("_per_10kpa", "_pct_per_bar")
+# Metrics whose change with inflation pressure is reported: name -> (label, unit, source, channels).
+PRESSURE_SENSITIVE = {
+    "cornering_stiffness": ("Cornering stiffness", "N/deg", ("fy",)),
+    "peak_lateral_friction": ("Peak lateral friction", "1", ("fy",)),
+    "pneumatic_trail": ("Pneumatic trail", "mm", ("fy", "mz")),
+}
+
+
+def _pressure_metrics() -> list[MetricDefinition]:
+    """Each pressure-sensitive metric's slope against pressure, per 10 kPa and in % per bar."""
+    out = []
+    for name, (label, unit, channels) in PRESSURE_SENSITIVE.items():
+        computed = (
+            f"The model's {label.lower()} at the highest tested pressure minus that at the lowest, over the "
+            "pressure difference (a secant over the tested span, at the camber and load given); needs two or "
+            f"more pressures at least {MIN_PRESSURE_SPAN_KPA:g} kPa apart (the Magic Formula's pressure terms, "
+            "BSP2010)."
+        )
+        per10 = f"{unit} per 10 kPa" if unit != "1" else "per 10 kPa"
+        out.append(
+            MetricDefinition(
+                f"{name}_per_10kpa",
+                f"{label} change per 10 kPa",
+                per10,
+                f"Change of {label.lower()} per 10 kPa of inflation pressure over the pressures tested.",
+                computed,
+                "Besselink, Schmeitz & Pacejka 2010 (pressure terms); common practice (per 10 kPa)",
+                channels,
+            )
+        )
+        out.append(
+            MetricDefinition(
+                f"{name}_pct_per_bar",
+                f"{label} change per bar",
+                "%/bar",
+                f"Change of {label.lower()} per bar (100 kPa) of inflation pressure over the pressures tested, "
+                "in % of its value at the pressure given.",
+                computed,
+                "Besselink, Schmeitz & Pacejka 2010 (pressure terms); common practice (% per bar)",
+                channels,
+            )
+        )
+    return out
 
 
 D = MetricDefinition
@@ -43,7 +92,7 @@ METRICS: dict[str, MetricDefinition] = {
             "Cornering stiffness",
             "N/deg",
             "Negative slope of lateral force against slip angle at zero slip angle.",
-            "Central difference of the fitted Fy0 at zero slip (±0.001°), zero camber, nominal pressure.",
+            "Central difference of the fitted Fy0 at zero slip (±0.001°), at the camber and pressure given.",
             "SAE J670 (cornering stiffness); Pacejka 2006 §4.3.2",
             ("fy",),
             headline=True,
@@ -278,5 +327,6 @@ METRICS: dict[str, MetricDefinition] = {
             ("fy",),
             per_load=False,
         ),
+        *_pressure_metrics(),
     )
 }

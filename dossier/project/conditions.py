@@ -52,6 +52,21 @@ def specimen_pressure_kpa(manifest: Manifest, specimen_id: str) -> float:
     return float(next(p for p in own if round(p) == best))
 
 
+def specimen_camber_deg(manifest: Manifest, specimen_id: str, tested_cambers_deg: Sequence[float]) -> float:
+    """A specimen's own nominal camber, the one its metrics are given at: its manifest key
+    ``nominal_camber_deg``, else zero when it was tested there (to 0.01°) or has no camber data, else
+    the camber most of its operating points were tested at (`tested_cambers_deg`, one per point;
+    ties: the one nearest zero, then the lower)."""
+    s = manifest.specimen(specimen_id)
+    if s.nominal_camber_deg is not None:
+        return s.nominal_camber_deg
+    rounded = [round(c, 2) for c in tested_cambers_deg]
+    if not rounded or 0.0 in rounded:
+        return 0.0
+    best = max(sorted(set(rounded), key=lambda c: (abs(c), c)), key=rounded.count)
+    return float(best)
+
+
 def rated_load_n(specimen) -> float | None:
     """The rated load per tire: the manifest's value, else from the load index of the size."""
     if specimen.rated_load_n:

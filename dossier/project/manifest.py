@@ -61,6 +61,7 @@ class Specimen:
     unloaded_radius_m: float | None = None
     tin: str | None = None
     nominal_pressure_kpa: float | None = None  # None: the specimen's most-tested pressure
+    nominal_camber_deg: float | None = None  # None: zero where tested there, else its most-tested camber
 
 
 @dataclass(frozen=True)
@@ -270,6 +271,7 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
             s["unloaded_radius_m"],
             s["tin"],
             s["nominal_pressure_kpa"],
+            s["nominal_camber_deg"],
         )
         for s in data["specimens"]
     )

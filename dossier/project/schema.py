@@ -146,6 +146,12 @@ MANIFEST_SCHEMA = Table(
                             required=False,
                             help="the pressure its headline metrics are given at; default: its most-tested pressure",
                         ),
+                        "nominal_camber_deg": Key(
+                            Number(minimum=-15, maximum=15),
+                            required=False,
+                            help="the camber its headline metrics are given at; default: zero where tested "
+                            "there, else its most-tested camber",
+                        ),
                     }
                 ),
                 min_items=1,

@@ -344,7 +344,14 @@ def diff(old: Path, new: Path) -> list[Change]:
                     f"{c['value']:.6g} ({c['status']})"
                 )
         for m in results.get("metrics", []):
-            out[("metric", f"{m['specimen']} {m['metric']} at {m['load_n']:.0f} N")] = f"{m['value']:.6g} {m['unit']}"
+            where = (
+                ""
+                if m.get("nominal_condition", True)
+                else f", camber {m['camber_deg']:g}°, {m['pressure_kpa']:.0f} kPa"
+            )
+            out[("metric", f"{m['specimen']} {m['metric']} at {m['load_n']:.0f} N{where}")] = (
+                f"{m['value']:.6g} {m['unit']}"
+            )
         for v in results.get("verdicts", []):
             out[("verdict", f"{v['specimen']} {v['metric']} (target {v['target']})")] = v["verdict"]
         return out

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field
 
 from .. import __version__
 from ..conditioning.drift import DriftEstimate
-from ..conditioning.steady_state import ConditionedRun, OperatingPoint
+from ..conditioning.steady_state import ConditionedRun, OperatingPoint, same_condition
 from ..metrics.evaluate import MetricValue
 from ..project.catalogue import METRICS
 from ..project.manifest import MANIFEST_NAME, Manifest
@@ -47,8 +47,30 @@ def fit_id(specimen: str, channel: str) -> str:
     return pid("fit", specimen, channel)
 
 
-def metric_id(specimen: str, metric: str, load_n: float | None = None) -> str:
-    return pid("metric", specimen, metric) if load_n is None else pid("metric", specimen, metric, f"{load_n:.0f}N")
+def metric_id(
+    specimen: str, metric: str, load_n: float | None = None, condition: tuple[float, float] | None = None
+) -> str:
+    """A metric value's identifier; `condition` (camber deg, pressure kPa) for a value away from the
+    specimen's nominal condition."""
+    if load_n is None:
+        return pid("metric", specimen, metric)
+    if condition is None:
+        return pid("metric", specimen, metric, f"{load_n:.0f}N")
+    camber, pressure = round(condition[0], 2), condition[1]
+    sign = "minus" if camber < 0 else "plus" if camber > 0 else ""  # a "-" would not survive in a name
+    return pid("metric", specimen, metric, f"{load_n:.0f}N", f"camber_{sign}{abs(camber):g}deg", f"{pressure:.0f}kPa")
+
+
+def _judged_value_id(v, evidence: Evidence) -> str:
+    """The identifier of the metric value a verdict was judged by: at the verdict's condition."""
+    here = (v.camber_deg, v.pressure_kpa if v.pressure_kpa is not None else float("nan"))
+    for values, nominal in ((evidence.metrics, True), (evidence.condition_metrics, False)):
+        for m in values:
+            if (m.specimen, m.metric, m.load_n) == (v.specimen, v.target.metric, v.target.load_n) and same_condition(
+                (m.camber_deg, m.pressure_kpa), here
+            ):
+                return metric_id(m.specimen, m.metric, m.load_n, None if nominal else (m.camber_deg, m.pressure_kpa))
+    return ""  # nothing measured there: the verdict rests on the target alone
 
 
 def input_id(relative_path: str) -> str:
@@ -75,6 +97,7 @@ class Evidence:
     recommendation: tuple = (None, "")
     fitments: tuple = ()
     input_sha256: dict = field(default_factory=dict)  # relative path -> SHA-256 of the project's files
+    condition_metrics: tuple[MetricValue, ...] = ()  # at the other conditions tested
 
 
 class _Record:
@@ -297,11 +320,12 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
             software,
             used=[fit_id(m.specimen, ch) for ch in channels if getattr(m, ch) is not None],
         )
-    for v in evidence.metrics:
+    for v, nominal in [(v, True) for v in evidence.metrics] + [(v, False) for v in evidence.condition_metrics]:
+        where = "" if nominal else f", camber {v.camber_deg:g}°, {v.pressure_kpa:.0f} kPa"
         r.entity(
-            metric_id(v.specimen, v.metric, v.load_n),
+            metric_id(v.specimen, v.metric, v.load_n, None if nominal else (v.camber_deg, v.pressure_kpa)),
             {
-                "prov:label": f"{METRICS[v.metric].label} of {v.specimen} at {v.load_n:.0f} N",
+                "prov:label": f"{METRICS[v.metric].label} of {v.specimen} at {v.load_n:.0f} N{where}",
                 "prov:value": float(v.value),
                 "d:unit": v.unit,
             },
@@ -330,7 +354,7 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
                     },
                     derived_from=(man,),
                 )
-            metric = metric_id(v.specimen, v.target.metric, v.target.load_n)
+            metric = _judged_value_id(v, evidence)
             sources = [target] + ([metric] if metric in doc["entity"] else [])
             outcome.append(
                 r.entity(

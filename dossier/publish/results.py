@@ -202,8 +202,10 @@ def results_record(
     standings=(),
     recommendation=(None, ""),
     fitments=(),
+    condition_metrics: Sequence[MetricValue] = (),
 ) -> dict:
-    """Return the ``results.json`` content as plain data."""
+    """Return the ``results.json`` content as plain data (`metrics`: at each specimen's nominal
+    condition; `condition_metrics`: at the other conditions tested)."""
     d = manifest.document
     return {
         "schema_version": RESULTS_SCHEMA_VERSION,
@@ -287,8 +289,10 @@ def results_record(
                 "crosscheck": _num(v.crosscheck),
                 "crosscheck_diff_pct": _num(v.crosscheck_diff_pct),
                 "finding": v.finding,
+                "nominal_condition": nominal,
             }
-            for v in metrics
+            for vs, nominal in ((metrics, True), (condition_metrics, False))
+            for v in vs
         ],
         "fits": [_fit_record(f) for f in fits],
         "targets": [
@@ -313,6 +317,8 @@ def results_record(
                 "value": _num(v.value),
                 "ci95": None if v.ci95 is None else [_num(v.ci95[0]), _num(v.ci95[1])],
                 "reason": v.reason,
+                "camber_deg": _num(v.camber_deg),
+                "pressure_kpa": _num(v.pressure_kpa),
             }
             for v in verdicts
         ],
