@@ -25,6 +25,7 @@ from ..project.manifest import Manifest, RunSpec, Specimen
 from ..standards import axes
 from .artifacts import FigureArtifact
 from .cautions import CAUTIONS, CAUTIONS_ID
+from .numbers import fmt_camber
 
 
 @dataclass(frozen=True)
@@ -163,6 +164,7 @@ class DossierContext:
     recommendation: tuple = (None, "")
     fitments: tuple = ()
     comparison_figures: dict = field(default_factory=dict)
+    drifts: tuple[DriftEstimate, ...] = ()  # every rig's control line (`drift` is the first)
     vehicle_simplifications: tuple[str, ...] = SIMPLIFICATIONS
     narrative: dict = field(default_factory=dict)  # part -> rendered HTML (Markup)
     downloads_page: str = "downloads.html"
@@ -198,6 +200,15 @@ class DossierContext:
         return list(dict.fromkeys(b.front for b in self.fitments))
 
     @property
+    def nominal_condition(self) -> str:
+        """Where the headline values are, in words: one camber and pressure, or each specimen's own."""
+        conditions = {(round(v.camber_deg, 2), round(v.pressure_kpa)) for v in self.specimens if v.metrics}
+        if len(conditions) == 1:
+            camber, pressure = next(iter(conditions))
+            return f"camber {fmt_camber(camber)} and {pressure:.0f} kPa"
+        return "each specimen's own nominal camber and pressure (given on its page)"
+
+    @property
     def open_findings(self) -> list[str]:
         """Everything a reviewer should see before signing, gathered from every stage."""
         out = []
@@ -230,12 +241,14 @@ class DossierContext:
         for r in self.runs:
             if r.account.verdict != "sound":
                 out.append(f"run {r.account.run_index} ({r.account.source_file}): {r.account.verdict}")
-        if self.drift:
-            mu = next((m for m in self.drift.metrics if m.metric == "peak_friction"), None)
+        for line in self.drifts:
+            mu = next((m for m in line.metrics if m.metric == "peak_friction"), None)
             if mu and abs(mu.over_session_pct) > 1.0:
+                lab, rig = line.station
+                where = f" ({lab or 'the lab'}{', rig ' + rig if rig else ''})" if len(self.drifts) > 1 else ""
                 out.append(
-                    f"the rig's force level drifted {mu.over_session_pct:+.1f} % over the session "
-                    f"({'corrected' if self.drift.corrected else 'not corrected'})"
+                    f"the rig's force level{where} drifted {mu.over_session_pct:+.1f} % over the session "
+                    f"({'corrected' if line.corrected else 'not corrected'})"
                 )
         return out
 
@@ -292,6 +305,7 @@ def make_context(
     fitments=(),
     comparison_figures=None,
     condition_metrics=(),
+    drifts=(),
 ) -> DossierContext:
     accounts = [c.account for c in conditioned]
     quality_figures = quality_figures or {}
@@ -332,4 +346,5 @@ def make_context(
         recommendation=recommendation,
         fitments=tuple(fitments),
         comparison_figures=dict(comparison_figures or {}),
+        drifts=tuple(drifts) or ((drift,) if drift else ()),
     )

@@ -337,7 +337,7 @@ def hysteresis_figure(p: OperatingPoint, style: bytes) -> FigureArtifact:
     )
 
 
-def drift_figure(d: DriftEstimate, style: bytes) -> FigureArtifact:
+def drift_figure(d: DriftEstimate, style: bytes, index: int = 0) -> FigureArtifact:
     """The control tire's model-free metrics against session time, as % of the first repeat."""
 
     def draw(fig):
@@ -369,9 +369,11 @@ def drift_figure(d: DriftEstimate, style: bytes) -> FigureArtifact:
         ax.legend(fontsize="small")
         ax.set_title(f"Control tire {d.control} at {d.load_n / 1000:.1f} kN through the session")
 
+    lab, rig = d.station
+    where = f" at {lab or 'the lab'}{', rig ' + rig if rig else ''}" if (lab or rig) else ""
     return FigureArtifact(
-        "drift-control.svg",
-        f"Drift of the control tire {d.control}",
+        "drift-control.svg" if index == 0 else f"drift-control-{index + 1}.svg",
+        f"Drift of the control tire {d.control}{where}",
         "Model-free metrics of each control repeat (points) and the straight line in time used as the drift; "
         "dotted lines mark when the other runs were tested.",
         f"Chart of the control tire's cornering stiffness and peak friction change against session time, "

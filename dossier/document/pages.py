@@ -16,7 +16,7 @@ from ..conditioning import estimates
 from ..metrics.budget import LABELS as BUDGET_LABELS
 from ..metrics.budget import ORDER as BUDGET_ORDER
 from ..model.fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME
-from ..project.catalogue import METRICS
+from ..project.catalogue import METRICS, MIN_PRESSURE_SPAN_KPA
 from ..project.manifest import LAB_DEFAULTS
 from .cautions import CAUTIONS_ID
 from .context import DossierContext
@@ -75,6 +75,7 @@ def make_environment(
             "local_half_range_deg": estimates.LOCAL_HALF_RANGE_DEG,
             "local_half_range_ratio": estimates.LOCAL_HALF_RANGE_RATIO,
             "lab_defaults": LAB_DEFAULTS,
+            "min_pressure_span_kpa": MIN_PRESSURE_SPAN_KPA,
         },
         budget_labels=BUDGET_LABELS,
     )

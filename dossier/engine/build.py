@@ -148,7 +148,7 @@ class Evaluation:
     points: tuple  # operating points after drift correction
     fz0_n: float
     p0_kpa: float
-    drift: DriftEstimate | None  # the first rig's line (the pages show it)
+    drift: DriftEstimate | None  # the first rig's line (results.json and the comparison page quote it)
     drifts: tuple[DriftEstimate, ...]  # every rig's line
     offset_splits: tuple
     models: tuple
@@ -179,7 +179,9 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
             points, line = correct_points(points, line, stations)
             applied.append(line)
         drifts = tuple(applied)
-    drift: DriftEstimate | None = drifts[0] if drifts else None  # the pages show the first rig's line
+    drift: DriftEstimate | None = (
+        drifts[0] if drifts else None
+    )  # results.json and the comparison page quote the first line; the data-quality page shows every one
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
     models, every = fit_specimens(points, manifest, fz0_n, cache=cache, pool=pool)  # each at its own condition
@@ -225,7 +227,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
 
     style = theme.figure_style
     tasks = figure_tasks(
-        models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa, style
+        models, points, conditioned, metrics, e.drifts, standings, fitments, manifest, fz0_n, p0_kpa, style
     )
     rendered = cache.get_or_compute(
         digest("figures", [(place, name, args[:-1]) for place, name, args in tasks], style),
@@ -252,6 +254,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         fitments=fitments,
         comparison_figures=comparison_figures,
         condition_metrics=e.condition_metrics,
+        drifts=e.drifts,
     )  # without the narrative: what the annexes show
     ctx = with_narrative(facts, narrative_texts(manifest.narrative, project.files))
     all_fits = [f for m in models for f in m.channels]

@@ -7,7 +7,7 @@ from .specimens import points_of
 from .workers import WorkerPool
 
 
-def figure_tasks(models, points, conditioned, metrics, drift, standings, fitments, manifest, fz0_n, p0_kpa, style):
+def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitments, manifest, fz0_n, p0_kpa, style):
     """Every figure of the dossier as (place, function name, arguments): independent jobs."""
     tasks = []
     for m in models:
@@ -33,8 +33,8 @@ def figure_tasks(models, points, conditioned, metrics, drift, standings, fitment
         if lateral:
             nearest = min(lateral, key=lambda p: (abs(p.load_n - fz0_n), p.camber_deg != 0.0))
             tasks.append((("quality", c.account.run_index), "hysteresis_figure", (nearest, style)))
-    if drift:
-        tasks.append((("drift",), "drift_figure", (drift, style)))
+    for i, line in enumerate(drifts):  # one chart per rig that had a control line
+        tasks.append((("drift",), "drift_figure", (line, style, i)))
     if models:
         tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "fy", fz0_n, p0_kpa, style)))
         if any(m.mz for m in models):
