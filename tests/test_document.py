@@ -228,3 +228,19 @@ def test_the_longest_id_allowed_lays_out_in_every_pdf(tmp_path):
     build(root, tmp_path / "o", use_cache=False, workers=1)
     for pdf in sorted((tmp_path / "o").glob("*.pdf")):
         assert long_id[:40] in "".join(page.extract_text() for page in PdfReader(pdf).pages), pdf.name
+
+
+def test_no_comparison_chart_without_a_candidate(small):
+    # One specimen, nothing to compare: no empty difference chart is drawn or shown.
+    root, out = small
+    assert not (out / "site/figures/differences.svg").exists()
+    assert "differences.svg" not in (out / "site/comparison.html").read_text(encoding="utf-8")
+
+
+def test_no_two_curves_of_one_figure_look_alike():
+    # Up to 24 curves in one figure (loads, conditions, specimens) keep distinct colour-and-dash pairs.
+    from dossier.document.figures import _distinct
+
+    colors = ["1f4a57", "c0692a", "5b8c3a", "8a4f9e", "9c3b22", "3f7fa6"]  # the default theme's cycle
+    looks = [_distinct(i, colors)[:2] for i in range(24)]
+    assert len(set(looks)) == 24

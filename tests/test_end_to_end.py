@@ -1,6 +1,7 @@
 """Build the demo project once and look at everything it wrote, as a reviewer would."""
 
 import json
+import re
 import shutil
 from pathlib import Path
 
@@ -31,7 +32,9 @@ def test_site_pages_work_from_disk(demo_out):
         assert f'href="specimen-{sid.lower()}.html"' in index
     assert "http://" not in index and "https://" not in index  # nothing fetched from the network
     for img in (
-        "figures/cornering-coefficient-load.svg",
+        "figures/peak-lateral-friction-load.svg",
+        "figures/stiffness-load.svg",
+        "figures/stiffness-load-cnd-b.svg",
         "figures/fy-prd-a.svg",
         "figures/mz-prd-a.svg",
         "figures/fy-residuals-prd-a.svg",
@@ -39,6 +42,11 @@ def test_site_pages_work_from_disk(demo_out):
     ):
         assert (site / img).is_file()
     assert 'alt="' in index and '<th scope="col">' in index
+    # the stiffness-against-load chart: on the summary for every specimen, on each specimen's page for it
+    assert 'src="figures/stiffness-load.svg"' in index
+    chart = (site / "figures/stiffness-load.svg").read_text(encoding="utf-8")
+    assert all(s in chart for s in ("PRD-A", "CND-B", "CND-C", "Longitudinal slip stiffness", "Camber stiffness"))
+    assert 'src="figures/stiffness-load-cnd-b.svg"' in (site / "specimen-cnd-b.html").read_text(encoding="utf-8")
     for title, _ in CAUTIONS:
         assert title in index
 
@@ -243,3 +251,55 @@ def test_every_number_derives_from_the_rig_files_and_the_drift_from_the_control_
     # every run on the control's rig (Harlow Ridge), its own repeats included: 18 runs less the 4 at Eisenau
     assert len(corrections) == len(results["drift"]["corrections"]) == 14
     assert {"d:recommendation", "d:narrative-summary-rendered"} <= raw["entity"].keys()
+
+
+# --- what a reader sees -----------------------------------------------------------------------
+
+
+def _page_margin_right_pt() -> float:
+    """The right page margin of the default theme's print stylesheet (its @page rule), in pt."""
+    css = (ROOT / "themes/default/print.css").read_text(encoding="utf-8")
+    top, right, bottom, left = re.search(r"@page\s*{[^}]*?margin:\s*([^;]+);", css).group(1).split()
+    assert right.endswith("mm")
+    return float(right[:-2]) / 25.4 * 72.0
+
+
+def test_no_text_of_any_volume_starts_past_the_content_edge(demo_out):
+    # A table wider than the page is clipped at the paper's edge: its last column's text then
+    # starts past the right edge of the content box (A4 is 595.28 pt wide, ISO 216).
+    right_edge_pt = 595.2756 - _page_margin_right_pt() + 1.0
+    for name in (
+        "dossier.pdf",
+        "annex-a-results.pdf",
+        "annex-b-specimens.pdf",
+        "annex-c-rig-runs.pdf",
+        "annex-d-provenance.pdf",
+    ):
+        beyond = []
+        for n, page in enumerate(PdfReader(demo_out / name).pages, 1):
+
+            def visit(text, cm, tm, font, size, n=n):
+                x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]  # the text origin in user space (no rotation)
+                if text.strip() and x > right_edge_pt:
+                    beyond.append((n, round(x), text.strip()[:30]))
+
+            page.extract_text(visitor_text=visit)
+        assert not beyond, (name, beyond[:5])
+
+
+def test_the_candidates_at_a_glance_fit_one_page_after_the_summary(demo_out):
+    pages = [p.extract_text() for p in PdfReader(demo_out / "dossier.pdf").pages]
+    (start,) = [i for i, t in enumerate(pages) if "Candidates at a glance\n" in t and "At 4.0 kN" in t]
+    assert "Executive summary" in pages[start - 1] or "Executive summary" in pages[start - 2]
+    page = pages[start]
+    assert all(c in page for c in ("PRD-A", "CND-B", "CND-C", "Understeer gradient", "Targets: met"))
+    assert "Details: the comparison" in page  # the whole comparison, chart included, on that one page
+
+
+def test_running_text_has_no_dimensionless_unit_and_keeps_numbers_with_their_percent(demo_out):
+    index = (demo_out / "site/index.html").read_text(encoding="utf-8")
+    narrative = re.search(r'<div class="narrative" id="narrative-summary">(.*?)</div>', index, re.S).group(1)
+    assert not re.search(r"\d[\s\u00a0]1(?![\d.,])", narrative), narrative  # "1.129 1 peak lateral friction"
+    for page in ("index.html", "comparison.html", "specimen-cnd-b.html", "data-quality.html"):
+        html = (demo_out / "site" / page).read_text(encoding="utf-8")
+        assert not re.search(r"\d %", html), page  # a value and its % sign never part at a line end

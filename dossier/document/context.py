@@ -29,6 +29,18 @@ from .numbers import fmt_camber
 
 
 @dataclass(frozen=True)
+class Glance:
+    """The candidates side by side against the baseline: what the one-page comparison shows."""
+
+    baseline: str
+    candidates: tuple[str, ...]
+    rows: tuple  # (metric definition, the baseline's value, one Difference or None per candidate)
+    verdict_counts: dict  # specimen -> (meets, marginal, does not meet, not measured)
+    baseline_understeer_deg_per_g: float | None
+    handling: tuple  # (candidate, understeer gradient on both axles, change from the baseline's) in deg/g
+
+
+@dataclass(frozen=True)
 class ConditionGroup:
     """A specimen's metric values at one camber and pressure other than its nominal ones."""
 
@@ -187,6 +199,47 @@ class DossierContext:
 
     def verdict(self, target, specimen_id):
         return next((v for v in self.verdicts if v.target is target and v.specimen == specimen_id), None)
+
+    @property
+    def glance(self) -> Glance | None:
+        """The candidates side by side against the baseline at the nominal load (None: nothing to compare)."""
+        base = next((s.id for s in self.manifest.specimens if s.role == "baseline"), None)
+        standings = [s for s in self.standings if s.differences]
+        if base is None or not standings:
+            return None
+        views = {v.specimen.id: v for v in self.specimens}
+        metrics = list(dict.fromkeys(d.metric for s in standings for d in s.differences))
+        rows = []
+        for name in metrics:
+            cells = tuple(next((d for d in s.differences if d.metric == name), None) for s in standings)
+            rows.append((METRICS[name], views[base].metric(name, self.nominal_load_n), cells))
+        counts = {}
+        for sid in [base] + [s.candidate for s in standings]:
+            mine = [v.verdict for v in self.verdicts if v.specimen == sid]
+            counts[sid] = tuple(mine.count(k) for k in ("meets", "marginal", "does not meet", "not measured"))
+        handling = []
+        if self.fitments:
+            own = self.fitment(base, base)
+            for s in standings:
+                b = self.fitment(s.candidate, s.candidate)
+                if own is not None and b is not None:
+                    handling.append(
+                        (
+                            s.candidate,
+                            b.understeer_gradient_deg_per_g,
+                            b.understeer_gradient_deg_per_g - own.understeer_gradient_deg_per_g,
+                        )
+                    )
+        return Glance(
+            base,
+            tuple(s.candidate for s in standings),
+            tuple(rows),
+            counts,
+            None
+            if not self.fitments or self.fitment(base, base) is None
+            else self.fitment(base, base).understeer_gradient_deg_per_g,
+            tuple(handling),
+        )
 
     @property
     def judged_specimens(self) -> list[str]:

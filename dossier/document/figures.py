@@ -19,8 +19,9 @@ from ..common.names import slug
 from ..conditioning.drift import DriftEstimate
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
 from ..document.artifacts import FigureArtifact
-from ..metrics.evaluate import MetricValue
+from ..metrics.evaluate import COMPUTE, MetricValue
 from ..model.fit import ChannelFit
+from ..project.catalogue import METRICS, STIFFNESS_METRICS
 
 matplotlib.use("Agg")
 
@@ -97,6 +98,16 @@ _AXIS = {
 _WORD = {"fy": "lateral force", "mz": "aligning moment", "fx": "longitudinal force"}
 
 
+DASHES = ("-", "--", "-.", ":")
+MARKERS = "osD^v<>P*X"
+
+
+def _distinct(i: int, colors: list[str]) -> tuple[str, str, str]:
+    """Colour, line style and marker of the i-th curve of a figure: the colours of the theme's cycle
+    first, then the same colours with the next dash, so that no two legend entries look alike."""
+    return colors[i % len(colors)], DASHES[(i // len(colors)) % len(DASHES)], MARKERS[i % len(MARKERS)]
+
+
 def _measured(p: OperatingPoint, channel: str):
     return {"fy": p.curve.fy_n, "mz": p.curve.mz_nm, "fx": p.curve.fx_n}[channel]
 
@@ -125,8 +136,8 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) 
                 ax.plot(p.raw_x[::step], p.raw_main[::step], ".", ms=1.5, color=c, alpha=0.25, rasterized=True)
             ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=3.2, mfc="none", color=c, rasterized=True)
         for load in loads:
-            c = colors[loads.index(load) % len(colors)]
-            ax.plot(grid, fit.predict(grid, load), "-", lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
+            c, line, _ = _distinct(loads.index(load), colors)
+            ax.plot(grid, fit.predict(grid, load), line, lw=1.4, color=c, label=f"{load / 1000:.1f} kN")
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(title="Nominal load", fontsize="small", title_fontsize="small")
         ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}, {fit.pressure_kpa:.0f} kPa, camber {fit.camber_deg:g}°")
@@ -155,12 +166,12 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: byte
         lo, hi = fit.slip_range
         grid = np.linspace(lo, hi, 241)
         for i, p in enumerate(pts):
-            c = colors[i % len(colors)]
-            ax.plot(p.curve.x, _measured(p, fit.channel), "o", ms=2.8, mfc="none", color=c, rasterized=True)
+            c, line, mark = _distinct(i, colors)
+            ax.plot(p.curve.x, _measured(p, fit.channel), mark, ms=2.8, mfc="none", color=c, rasterized=True)
             ax.plot(
                 grid,
                 fit.predict(grid, p.mean_load_n, p.camber_deg, p.pressure_kpa),
-                "-",
+                line,
                 lw=1.2,
                 color=c,
                 label=f"{p.load_n / 1000:.1f} kN, γ {p.camber_deg:+g}°, {p.pressure_kpa:.0f} kPa",
@@ -237,9 +248,95 @@ def load_trend_figure(metric: str, label: str, unit: str, values: list[MetricVal
         f"{metric.replace('_', '-')}-load.svg",
         f"{label} against load",
         "Model values at the loads each specimen was measured at (no extrapolation); bars show 95 % intervals "
-        "from the fit covariance.",
+        "(expanded uncertainty of the budget).",
         f"Chart of {label.lower()} against normal load for specimens {', '.join(specimens)}.",
         _render(style, draw),
+    )
+
+
+LOAD_GRID_POINTS = 81
+EXTRAPOLATION_SHOWN = 0.25  # the model drawn (dashed) this fraction of the fitted load span beyond each end
+
+
+def stiffness_load_figure(
+    models, values: list[MetricValue], style: bytes, specimen: str | None = None
+) -> FigureArtifact:
+    """Cornering, longitudinal slip and camber stiffness and the cornering coefficient against load:
+    each specimen's model curve (solid over the fitted loads, dashed beyond), its values at the
+    measured loads with their 95 % intervals, and the model-free estimates where there are any.
+    `specimen`: that one alone (its own page); None: every specimen on one chart."""
+    shown_models = [m for m in models if specimen is None or m.specimen == specimen]
+    names = [
+        n
+        for n in STIFFNESS_METRICS
+        if any(v.metric == n and v.specimen in {m.specimen for m in shown_models} for v in values)
+    ]
+
+    def curve(model, name):
+        fits = [model.get(c) for c in METRICS[name].channels]
+        if any(f is None for f in fits):
+            return None
+        lo = max(f.load_range_n[0] for f in fits)
+        hi = min(f.load_range_n[1] for f in fits)
+        span = max(hi - lo, 0.2 * hi)
+        grid = np.linspace(
+            max(lo - EXTRAPOLATION_SHOWN * span, 0.05 * hi), hi + EXTRAPOLATION_SHOWN * span, LOAD_GRID_POINTS
+        )
+        base = {c: model.get(c).values for c in ("fy", "mz", "fx") if model.get(c) is not None}
+        ys = [COMPUTE[name](model, float(load), base) for load in grid]
+        if any(y is None for y in ys):
+            return None
+        return grid, np.array(ys, dtype=float), lo, hi
+
+    def draw(fig):
+        rows = 1 if len(names) <= 2 else 2
+        cols = 1 if len(names) == 1 else 2
+        axes = np.atleast_1d(fig.subplots(rows, cols)).ravel()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        markers = "osD^v<>P*"
+        for ax, name in zip(axes, names):
+            d = METRICS[name]
+            for i, model in enumerate(shown_models):
+                c, line, _ = _distinct(i, colors)
+                found = curve(model, name)
+                if found is not None:
+                    grid, ys, lo, hi = found
+                    inside = (grid >= lo * 0.999) & (grid <= hi * 1.001)
+                    ax.plot(grid[inside] / 1000, ys[inside], line, lw=1.4, color=c, label=model.specimen)
+                    for part in (grid < lo, grid > hi):
+                        if part.any():
+                            ax.plot(grid[part] / 1000, ys[part], "--", lw=1.0, color=c)
+                vs = sorted(
+                    (v for v in values if v.specimen == model.specimen and v.metric == name and not v.extrapolated),
+                    key=lambda v: v.load_n,
+                )
+                if vs:
+                    x = np.array([v.load_n / 1000 for v in vs])
+                    y = np.array([v.value for v in vs])
+                    err = np.array([[v.value - v.ci95[0], v.ci95[1] - v.value] if v.ci95 else [0.0, 0.0] for v in vs]).T
+                    ax.errorbar(x, y, yerr=err, fmt=markers[i % len(markers)], ms=4, capsize=3, color=c, lw=1.0)
+                    data = [(v.load_n / 1000, v.crosscheck) for v in vs if v.crosscheck is not None]
+                    if data:
+                        ax.plot(*zip(*data), markers[i % len(markers)], ms=7, mfc="none", color=c, alpha=0.7)
+            ax.set_xlabel("Normal load Fz [kN]")
+            ax.set_ylabel(f"{d.label} [{d.unit}]")
+            ax.set_title(d.label, fontsize="medium")
+        for ax in axes[len(names) :]:
+            ax.set_visible(False)
+        if axes.size and shown_models:
+            axes[0].legend(fontsize="small")
+
+    who = specimen or "all specimens"
+    stem = "stiffness-load" if specimen is None else f"stiffness-load-{slug(specimen)}"
+    height = 3.6 if len(names) <= 2 else 6.4
+    return FigureArtifact(
+        f"{stem}.svg",
+        f"Stiffness against load, {who}",
+        "Model curves over the fitted loads (solid) and beyond them (dashed: extrapolation); points with bars: the "
+        "values at the measured loads with their 95 % intervals (expanded uncertainty of the budget); hollow "
+        "markers: model-free estimates from the conditioned data.",
+        f"Charts of {', '.join(METRICS[n].label.lower() for n in names)} against normal load for {who}.",
+        _render(style, draw, size=(7.0, height), fit_labels=True),
     )
 
 
@@ -393,9 +490,9 @@ def overlay_figure(models, points, channel: str, load_n: float, p0_kpa: float, s
             fit = getattr(m, channel)
             if fit is None:
                 continue
-            c = colors[i % len(colors)]
+            c, line, _ = _distinct(i, colors)
             grid = np.linspace(*fit.slip_range, 241)
-            ax.plot(grid, fit.predict(grid, load_n), "-", lw=1.5, color=c, label=m.specimen)
+            ax.plot(grid, fit.predict(grid, load_n), line, lw=1.5, color=c, label=m.specimen)
             for p in points:
                 if (
                     p.specimen == m.specimen
@@ -438,9 +535,9 @@ def gough_figure(models, load_n: float, style: bytes) -> FigureArtifact:
             ax.plot(
                 m.fy.predict(a, load_n),
                 m.mz.predict(a, load_n),
-                "-",
+                _distinct(i, colors)[1],
                 lw=1.5,
-                color=colors[i % len(colors)],
+                color=_distinct(i, colors)[0],
                 label=m.specimen,
             )
         ax.axhline(0, lw=0.5, color="0.5")
@@ -461,59 +558,57 @@ def gough_figure(models, load_n: float, style: bytes) -> FigureArtifact:
 
 
 def difference_figure(standings, style: bytes) -> FigureArtifact:
-    """Each candidate's differences from the baseline, normalised, with 95 % intervals.
+    """Each candidate's differences from the baseline in % of the baseline's value, with 95 % intervals:
+    one scaling for every metric, so that no metric squashes the others."""
+    rows = [(s.candidate, d) for s in standings for d in s.differences if d.baseline_value]
 
-    Normalised by half the target window where a two-sided target exists at that load,
-    otherwise by twice the rig repeatability of a difference; metrics with neither are left out.
-    The shaded band is ±1: inside it a difference is smaller than the target's half-width.
-    """
-    from ..project.catalogue import METRICS
-
-    rows = [(s.candidate, d) for s in standings for d in s.differences if d.normalised is not None]
+    def pct(d, x):
+        return 100.0 * x / abs(d.baseline_value)
 
     def draw(fig):
         ax = fig.add_subplot()
         colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        markers = "osD^v<>"
         cands = list(dict.fromkeys(c for c, _ in rows))
         labels = list(dict.fromkeys(METRICS[d.metric].label for _, d in rows))
-        ax.axvspan(-1, 1, color="0.92", lw=0)
         ax.axvline(0, color="0.3", lw=0.8)
         for j, c in enumerate(cands):
+            first = True
             for c2, d in rows:
                 if c2 != c:
                     continue
                 y = labels.index(METRICS[d.metric].label) + (j - (len(cands) - 1) / 2) * 0.22
-                scale = d.normalised / d.diff if d.diff else 0.0
+                x = pct(d, d.diff)
                 err = None
                 if d.diff_ci95:
-                    err = [[abs(d.normalised - d.diff_ci95[0] * scale)], [abs(d.diff_ci95[1] * scale - d.normalised)]]
+                    err = [[x - pct(d, d.diff_ci95[0])], [pct(d, d.diff_ci95[1]) - x]]
                 ax.errorbar(
-                    [d.normalised],
+                    [x],
                     [y],
                     xerr=err,
-                    fmt="o" if d.significant else "s",
-                    mfc="white" if not d.significant else None,
-                    color=colors[(j + 1) % len(colors)],
+                    fmt=markers[j % len(markers)],
+                    mfc=None if d.significant else "white",
+                    color=colors[j % len(colors)],
                     capsize=3,
                     ms=6,
-                    label=c if d is next(dd for cc, dd in rows if cc == c) else None,
+                    label=c if first else None,
                 )
+                first = False
         ax.set_yticks(range(len(labels)))
         ax.set_yticklabels(labels, fontsize="small")
         ax.invert_yaxis()
-        ax.set_xlabel("Candidate − baseline, in target half-widths (or twice the rig repeatability)")
+        ax.set_xlabel("Candidate − baseline [% of the baseline's value]")
         ax.legend(fontsize="small", title="filled: a real difference", title_fontsize="x-small")
-        ax.set_title("Differences from the baseline at the nominal load")
+        ax.set_title("Differences from the baseline at the nominal load, % of the baseline")
 
     return FigureArtifact(
         "differences.svg",
         "Candidates against the baseline",
-        "Each marker is a candidate's difference from the baseline divided by half the target window (or, "
-        "without a two-sided target, by twice the rig repeatability of a difference); bars are 95 % intervals; "
-        "the grey band is ±1. Filled markers: intervals exclude zero and the difference "
-        "exceeds the rig's repeatability.",
-        "Dot chart of each candidate's normalised metric differences from the baseline with interval bars.",
-        _render(style, draw, size=(7.0, 0.45 * max(4, len({d.metric for _, d in rows})) + 1.6), fit_labels=True),
+        "Each marker is a candidate's difference from the baseline in % of the baseline's value (one scale for every "
+        "metric); bars are the 95 % intervals of the difference from both uncertainty budgets. Filled markers: a real "
+        "difference (see the comparison).",
+        "Dot chart of each candidate's metric differences from the baseline in percent, with interval bars.",
+        _render(style, draw, size=(7.0, 0.3 * max(4, len({d.metric for _, d in rows})) + 1.4), fit_labels=True),
     )
 
 
@@ -526,12 +621,20 @@ def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
     def draw(fig):
         ax = fig.add_subplot()
         v = np.array(vehicle.speeds_kmh, dtype=float)
-        for b in same:
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for i, b in enumerate(same):
+            c, _, mark = _distinct(i, colors)
+            # Each curve its own dash and marker, thinner as it comes later, so that two fitments of
+            # equal gradient are both seen (the later one drawn over the earlier).
             ax.plot(
                 v,
                 [yaw_rate_gain_per_s(x, b.understeer_gradient_deg_per_g, vehicle.wheelbase_m) for x in v],
-                "-",
-                lw=1.5,
+                DASHES[i % len(DASHES)],
+                marker=mark,
+                markevery=max(1, v.size // 8),
+                ms=4,
+                color=c,
+                lw=max(2.4 - 0.5 * i, 0.9),
                 label=f"{b.front} all round (K = {b.understeer_gradient_deg_per_g:+.2f} deg/g)",
             )
         ax.plot(v, (v / 3.6) / vehicle.wheelbase_m, ":", color="0.5", lw=1.0, label="neutral steer")

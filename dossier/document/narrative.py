@@ -35,7 +35,7 @@ from markdown_it import MarkdownIt
 
 from ..common.errors import NarrativeError
 from ..project.catalogue import METRICS
-from .numbers import fmt_ci, fmt_metric
+from .numbers import fmt_ci, fmt_metric, with_unit
 
 
 class _Unknown(Exception):
@@ -180,7 +180,7 @@ def _functions(ctx) -> dict:
 
     def value(specimen, metric, load_n=None):
         m = metric_value(specimen, metric, load_n)
-        return f"{fmt_metric(m.value, m.unit)} {m.unit}"
+        return with_unit(fmt_metric(m.value, m.unit), m.unit)
 
     def interval(specimen, metric, load_n=None):
         m = metric_value(specimen, metric, load_n)
@@ -215,7 +215,7 @@ def _functions(ctx) -> dict:
             if s.candidate == candidate:
                 for d in s.differences:
                     if d.metric == metric:
-                        return f"{d.diff_pct:+.1f} %"
+                        return f"{d.diff_pct:+.1f}\u00a0%".replace("-", "−")
         raise _Unknown(f"no comparison of {metric!r} for candidate {candidate!r}")
 
     def metrics_table(specimen):

@@ -31,6 +31,12 @@ def fmt_metric(value: float | None, unit: str) -> str:
     return f"{value:,.{DECIMALS.get(unit, 3)}f}".replace(",", "\u2009")
 
 
+def with_unit(number: str, unit: str) -> str:
+    """A formatted number and its unit as running text prints them: a no-break space between, and
+    no unit at all for a dimensionless "1" ("1.129", not "1.129 1")."""
+    return number if unit in ("1", "") else f"{number}\u00a0{unit}"
+
+
 def fmt_ci(ci, unit: str) -> str:
     if not ci:
         return "not estimable"

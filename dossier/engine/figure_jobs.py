@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..project.catalogue import METRICS
+from ..project.catalogue import METRICS, STIFFNESS_METRICS
 from .specimens import points_of
 from .workers import WorkerPool
 
@@ -18,7 +18,12 @@ def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitmen
             if other:
                 tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
             tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
-    for name in ("cornering_coefficient", "peak_lateral_friction", "pneumatic_trail"):
+    if models and any(m.metric in STIFFNESS_METRICS for m in metrics):
+        tasks.append((("summary",), "stiffness_load_figure", (models, metrics, style)))
+        for m in models:
+            if any(v.metric in STIFFNESS_METRICS and v.specimen == m.specimen for v in metrics):
+                tasks.append((("specimen", m.specimen), "stiffness_load_figure", (models, metrics, style, m.specimen)))
+    for name in ("peak_lateral_friction", "pneumatic_trail"):
         if any(m.metric == name for m in metrics):
             tasks.append(
                 (
@@ -40,7 +45,7 @@ def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitmen
         if any(m.mz for m in models):
             tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "mz", fz0_n, p0_kpa, style)))
             tasks.append((("comparison", "comparison"), "gough_figure", (models, fz0_n, style)))
-    if standings:
+    if any(s.differences for s in standings):  # no chart with nothing to show
         tasks.append((("comparison", "comparison"), "difference_figure", (standings, style)))
     if fitments and manifest.vehicle:
         tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (fitments, manifest.vehicle, style)))

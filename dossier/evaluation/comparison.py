@@ -185,7 +185,7 @@ def _across_labs(candidate: str, baseline: str, labs_of: dict[str, frozenset[str
 
 def _sentence(c, baseline, diffs, mine, counts) -> str:
     def label(d):
-        return f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f} %"
+        return f"{METRICS[d.metric].label.lower()} {d.diff_pct:+.1f}\u00a0%"
 
     def excludes_zero(d):
         return d.diff_ci95 is not None and (d.diff_ci95[0] > 0 or d.diff_ci95[1] < 0)
@@ -267,7 +267,7 @@ def _what_separates(tied: list[Standing]) -> str:
     if not spread:
         return "a target on a metric where they differ would separate them"
     name = max(sorted(spread), key=lambda n: spread[n][0])
-    shown = ", ".join(f"{c} {v:+.1f} %" for c, v in spread[name][1].items())
+    shown = ", ".join(f"{c} {v:+.1f}\u00a0%" for c, v in spread[name][1].items())
     label = METRICS[name].label.lower()
     return f"they differ most in {label} ({shown} against the baseline): a target there would separate them"
 

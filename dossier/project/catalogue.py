@@ -36,6 +36,8 @@ class MetricDefinition:
         return "camber_longitudinal" if ("fx" in self.channels or self.name.startswith("camber")) else "cornering"
 
 
+# The stiffnesses the trade reads against load first (charted together, model curve and measured values).
+STIFFNESS_METRICS = ("cornering_stiffness", "cornering_coefficient", "longitudinal_slip_stiffness", "camber_stiffness")
 MIN_PRESSURE_SPAN_KPA = 5.0  # tested pressures closer than this give no slope against pressure
 PRESSURE_SUFFIXES = ("_per_10kpa", "_pct_per_bar")
 # Metrics whose change with inflation pressure is reported: name -> (label, unit, source, channels).
