@@ -303,3 +303,24 @@ def test_running_text_has_no_dimensionless_unit_and_keeps_numbers_with_their_per
     for page in ("index.html", "comparison.html", "specimen-cnd-b.html", "data-quality.html"):
         html = (demo_out / "site" / page).read_text(encoding="utf-8")
         assert not re.search(r"\d %", html), page  # a value and its % sign never part at a line end
+
+
+def test_relaxation_lengths_recover_the_generators_tire(demo_out):
+    # The generator lags the lateral slip by a first-order lag σ/V (σ = 0.45 m at 30 km/h) and Fx by
+    # 0.02 s: σ = V·τ = 8.33 m/s × 0.02 s = 0.167 m (first-order relaxation, Pacejka 2006 §7.2).
+    gen = json.loads((DEMO / "truth/true_coefficients.json").read_text(encoding="utf-8"))["generator"]
+    speed_m_per_s = gen["speed_kmh"] / 3.6
+    truth = {
+        "relaxation_length_lateral": gen["relaxation_length_m"],
+        "relaxation_length_longitudinal": speed_m_per_s * 0.02,
+    }
+    results = json.loads((demo_out / "results.json").read_text(encoding="utf-8"))
+    found = [m for m in results["metrics"] if m["metric"] in truth]
+    assert {m["metric"] for m in found} == set(truth)
+    inside = 0
+    for m in found:
+        assert m["basis"] == "data" and m["unit"] == "m"
+        assert m["value"] == pytest.approx(truth[m["metric"]], rel=0.08), m
+        inside += m["ci95"][0] <= truth[m["metric"]] <= m["ci95"][1]
+    # the intervals claim 95 %: over these tens of values, at most a few may miss
+    assert inside >= 0.85 * len(found), (inside, len(found))

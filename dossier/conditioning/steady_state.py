@@ -20,6 +20,9 @@ Steps, each recorded in the run's :class:`ConditioningAccount`:
    no shift. This removes the first-order relaxation lag even where only one half covers a bin.
    A bin's mean force is that of a curve bending across the bin's spread of slip; it is moved to
    the curve's value at the bin's mean slip (second-order Taylor term, :func:`_spread_corrected`).
+   For the relaxation length (:mod:`dossier.conditioning.relaxation`) the lag also gets its
+   standard uncertainty, the sweep rate near zero slip is measured from the time stamps, and the
+   force samples of every hold after the sweep stops are kept (:class:`SlipHold`).
 6. **Offsets and coverage.** Residual force and moment at zero slip, and findings: a sweep that
    does not pass the peak, a narrow slip range, too few points, a load above the rated load,
    a pressure away from nominal. Each run gets a verdict: sound / usable with findings / unusable.
@@ -62,6 +65,10 @@ NOTE, FINDING, BLOCKING = "note", "finding", "unusable"
 MIN_SLIP_RATIO_RANGE = 0.10  # a longitudinal sweep narrower than ±0.10 misses the peak (common practice)
 DETECT_MIN_SHARE = 0.03  # a detected level holds at least 3 % of the samples
 OVERVIEW_POINTS = 4000  # samples kept for the time-history figure
+# A hold after the sweep stops is kept for at most this long: five time constants of a slow
+# passenger-car tire (0.3 s, e.g. 0.8 m at 10 km/h) are over by then (first-order model).
+HOLD_RECORD_S = 2.0
+HOLD_MIN_SAMPLES = 8  # fewer held samples cannot carry a three-parameter exponential
 
 
 @dataclass(frozen=True)
@@ -124,11 +131,64 @@ class SlipCurve:
 
 @dataclass(frozen=True)
 class Hysteresis:
-    """Rising minus falling half of the sweep at zero slip, and the slip lag that explains it."""
+    """Rising minus falling half of the sweep at zero slip, and the slip lag that explains it.
+
+    `sweep_rate_per_s` is how fast the halves move through `window` (|x| ≤ window, the lines'
+    span): the mean of the rising and the falling half's median |dx/dt| from the time stamps, so
+    that ``slip_lag / sweep_rate_per_s`` is the lag in seconds (first-order model).
+    """
 
     force_diff_n: float
     mz_diff_nm: float | None
     slip_lag: float | None  # deg for slip-angle sweeps, 1 for slip-ratio sweeps
+    sweep_rate_per_s: float | None = None  # deg/s for slip-angle sweeps, 1/s for slip-ratio sweeps
+    window: float | None = None  # half-width of the span about zero slip the lines were fitted over
+
+
+@dataclass(frozen=True)
+class LagSamples:
+    """The moving samples of a sweep within ±`window` of zero slip, for the relaxation lag fit.
+
+    Kept samples only (settled, no spikes, past the run-in); all arrays of equal length, in time
+    order. `travel` is how far the slip has moved since the current stretch of one direction began
+    (from a hold or a reversal): the lag is still building over the first few lags of travel.
+    Forces are as recorded (no drift correction: a scale factor does not change a lag).
+    """
+
+    window: float
+    time_s: np.ndarray
+    x: np.ndarray
+    main: np.ndarray  # Fy (slip-angle sweep) or Fx (slip-ratio sweep), N
+    direction: np.ndarray  # +1 rising, −1 falling
+    travel: np.ndarray  # same unit as x
+    rate_per_s: np.ndarray  # dx/dt of each sample over ±2 samples (:func:`_slip_rate`)
+    rate_rising_per_s: float  # median |dx/dt| of the rising samples
+    rate_falling_per_s: float
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.x.size)
+
+
+@dataclass(frozen=True)
+class SlipHold:
+    """The samples of one hold after the sweep stopped moving: the force settling at a held slip.
+
+    The conditioning drops the first ``slip_settling_s`` of a hold from the curves (the lag is
+    decaying there); these samples, from the first held one for up to :data:`HOLD_RECORD_S`, are
+    what a first-order time constant is fitted to. Forces are as recorded (no drift correction:
+    a scale factor does not change a time constant).
+    """
+
+    time_s: np.ndarray
+    main: np.ndarray  # Fy (slip-angle sweep) or Fx (slip-ratio sweep), N
+    slip: float  # the held slip: deg, or slip ratio
+    approach_rate_per_s: float | None  # how fast the slip moved just before it stopped
+    first_line: int
+
+    @property
+    def n_samples(self) -> int:
+        return int(self.time_s.size)
 
 
 @dataclass(frozen=True)
@@ -171,6 +231,8 @@ class OperatingPoint:
     time_span_s: tuple[float, float]
     findings: tuple[Finding, ...] = ()
     force_scale: float = 1.0  # drift correction applied to forces and moments (1 = none)
+    holds: tuple[SlipHold, ...] = ()  # the force settling after each stop of the sweep
+    lag_samples: LagSamples | None = None  # both halves near zero slip, for the relaxation length
 
     @property
     def key(self) -> tuple[int, float, float, float]:
@@ -297,10 +359,13 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
     spike &= keep
     dropped[REASON_SPIKE] = int(np.count_nonzero(spike))
     keep &= ~spike
+    # Holds after a stop are kept apart for the relaxation time constant before step 4 drops them.
+    hold_candidates = keep.copy()
 
     # 4. direction of the sweep at every sample; drop the run-in of sweeps that start from a hold
     slip_noise_sd = _noise_sd(x)
     direction = _sweep_direction(x, 0.1 * bin_width, slip_noise_sd)
+    slip_rate = _slip_rate(t, x)
     run_in = _run_in(x, direction, settings.sweep_run_in_deg if sweep == "slip_angle" else settings.sweep_run_in_ratio)
     run_in &= keep
     dropped[REASON_RUN_IN] = int(np.count_nonzero(run_in))
@@ -317,9 +382,14 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
                 if spec.load_setpoints_n and ci == 0:
                     run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
                 continue
+            at_point = (load_idx == li) & (camber_idx == ci)
             point, drops = _operating_point(
                 run, sel, direction, float(load), float(camber), bin_width, settings, rated_load_n, slip_noise_sd**2
             )
+            if point is not None:
+                point = _with_relaxation_data(
+                    point, run, sel, hold_candidates & at_point, direction, slip_rate, bin_width, settings
+                )
             for reason, count in drops.items():
                 dropped[reason] += count
             if point is not None:
@@ -384,8 +454,7 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
             sweep, x[m], {k: v[m] for k, v in data.items()}, bin_width, settings.min_samples_per_bin, x_noise_var
         )
         halves[label] = curve if curve.n_points else None
-    run_in = settings.sweep_run_in_deg if sweep == "slip_angle" else settings.sweep_run_in_ratio
-    hyst = _hysteresis(halves["rising"], halves["falling"], max(NEAR_ZERO[sweep], run_in + 1.5 * bin_width))
+    hyst = _hysteresis(halves["rising"], halves["falling"], _lag_window(sweep, settings, bin_width))
     drops = {REASON_SPARSE: 0, REASON_STEP_MOVE: 0}
     held = d == 0
     if np.count_nonzero(held) > 0.5 * d.size:
@@ -440,6 +509,110 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
     )
     findings = _coverage(point, settings, rated_load_n)
     return _replace_findings(point, findings), drops
+
+
+def _slip_rate(t: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """Return dx/dt at every sample from the change over ±2 samples (NaN at the ends or no time step).
+
+    The same span as :func:`_sweep_direction`, so a sample labelled moving has a rate measured
+    over the same samples.
+    """
+    rate = np.full(x.size, np.nan)
+    if x.size > 4:
+        span = t[4:] - t[:-4]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rate[2:-2] = np.where(span > 0, (x[4:] - x[:-4]) / span, np.nan)
+    return rate
+
+
+def _lag_window(sweep: str, settings: ConditioningSettings, bin_width: float) -> float:
+    """Return the half-width about zero slip the hysteresis is measured over (see :func:`_hysteresis`)."""
+    run_in = settings.sweep_run_in_deg if sweep == "slip_angle" else settings.sweep_run_in_ratio
+    return max(NEAR_ZERO[sweep], run_in + 1.5 * bin_width)
+
+
+def _travel(x: np.ndarray, direction: np.ndarray) -> np.ndarray:
+    """Return |x − x₀| with x₀ the slip where the current stretch of one direction began."""
+    start = np.r_[True, direction[1:] != direction[:-1]]
+    origin = np.where(start, np.arange(x.size), 0)
+    np.maximum.accumulate(origin, out=origin)
+    return np.abs(x - x[origin])
+
+
+def _with_relaxation_data(point, run, sel, hold_sel, direction, slip_rate, bin_width, settings) -> OperatingPoint:
+    """Return `point` with the sweep rate on its hysteresis, its moving samples near zero slip
+    and the holds after each stop: what :mod:`dossier.conditioning.relaxation` measures from."""
+    from dataclasses import replace
+
+    ch = run.channels
+    x, t = ch[point.sweep], ch["time"]
+    main = ch["fy" if point.sweep == "slip_angle" else "fx"]
+    window = _lag_window(point.sweep, settings, bin_width)
+    d, xs, r = direction[sel], x[sel], slip_rate[sel]
+    medians = []
+    for sign in (1, -1):
+        m = (d == sign) & (np.abs(xs) <= window) & np.isfinite(r)
+        if np.any(m):
+            medians.append(float(np.median(np.abs(r[m]))))
+    h, samples = point.hysteresis, None
+    if len(medians) == 2:
+        # The lag measured is the mean of the two halves' lags, each rate·τ (first-order model):
+        # so the rate that turns it into a time is the mean of the halves' rates.
+        if h is not None:
+            h = replace(h, sweep_rate_per_s=0.5 * (medians[0] + medians[1]))
+        near = sel & (direction != 0) & (np.abs(x) <= window)
+        samples = LagSamples(
+            window=window,
+            time_s=_frozen(t[near]),
+            x=_frozen(x[near]),
+            main=_frozen(main[near]),
+            direction=_frozen(direction[near]),
+            travel=_frozen(_travel(x, direction)[near]),
+            rate_per_s=_frozen(slip_rate[near]),
+            rate_rising_per_s=medians[0],
+            rate_falling_per_s=medians[1],
+        )
+    holds = _holds(t, x, main, direction, slip_rate, hold_sel, run.line_numbers, bin_width)
+    return replace(point, hysteresis=h, holds=holds, lag_samples=samples)
+
+
+def _holds(t, x, main, direction, slip_rate, eligible, lines, bin_width) -> tuple[SlipHold, ...]:
+    """Find every stop of the sweep inside `eligible` and keep the held samples after it.
+
+    A stop is a held sample right after a moving one, both eligible (in the operating point's
+    band, settled after the set-point change, not a spike). The hold lasts while the slip stays
+    held and eligible, for at most :data:`HOLD_RECORD_S`; it starts where the slip is within a
+    tenth of a bin of its held value (a rig decelerating slowly is still moving before that).
+    Holds shorter than :data:`HOLD_MIN_SAMPLES` samples (a sweep's turning point) are skipped.
+    """
+    held = (direction == 0) & eligible
+    stops = np.flatnonzero(held[1:] & (direction[:-1] != 0) & eligible[:-1]) + 1
+    if stops.size == 0:
+        return ()
+    breaks = np.flatnonzero(~held)
+    out = []
+    for i in stops:
+        k = int(np.searchsorted(breaks, i))
+        end = int(breaks[k]) if k < breaks.size else held.size
+        end = min(end, int(np.searchsorted(t, t[i] + HOLD_RECORD_S, side="right")))
+        if end - i < HOLD_MIN_SAMPLES:
+            continue
+        value = float(np.median(x[i + (end - i) // 2 : end]))
+        start = i + int(np.argmax(np.abs(x[i:end] - value) <= 0.1 * bin_width))
+        if end - start < HOLD_MIN_SAMPLES:
+            continue
+        before = slip_rate[max(i - 3, 0) : i]
+        before = before[np.isfinite(before)]
+        out.append(
+            SlipHold(
+                time_s=_frozen(t[start:end]),
+                main=_frozen(main[start:end]),
+                slip=value,
+                approach_rate_per_s=float(np.median(np.abs(before))) if before.size else None,
+                first_line=int(lines[start]),
+            )
+        )
+    return tuple(out)
 
 
 def _replace_findings(point: OperatingPoint, findings) -> OperatingPoint:
@@ -749,7 +922,7 @@ def _hysteresis(rising, falling, half: float) -> Hysteresis | None:
     k = 0.5 * (lr[1] + lf[1])
     # Rising half sees x − lag, falling half x + lag: F_r(0) − F_f(0) ≈ −2 k lag.
     lag = None if k == 0 else float(-diff / (2.0 * k))
-    return Hysteresis(float(diff), None if mr is None or mf is None else float(mr[0] - mf[0]), lag)
+    return Hysteresis(float(diff), None if mr is None or mf is None else float(mr[0] - mf[0]), lag, window=float(half))
 
 
 def _offsets(c: SlipCurve) -> ZeroSlipOffsets:

@@ -8,11 +8,13 @@ loader and the theme have read them); number formatting lives in the registered 
 from __future__ import annotations
 
 import hashlib
+import re
 
 import jinja2
 
 from ..common.errors import StageError
 from ..conditioning import estimates
+from ..conditioning.relaxation import TRAVEL_LAGS
 from ..metrics.budget import LABELS as BUDGET_LABELS
 from ..metrics.budget import ORDER as BUDGET_ORDER
 from ..model.fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME
@@ -76,6 +78,7 @@ def make_environment(
             "local_half_range_ratio": estimates.LOCAL_HALF_RANGE_RATIO,
             "lab_defaults": LAB_DEFAULTS,
             "min_pressure_span_kpa": MIN_PRESSURE_SPAN_KPA,
+            "travel_lags": TRAVEL_LAGS,
         },
         budget_labels=BUDGET_LABELS,
     )
@@ -86,9 +89,15 @@ def downloads(files: dict[str, bytes]) -> list[tuple[str, int, str]]:
     return [(name, len(data), hashlib.sha256(data).hexdigest()) for name, data in sorted(files.items())]
 
 
+_NUMBER_SPACE_PERCENT = re.compile(r"(\d) %")
+
+
 def page(env, template: str, ctx: DossierContext, **extra) -> bytes:
+    """A page of `template` as UTF-8 bytes; a number and its % sign are joined by a no-break space
+    (ISO 80000-1 puts a space between a number and %, from memory; it must not become a line break)."""
     try:
-        return env.get_template(template).render(d=ctx, **extra).encode("utf-8")
+        text = env.get_template(template).render(d=ctx, **extra)
+        return _NUMBER_SPACE_PERCENT.sub("\\1\u00a0%", text).encode("utf-8")
     except jinja2.TemplateError as exc:
         where = getattr(exc, "filename", None) or template
         line = getattr(exc, "lineno", None)

@@ -32,6 +32,7 @@ from ..evaluation.comparison import compare_candidates
 from ..evaluation.vehicle import fitment_matrix
 from ..ingest.rig_table import parse_run
 from ..metrics.budget import BudgetInputs, attach_budgets
+from ..metrics.measured import measured_values
 from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n
 from ..project.load import Project, load_project
 from ..publish.environment import embedded_font_record, environment_record
@@ -189,6 +190,8 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     every = attach_budgets(
         every, points, BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
     )
+    fitted = {m.specimen for m in models}
+    every += [v for v in measured_values(points) if v.specimen in fitted]  # relaxation lengths
     metrics, condition_metrics = split_nominal(models, every)
     own_pressure = {m.specimen: m.channels[0].pressure_kpa for m in models}
     judged = judge_targets(

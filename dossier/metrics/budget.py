@@ -82,6 +82,8 @@ SCALING: dict[str, tuple[float, float, float, bool]] = {
 # A slope against pressure scales as the metric itself; in % of the value no scale enters.
 SCALING |= {f"{name}_per_10kpa": SCALING[name] for name in PRESSURE_SENSITIVE}
 SCALING |= {f"{name}_pct_per_bar": (0, 0, 0, False) for name in PRESSURE_SENSITIVE}
+# Measured from the slip lag and the speed: no force or moment scale enters (its budget is its own).
+SCALING |= {"relaxation_length_lateral": (0, 0, 0, False), "relaxation_length_longitudinal": (0, 0, 0, False)}
 
 
 def _per_load(fn: Callable[[SlipCurve], float | None]) -> Callable[[SlipCurve], float | None]:

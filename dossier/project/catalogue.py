@@ -27,6 +27,7 @@ class MetricDefinition:
     channels: tuple[str, ...]
     per_load: bool = True  # False: one value per specimen (load sensitivity)
     headline: bool = False  # shown in the summary and by-load tables
+    basis: str = "model"  # "model": from the fitted Magic Formula; "data": measured from the conditioned runs
 
     @property
     def group(self) -> str:
@@ -330,5 +331,30 @@ METRICS: dict[str, MetricDefinition] = {
             per_load=False,
         ),
         *_pressure_metrics(),
+        D(
+            "relaxation_length_lateral",
+            "Relaxation length, lateral",
+            "m",
+            "Rolling distance over which the lateral force builds up after a change of slip angle (first-order "
+            "single-contact-point model): σ = V·τ.",
+            "From the slip lag of the continuous slip-angle sweeps: both halves near zero slip fitted with one cubic "
+            "steady curve shifted by r·τ (r each half's measured sweep rate), times the run's mean speed; several "
+            "runs at one load: their mean. Cross-check: the time constant of the force settling after the slip stops.",
+            "Pacejka 2006 §7.2 (relaxation length)",
+            ("fy",),
+            headline=True,
+            basis="data",
+        ),
+        D(
+            "relaxation_length_longitudinal",
+            "Relaxation length, longitudinal",
+            "m",
+            "Rolling distance over which the longitudinal force builds up after a change of slip ratio: σ = V·τ.",
+            "As the lateral one, from the continuous slip-ratio sweeps.",
+            "Pacejka 2006 §7.2 (relaxation length)",
+            ("fx",),
+            headline=True,
+            basis="data",
+        ),
     )
 }
