@@ -13,9 +13,17 @@ rig (common practice), so that the conditioning and the fits see data like a rea
   and the session's nominal pressure}, of the tire as it was at the first control repeat
   (undrifted, with no calibration error, no repeat scatter, no lag, no noise).
 
+``session(seed, second_pressure=True)`` adds, for each non-control specimen, a slip-angle run at
+the same loads at 1.15 times the session's nominal pressure; ``slope_truth(seed)`` gives the true
+slopes against pressure of such a session (see "Truth").
+
 The truth is computed here, numerically from the true Magic Formula (dossier.model.magic_formula:
 fy0, mz0, fx0) by central differences and a fine grid refined by scipy.optimize, and does not use
-the package's metric code. ``session_details(seed)`` also returns what was simulated (drift slopes,
+the package's metric code. The slopes against pressure are the true tire's secant between the
+lowest and highest pressure its specimen was tested at, at each tested load and zero camber, per
+10 kPa and in % per bar of the value at a tested pressure (the definition of the package's
+``*_per_10kpa`` and ``*_pct_per_bar`` metrics, dossier.project.catalogue), from the same
+numerical truth at each pressure. ``session_details(seed)`` also returns what was simulated (drift slopes,
 calibration gains, run factors, times, coefficients), for reading a failure.
 
 A session, one day on two labs' rigs (every choice varies with the seed):
@@ -25,7 +33,15 @@ A session, one day on two labs' rigs (every choice varies with the seed):
   "S1": one slip-angle run at 2000, 4000 and 6000 N (Mz recorded) and one slip-ratio run at the
   same loads, each at a random slot between the control repeats;
 * in about half of the sessions, "Lab B" (ISO 8855, kN and N·m, ';' separated, decimal commas, a
-  preamble line and a units line) with the candidate "S2" (the same two runs); no control there.
+  preamble line and a units line) with the candidate "S2" (the same two runs); no control there;
+* with ``second_pressure``: one more slip-angle run of S1 (Lab A) and of S2 (Lab B) at the same
+  loads at 1.15 times the nominal pressure, each at a free slot of its lab (drawn from a random
+  stream of its own, so that every other run of the session is the same with or without it).
+
+The true tires carry the inflation-pressure terms of Besselink, Schmeitz & Pacejka (2010) as
+dossier.model.magic_formula places them (ppy1, ppy2 on the cornering stiffness, ppy3 on the
+lateral friction, ppz1 on the peak trail), relative to the session's nominal pressure: at that
+pressure they have no effect, so a session without the second pressure is unchanged by them.
 
 Simulated effects:
 
@@ -45,7 +61,8 @@ Simulated effects:
 
 Run ``python tests/sessions.py`` for a self-check: three sessions loaded, conditioned and fitted,
 with the number of operating points per specimen and the seconds taken (``--no-labs``: without
-the ``[labs.*]`` tables; ``--no-load-out``: with ``[fit] leave_one_load_out = false``).
+the ``[labs.*]`` tables; ``--no-load-out``: with ``[fit] leave_one_load_out = false``;
+``--second-pressure``: with the second pressure).
 """
 
 from __future__ import annotations
@@ -69,6 +86,7 @@ SIZE = "225/45 R17 94W"  # load index 94: 670 kg, 6570 N, above every set-point
 R0_M = (17 * 25.4 + 2 * 225 * 0.45) / 2000.0
 SPEED_KMH = 30.0
 PRESSURES_KPA = (230.0, 240.0, 250.0)  # the session's nominal pressure is one of these
+SECOND_PRESSURE_FACTOR = 1.15  # the second pressure of a session that has one, times the nominal
 
 # Rig program (invented, in the range of common practice: domain primer §2).
 LATERAL_RATE_HZ = 25.0
@@ -148,6 +166,16 @@ BASE_MZ = {
     "qBz10": 0.2,
 }
 BASE_FX = dict(TRUE_FX)  # the same invented longitudinal set as the fit checks
+# Inflation-pressure terms (invented magnitudes, BSP2010 placement as in dossier.model.magic_formula;
+# dpi relative to the session's nominal pressure). At +15 % pressure: cornering stiffness about −2 %
+# at 2 kN, +1 % at 4 kN and +4 % at 6 kN (a higher pressure moves the load of maximum stiffness up:
+# ppy2 > 0, while ppy1 > 0 keeps the stiffness from falling at every load); lateral friction about
+# −4 % (ppy3) and the peak trail about −6 % (ppz1: a shorter contact patch), common practice in sign.
+# Only the linear terms: two pressures identify no quadratic one (ppy4 stays 0), so the truth lies
+# inside the fitted model family.
+BASE_FY_PRESSURE = {"ppy1": 0.4, "ppy2": 0.6, "ppy3": -0.25}
+BASE_MZ_PRESSURE = {"ppz1": -0.4}
+PRESSURE_STREAM = 9001  # the second pressure's own random stream: (seed, this)
 
 METRIC_NAMES = (
     "cornering_stiffness",
@@ -157,6 +185,8 @@ METRIC_NAMES = (
     "longitudinal_slip_stiffness",
     "peak_braking_friction",
 )
+SLOPED = ("cornering_stiffness", "peak_lateral_friction", "pneumatic_trail")  # against pressure
+SLOPE_NAMES = tuple(f"{name}{suffix}" for name in SLOPED for suffix in ("_per_10kpa", "_pct_per_bar"))
 
 
 # =================================================================================================
@@ -193,6 +223,7 @@ class Run:
     stream: int  # the run's own random stream
     drift_factor: float = 1.0  # g(t) of its lab at its time
     repeat_factor: float = 1.0  # 1 + N(0, 0.4 %)
+    pressure_factor: float = 1.0  # the run's pressure / the session's nominal pressure
 
 
 @dataclass(frozen=True)
@@ -204,6 +235,14 @@ class Plan:
     labs: dict[str, Lab]
     tires: dict[str, Tire]
     runs: tuple[Run, ...] = field(default=())
+
+    def run_pressure_kpa(self, run: Run) -> float:
+        """The inflation pressure `run` was tested at, kPa (to 0.1 kPa, as the manifest states it)."""
+        return round(self.pressure_kpa * run.pressure_factor, 1)
+
+    def dpi(self, run: Run) -> float:
+        """(p − p0)/p0 of `run`, p0 the session's nominal pressure (the true tire's reference)."""
+        return (self.run_pressure_kpa(run) - self.pressure_kpa) / self.pressure_kpa
 
 
 def _perturbed(base: dict[str, float], channel: str, rng: np.random.Generator) -> dict[str, float]:
@@ -230,8 +269,9 @@ def _lab(name: str, rng: np.random.Generator, drift_per_h: float) -> Lab:
     )
 
 
-def plan(seed: int) -> Plan:
-    """The session of `seed`: times, labs' errors, true tires, runs and their factors."""
+def plan(seed: int, second_pressure: bool = False) -> Plan:
+    """The session of `seed`: times, labs' errors, true tires, runs and their factors (with
+    `second_pressure`, a slip-angle run of each non-control specimen at the second pressure)."""
     rng = np.random.default_rng(seed)
     pressure = float(rng.choice(PRESSURES_KPA))
     start = dt.datetime.combine(SESSION_DAY, dt.time(7, 0)) + dt.timedelta(minutes=int(rng.integers(0, 121)))
@@ -281,6 +321,40 @@ def plan(seed: int) -> Plan:
         )
     if not with_b:
         tires.pop("S2")
+    # The pressure terms and the second-pressure runs come from a stream of their own: the draws
+    # above, and so every run at the nominal pressure, are the same with or without them.
+    prng = np.random.default_rng([seed, PRESSURE_STREAM])
+    tires = {
+        sid: Tire(
+            {**t.fy, **_perturbed(BASE_FY_PRESSURE, "fy", prng)},
+            {**t.mz, **_perturbed(BASE_MZ_PRESSURE, "mz", prng)},
+            t.fx,
+        )
+        for sid, t in tires.items()
+    }
+    if second_pressure:
+        for sid, lab, prefix in (("S1", "Lab A", "A"), ("S2", "Lab B", "B")):
+            if sid not in tires:
+                continue
+            taken = {round((r.tested_at - start).total_seconds() / 3600.0, 6) for r in timed if r.specimen == sid}
+            free = [h for h in SLOTS_H if round(h, 6) not in taken]
+            h = float(prng.choice(free))
+            hours = (at(h) - t_ref).total_seconds() / 3600.0
+            timed.append(
+                Run(
+                    sid,
+                    lab,
+                    f"rig/{prefix}_{sid}_lateral_p2.csv",
+                    "slip_angle",
+                    LOADS_N,
+                    at(h),
+                    len(timed) + 1,
+                    1.0 + labs[lab].drift_per_h * hours,
+                    1.0 + REPEAT_SCATTER * prng.standard_normal(),
+                    SECOND_PRESSURE_FACTOR,
+                )
+            )
+        timed.sort(key=lambda r: (r.tested_at, r.stream))
     return Plan(seed, pressure, t_ref, relaxation, labs, tires, tuple(timed))
 
 
@@ -344,12 +418,13 @@ def _simulate(p: Plan, run: Run) -> dict[str, np.ndarray]:
     level = lab.force_gain * run.drift_factor * run.repeat_factor
     m_level = lab.moment_gain * run.drift_factor * run.repeat_factor
     dt_s = t[1] - t[0]
+    dpi = p.dpi(run)
     ch = {"time": t}
     if lateral:
         tau = p.relaxation_length_m / (SPEED_KMH / 3.6)
         alpha = lagged(slip_cmd, tau, dt_s) * mf.DEG
-        fy = mf.fy0(alpha, fz_true, tire.fy, FZ0_N)
-        mz = mf.mz0(alpha, fz_true, tire.mz, tire.fy, FZ0_N, R0_M)
+        fy = mf.fy0(alpha, fz_true, tire.fy, FZ0_N, dpi=dpi)
+        mz = mf.mz0(alpha, fz_true, tire.mz, tire.fy, FZ0_N, R0_M, dpi=dpi)
         ch["slip_angle"] = slip_cmd + lab.slip_zero_deg + rng.normal(0.0, NOISE_SLIP_DEG, n)
         ch["fy"] = level * fy + rng.normal(0.0, NOISE_FY_N, n)
         ch["mz"] = m_level * mz + rng.normal(0.0, NOISE_MZ_NM, n)
@@ -357,7 +432,7 @@ def _simulate(p: Plan, run: Run) -> dict[str, np.ndarray]:
     else:
         kappa = lagged(slip_cmd, LONGITUDINAL_LAG_S, dt_s)
         ch["slip_ratio"] = slip_cmd + rng.normal(0.0, NOISE_SLIP_RATIO, n)
-        ch["fx"] = level * mf.fx0(kappa, fz_true, tire.fx, FZ0_N) + rng.normal(0.0, NOISE_FX_N, n)
+        ch["fx"] = level * mf.fx0(kappa, fz_true, tire.fx, FZ0_N, dpi=dpi) + rng.normal(0.0, NOISE_FX_N, n)
         main = "fx"
     n_spikes = int(rng.integers(SPIKES_PER_FILE[0], SPIKES_PER_FILE[1] + 1))
     rows = np.sort(rng.choice(np.arange(20, n - 20, 12), size=n_spikes, replace=False))
@@ -365,7 +440,7 @@ def _simulate(p: Plan, run: Run) -> dict[str, np.ndarray]:
     ch["inclination"] = rng.normal(0.0, NOISE_INCLINATION_DEG, n)
     ch["fz"] = fz_cell * (1.0 + rng.normal(0.0, NOISE_FZ_FRACTION, n))
     ch["speed"] = SPEED_KMH + rng.normal(0.0, NOISE_SPEED_KMH, n)
-    ch["pressure"] = p.pressure_kpa + rng.normal(0.0, NOISE_PRESSURE_KPA, n)
+    ch["pressure"] = p.run_pressure_kpa(run) + rng.normal(0.0, NOISE_PRESSURE_KPA, n)
     return ch
 
 
@@ -473,7 +548,7 @@ date = {SESSION_DAY.isoformat()}
         f'construction = "Synthetic tire (invented coefficients)."\n'
         for sid in p.tires
     )
-    runs = "".join(_run_entry(r, channels_of[r.file], p.pressure_kpa) for r in p.runs)
+    runs = "".join(_run_entry(r, channels_of[r.file], p.run_pressure_kpa(r)) for r in p.runs)
     labs = ""
     if declare_labs:
         for name in p.labs:
@@ -514,16 +589,19 @@ def _side_max(f, edge: float, n: int = 4001) -> tuple[float, float]:
     return (float(-res.fun), float(res.x)) if -res.fun >= y[i] else (float(y[i]), float(x[i]))
 
 
-def truth_of(tire: Tire, longitudinal: bool, load_n: float = FZ0_N) -> dict[str, float]:
-    """The true metrics of `tire` at `load_n`, zero camber, nominal pressure."""
-    dfy = float(mf.fy0(H_RAD, load_n, tire.fy, FZ0_N) - mf.fy0(-H_RAD, load_n, tire.fy, FZ0_N))
+def truth_of(tire: Tire, longitudinal: bool, load_n: float = FZ0_N, dpi: float = 0.0) -> dict[str, float]:
+    """The true metrics of `tire` at `load_n`, zero camber, and relative pressure `dpi` (0: nominal)."""
+    dfy = float(mf.fy0(H_RAD, load_n, tire.fy, FZ0_N, dpi=dpi) - mf.fy0(-H_RAD, load_n, tire.fy, FZ0_N, dpi=dpi))
     dmz = float(
-        mf.mz0(H_RAD, load_n, tire.mz, tire.fy, FZ0_N, R0_M) - mf.mz0(-H_RAD, load_n, tire.mz, tire.fy, FZ0_N, R0_M)
+        mf.mz0(H_RAD, load_n, tire.mz, tire.fy, FZ0_N, R0_M, dpi=dpi)
+        - mf.mz0(-H_RAD, load_n, tire.mz, tire.fy, FZ0_N, R0_M, dpi=dpi)
     )
     stiffness = -dfy / (2.0 * H_RAD) * mf.DEG  # N/rad -> N/deg
     peaks = []
     for sign in (1.0, -1.0):
-        top, where = _side_max(lambda a: np.abs(mf.fy0(sign * a * mf.DEG, load_n, tire.fy, FZ0_N)), SWEEP_MAX_DEG)
+        top, where = _side_max(
+            lambda a: np.abs(mf.fy0(sign * a * mf.DEG, load_n, tire.fy, FZ0_N, dpi=dpi)), SWEEP_MAX_DEG
+        )
         if where > SWEEP_MAX_DEG - 1.0:
             raise ValueError(f"true lateral peak at {where:.2f} deg: not inside the sweep")
         peaks.append(top)
@@ -534,8 +612,8 @@ def truth_of(tire: Tire, longitudinal: bool, load_n: float = FZ0_N) -> dict[str,
         "pneumatic_trail": 1000.0 * -dmz / dfy,  # mm
     }
     if longitudinal:
-        dfx = float(mf.fx0(H_RAD, load_n, tire.fx, FZ0_N) - mf.fx0(-H_RAD, load_n, tire.fx, FZ0_N))
-        top, where = _side_max(lambda k: np.abs(mf.fx0(-k, load_n, tire.fx, FZ0_N)), SLIP_RATIO_MAX)
+        dfx = float(mf.fx0(H_RAD, load_n, tire.fx, FZ0_N, dpi=dpi) - mf.fx0(-H_RAD, load_n, tire.fx, FZ0_N, dpi=dpi))
+        top, where = _side_max(lambda k: np.abs(mf.fx0(-k, load_n, tire.fx, FZ0_N, dpi=dpi)), SLIP_RATIO_MAX)
         if where > SLIP_RATIO_MAX - 0.03:
             raise ValueError(f"true braking peak at slip ratio {-where:.3f}: not inside the sweep")
         out["longitudinal_slip_stiffness"] = dfx / (2.0 * H_RAD)
@@ -543,13 +621,46 @@ def truth_of(tire: Tire, longitudinal: bool, load_n: float = FZ0_N) -> dict[str,
     return out
 
 
+def slopes_of(p: Plan, sid: str) -> dict[tuple[str, float, float], float]:
+    """The true slopes against pressure of specimen `sid` of the session `p`: (metric, load N,
+    pressure kPa the % per bar refers to) -> value, at each load its slip-angle runs were tested at
+    two or more pressures (zero camber). The secant between the lowest and highest tested pressure,
+    per 10 kPa, and in % per bar of the value at each tested pressure (the catalogue's definition)."""
+    tire = p.tires[sid]
+    out: dict[tuple[str, float, float], float] = {}
+    for load in sorted({load for r in p.runs if r.specimen == sid and r.sweep == "slip_angle" for load in r.loads_n}):
+        tested = {
+            p.run_pressure_kpa(r): p.dpi(r)
+            for r in p.runs
+            if r.specimen == sid and r.sweep == "slip_angle" and load in r.loads_n
+        }
+        if len(tested) < 2:
+            continue
+        at = {kpa: truth_of(tire, longitudinal=False, load_n=load, dpi=dpi) for kpa, dpi in tested.items()}
+        lo, hi = min(at), max(at)
+        for name in SLOPED:
+            per_kpa = (at[hi][name] - at[lo][name]) / (hi - lo)
+            for kpa in at:
+                out[(f"{name}_per_10kpa", load, kpa)] = 10.0 * per_kpa
+                out[(f"{name}_pct_per_bar", load, kpa)] = 100.0 * 100.0 * per_kpa / at[kpa][name]
+    return out
+
+
+def slope_truth(seed: int, second_pressure: bool = True) -> dict[str, dict[tuple[str, float, float], float]]:
+    """The true slopes against pressure of the session of `seed` (see :func:`slopes_of`), per specimen
+    tested at two or more pressures."""
+    p = plan(seed, second_pressure)
+    found = {sid: slopes_of(p, sid) for sid in p.tires}
+    return {sid: values for sid, values in found.items() if values}
+
+
 # =================================================================================================
 # The entry points
 # =================================================================================================
 
 
-def _build(seed: int, declare_labs: bool, leave_one_load_out: bool):
-    p = plan(seed)
+def _build(seed: int, declare_labs: bool, leave_one_load_out: bool, second_pressure: bool = False):
+    p = plan(seed, second_pressure)
     files: dict[str, bytes] = {}
     channels_of: dict[str, list[str]] = {}
     for run in p.runs:
@@ -565,22 +676,23 @@ def _build(seed: int, declare_labs: bool, leave_one_load_out: bool):
 
 
 def session(
-    seed: int, *, declare_labs: bool = True, leave_one_load_out: bool = True
+    seed: int, *, declare_labs: bool = True, leave_one_load_out: bool = True, second_pressure: bool = False
 ) -> tuple[dict[str, bytes], dict[str, dict[str, float]]]:
     """Return (files, truth) of the synthetic session of `seed` (see the module's docstring).
 
     `declare_labs`: write the labs' accuracies as ``[labs."NAME"]`` tables (the errors are
     simulated within the same bounds either way). `leave_one_load_out` false writes
     ``[fit] leave_one_load_out = false``: the fits' load-out check takes most of the fitting time
-    and does not enter the metrics' intervals.
+    and does not enter the metrics' intervals. `second_pressure`: add a slip-angle run of each
+    non-control specimen at the second pressure (:func:`slope_truth` gives the true slopes).
     """
-    files, truth, _ = _build(seed, declare_labs, leave_one_load_out)
+    files, truth, _ = _build(seed, declare_labs, leave_one_load_out, second_pressure)
     return files, truth
 
 
-def session_details(seed: int) -> dict:
+def session_details(seed: int, second_pressure: bool = False) -> dict:
     """What the session of `seed` simulated: labs' errors and drift, each run's factors, the tires."""
-    p = plan(seed)
+    p = plan(seed, second_pressure)
     return {
         "pressure_kpa": p.pressure_kpa,
         "t_ref": p.t_ref.isoformat(),
@@ -605,6 +717,7 @@ def session_details(seed: int) -> dict:
                 "tested_at": r.tested_at.isoformat(),
                 "drift_factor": r.drift_factor,
                 "repeat_factor": r.repeat_factor,
+                "pressure_kpa": p.run_pressure_kpa(r),
             }
             for r in p.runs
         ],
@@ -612,7 +725,9 @@ def session_details(seed: int) -> dict:
     }
 
 
-def _selfcheck(seeds=(0, 1, 2), declare_labs: bool = True, leave_one_load_out: bool = True) -> None:
+def _selfcheck(
+    seeds=(0, 1, 2), declare_labs: bool = True, leave_one_load_out: bool = True, second_pressure: bool = False
+) -> None:
     """Load and condition a few sessions; print points per specimen and the seconds taken."""
     import time
     from pathlib import Path
@@ -623,7 +738,9 @@ def _selfcheck(seeds=(0, 1, 2), declare_labs: bool = True, leave_one_load_out: b
 
     for seed in seeds:
         t0 = time.perf_counter()
-        files, truth = session(seed, declare_labs=declare_labs, leave_one_load_out=leave_one_load_out)
+        files, truth = session(
+            seed, declare_labs=declare_labs, leave_one_load_out=leave_one_load_out, second_pressure=second_pressure
+        )
         t1 = time.perf_counter()
         project = project_from_files(files, Path(f"/tmp/session-{seed}"))
         conditioned = check(project)
@@ -643,9 +760,17 @@ def _selfcheck(seeds=(0, 1, 2), declare_labs: bool = True, leave_one_load_out: b
         print(f"  generate {t1 - t0:.2f} s, load + condition {t2 - t1:.2f} s, fit + metrics {t3 - t2:.2f} s")
         for sid, values in truth.items():
             print(f"  truth {sid}: " + ", ".join(f"{k} {v:.5g}" for k, v in values.items()))
+        for sid, slopes in (slope_truth(seed) if second_pressure else {}).items():
+            nominal = min(k[2] for k in slopes)  # the session's nominal pressure: the lower one
+            at_fz0 = [(k[0], v) for k, v in sorted(slopes.items()) if k[1] == FZ0_N and k[2] == nominal]
+            print(f"  true slopes {sid} at {FZ0_N:g} N: " + ", ".join(f"{k} {v:.4g}" for k, v in at_fz0))
 
 
 if __name__ == "__main__":
     import sys
 
-    _selfcheck(declare_labs="--no-labs" not in sys.argv[1:], leave_one_load_out="--no-load-out" not in sys.argv[1:])
+    _selfcheck(
+        declare_labs="--no-labs" not in sys.argv[1:],
+        leave_one_load_out="--no-load-out" not in sys.argv[1:],
+        second_pressure="--second-pressure" in sys.argv[1:],
+    )

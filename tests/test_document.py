@@ -89,11 +89,11 @@ def test_pdf_is_pdf_a_3u_with_the_data_attached(small):
 def test_narrative_follows_the_data(small, tmp_path):
     _, out = small
     html = (out / "site/index.html").read_text(encoding="utf-8")
-    value = re.search(r"Stiffness ([\d\u2009]+) N/deg", html).group(1)
+    value = re.search(r"Stiffness ([\d\u2009]+)\u00a0N/deg", html).group(1)  # a no-break space before the unit
     root2 = make_project(tmp_path / "p2", scale=1.1)
     build(root2, tmp_path / "o2")
     html2 = (tmp_path / "o2/site/index.html").read_text(encoding="utf-8")
-    value2 = re.search(r"Stiffness ([\d\u2009]+) N/deg", html2).group(1)
+    value2 = re.search(r"Stiffness ([\d\u2009]+)\u00a0N/deg", html2).group(1)
     as_int = lambda s: int(s.replace("\u2009", ""))
     assert as_int(value2) == pytest.approx(1.1 * as_int(value), rel=0.01)
     # the same number appears in the tables

@@ -177,10 +177,23 @@ def _between_pressures(metric: str, slope: PressureSlope, points: Sequence[Opera
     the slope: independent relative level errors r per run give u(slope of the relative level) =
     r/√Sxx, Sxx = Σ(p − p̄)² over the runs (the least-squares slope, common practice of regression).
     The drift line's scatter is part of r where a control was repeated; calibration scale errors
-    are common to all pressures and leave a relative slope unchanged."""
+    are common to all pressures and leave a relative slope unchanged. A level error common to force
+    and moment cancels in a metric whose level exponent is zero (the trail, moment over force); on a
+    rig whose drift was not corrected from a control, the lab's drift allowance adds to r, since the
+    runs at the different pressures were tested at different times."""
+    base = next(n for n in PRESSURE_SENSITIVE if metric.startswith(n + "_"))
+    f_exp, m_exp, _, _ = SCALING[base]
     scatter = _repeatability(1.0, 1.0, points, inputs)
     n_runs = len({p.run_index for p in points})
     r = (scatter.relative or 0.0) * math.sqrt(n_runs)  # per run (the part is stated over √runs)
+    stations = sorted({inputs.stations.get(p.run_index, ("", "")) for p in points})
+    uncorrected = [
+        s for s in stations if not (inputs.corrected and s in inputs.drifts and inputs.drifts[s].level_dof > 0)
+    ]
+    if uncorrected:
+        allowance = max(inputs.labs(s[0])[0].drift_allowance_pct for s in uncorrected) / 100.0 / RECTANGULAR
+        r = math.hypot(r, allowance)
+    r *= abs(f_exp + m_exp)
     p = np.asarray(slope.pressures_kpa, dtype=float)
     sxx = float(np.sum((p - p.mean()) ** 2))
     u_rel_per_kpa = r / math.sqrt(sxx) if sxx > 0 else 0.0
@@ -194,8 +207,12 @@ def _between_pressures(metric: str, slope: PressureSlope, points: Sequence[Opera
         scatter.kind,
         u,
         scatter.dof,
-        f"level scatter between runs ({100 * r:.2f} % per run: {scatter.basis.split(' (')[0]}) over the "
-        f"{len(p)} runs at {pressures} kPa",
+        (
+            f"level scatter between runs ({100 * r:.2f} % per run: {scatter.basis.split(' (')[0]}"
+            f"{'; with the drift allowance' if uncorrected else ''}) over the {len(p)} runs at {pressures} kPa"
+            if f_exp + m_exp
+            else "a level common to force and moment cancels in this ratio"
+        ),
     )
 
 
