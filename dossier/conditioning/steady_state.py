@@ -95,6 +95,8 @@ class SlipCurve:
     fx_n: np.ndarray | None
     samples_per_bin: np.ndarray
     bin_index: np.ndarray | None = None  # integer bin of each point (x ≈ bin_index · bin width)
+    mx_nm: np.ndarray | None = None  # overturning moment, where the run carries it
+    my_nm: np.ndarray | None = None  # rolling-resistance moment, where the run carries it
 
     @property
     def slip_angle_deg(self) -> np.ndarray:
@@ -126,6 +128,8 @@ class SlipCurve:
             s(self.fx_n),
             self.samples_per_bin,
             self.bin_index,
+            s(self.mx_nm),
+            s(self.my_nm),
         )
 
 
@@ -353,7 +357,7 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
 
     # 3. spikes in every force and moment channel present
     spike = np.zeros(n, dtype=bool)
-    for name in ("fy", "fx", "mz"):
+    for name in ("fy", "fx", "mz", "mx", "my"):
         if name in ch:
             spike |= _spikes(ch[name], settings.spike_threshold_mad)
     spike &= keep
@@ -443,7 +447,7 @@ def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, setti
     sweep = spec.sweep
     x = ch[sweep][sel]
     d = direction[sel]
-    data = {name: ch[name][sel] for name in ("fz", "fy", "mz", "fx") if name in ch}
+    data = {name: ch[name][sel] for name in ("fz", "fy", "mz", "fx", "mx", "my") if name in ch}
     halves: dict[str, SlipCurve | None] = {}
     for label, sign in (("rising", 1), ("falling", -1)):
         m = d == sign
@@ -847,6 +851,8 @@ def _bin_curve(sweep, x, data, width, min_count, x_noise_var: float = 0.0) -> tu
         force("fx"),
         _frozen(counts[ok]),
         uniq[ok],
+        force("mx"),
+        force("my"),
     )
     return curve, sparse
 

@@ -32,8 +32,8 @@ from ..evaluation.comparison import compare_candidates
 from ..evaluation.vehicle import fitment_matrix
 from ..ingest.rig_table import parse_run
 from ..metrics.budget import BudgetInputs, attach_budgets
-from ..metrics.measured import measured_values
-from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n
+from ..metrics.measured import measured_values, moment_values
+from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n, unloaded_radius_m
 from ..project.load import Project, load_project
 from ..publish.environment import embedded_font_record, environment_record
 from ..publish.integrity import manifest_bytes, sha256, with_manifest
@@ -161,6 +161,14 @@ class Evaluation:
     fitments: tuple
 
 
+def _radius_or_none(manifest, specimen_id: str) -> float | None:
+    """The unloaded radius of a specimen, or None where neither the manifest nor its size gives one."""
+    try:
+        return unloaded_radius_m(manifest, specimen_id)
+    except StageError:
+        return None
+
+
 def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool | None = None) -> Evaluation:
     """Condition, correct drift, fit, evaluate with uncertainty budgets, judge and compare: no
     figures, no documents, nothing written."""
@@ -192,6 +200,9 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     )
     fitted = {m.specimen for m in models}
     every += [v for v in measured_values(points) if v.specimen in fitted]  # relaxation lengths
+    radius = {s.id: _radius_or_none(manifest, s.id) for s in manifest.specimens}
+    inputs = BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
+    every += [v for v in moment_values(points, radius, inputs) if v.specimen in fitted]  # Mx, My
     metrics, condition_metrics = split_nominal(models, every)
     own_pressure = {m.specimen: m.channels[0].pressure_kpa for m in models}
     judged = judge_targets(

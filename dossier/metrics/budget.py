@@ -84,6 +84,12 @@ SCALING |= {f"{name}_per_10kpa": SCALING[name] for name in PRESSURE_SENSITIVE}
 SCALING |= {f"{name}_pct_per_bar": (0, 0, 0, False) for name in PRESSURE_SENSITIVE}
 # Measured from the slip lag and the speed: no force or moment scale enters (its budget is its own).
 SCALING |= {"relaxation_length_lateral": (0, 0, 0, False), "relaxation_length_longitudinal": (0, 0, 0, False)}
+SCALING |= {
+    "overturning_moment_stiffness": (0, 1, 0, False),
+    "overturning_moment_at_zero_slip": (0, 1, 0, False),
+    "rolling_resistance_moment": (0, 1, 0, False),
+    "rolling_resistance_coefficient": (0, 1, -1, False),
+}
 
 
 def _per_load(fn: Callable[[SlipCurve], float | None]) -> Callable[[SlipCurve], float | None]:
