@@ -181,7 +181,9 @@ def test_a_tie_is_reported_as_a_tie_with_what_would_separate_it():
     best, why = recommend([_standing("CND-C", 3, stiffness_pct=3.1), _standing("CND-B", 3, stiffness_pct=10.2)])
     assert best is None  # never broken by the order of the ids
     assert why.startswith("no recommendation: CND-C and CND-B tie (3 target(s) met, 0 marginal)")
-    assert "they differ most in cornering stiffness (CND-C +3.1 %, CND-B +10.2 % against the baseline)" in why
+    assert (
+        "they differ most in cornering stiffness (CND-C +3.1\u00a0%, CND-B +10.2\u00a0% against the baseline)" in why
+    )  # no-break spaces
     best, why = recommend([_standing("CND-C", 3), _standing("CND-B", 2)])
     assert best == "CND-C" and why.startswith("CND-C meets 3 target(s)")
 
