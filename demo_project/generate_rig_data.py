@@ -16,10 +16,12 @@ Run it with no arguments; it rewrites, relative to this script's folder:
 
 The test session (one day, 2026-11-12; see :data:`RUNS`):
 
-* eighteen runs between 08:00 and 16:00. The control tire CTL-1 is run at 08:00, 10:00, 12:00,
+* nineteen runs between 08:00 and 16:00. The control tire CTL-1 is run at 08:00, 10:00, 12:00,
   14:00 and 16:00 (4 kN only). In the morning: the lateral runs at 240 kPa and camber 0 (PRD-A,
   CND-B, CND-C) and PRD-A in reverse rolling; in the afternoon: a camber run (-3 and +3 deg), a
-  pressure run (280 kPa) and a longitudinal (slip-ratio) run of each of PRD-A, CND-B and CND-C;
+  pressure run (280 kPa) and a longitudinal (slip-ratio) run of each of PRD-A, CND-B and CND-C,
+  and a combined-slip run of PRD-A (slip-ratio sweeps at 4 kN with the slip angle held at 0, 2, 4
+  and 6 deg; Fx and Fy from ``fx_combined`` and ``fy_combined`` with PRD-A's true weighting);
 * force-level drift: Fy, Mz and Fx of a run are multiplied by one factor per run,
   g(t) = 1 - 0.01 (t - 08:00) / 1 h, where t is the run's start time (the force level falls by
   1 % an hour as the belt surface and the tread condition change). The truth keeps the UNdrifted
@@ -59,7 +61,18 @@ from pathlib import Path
 
 import numpy as np
 
-from dossier.model.magic_formula import FX0_COEFFICIENTS, FY0_COEFFICIENTS, MZ0_COEFFICIENTS, fx0, fy0, mz0
+from dossier.model.magic_formula import (
+    FX0_COEFFICIENTS,
+    FXC_COEFFICIENTS,
+    FY0_COEFFICIENTS,
+    FYC_COEFFICIENTS,
+    MZ0_COEFFICIENTS,
+    fx0,
+    fx_combined,
+    fy0,
+    fy_combined,
+    mz0,
+)
 
 HERE = Path(__file__).resolve().parent
 RIG_DIR = HERE / "rig"
@@ -85,6 +98,7 @@ SINGLE_LOAD_N = (4000.0,)  # control-tire and reverse-rolling runs
 CAMBER_LOADS_N = (4000.0, 6000.0)
 PRESSURE_LOADS_N = (2000.0, 4000.0, 6000.0)
 CAMBER_STEPS_DEG = (-3.0, 3.0)  # the camber run's set-points, in this order at each load
+COMBINED_HELD_DEG = (0.0, 2.0, 4.0, 6.0)  # the combined-slip run's held slip angles (ISO 8855)
 HIGH_PRESSURE_KPA = 280.0  # the pressure run (2.8 bar, 40.6 psi)
 PRELOAD_N = 250.0  # contact load before the first ramp and after the last sweep
 SPEED_KMH = 30.0
@@ -139,6 +153,9 @@ class DemoSpecimen:
     fx: dict[str, float]  # longitudinal force
     # Zero-slip offset split (conicity c, ply-steer p), fractions of Fz; None: pVy1 as given both ways.
     conicity_ply_steer: tuple[float, float] | None = None
+    # Combined-slip weighting (Pacejka 2006, 4.E50-4.E67) of Fx and Fy; None: not run under combined slip.
+    fxc: dict[str, float] | None = None
+    fyc: dict[str, float] | None = None
 
     def coefficients_for(self, rolling_direction: str) -> dict[str, float]:
         """The true Fy coefficients of a run rolling `rolling_direction` ("forward" or "reverse").
@@ -189,6 +206,9 @@ SPECIMENS: dict[str, DemoSpecimen] = {s.id: s for s in (
             "pKx1": 22.0, "pKx2": 0.6, "pKx3": -0.12, "pHx1": 0.0008, "pVx1": -0.0015,
             "ppx1": -0.30, "ppx2": 0.10, "ppx3": -0.18, "ppx4": 0.08},
         conicity_ply_steer=(PRD_A_CONICITY, PRD_A_PLY_STEER),
+        fxc={"rBx1": 11.5, "rBx2": 8.5, "rCx1": 1.02, "rEx1": -0.20, "rHx1": 0.0},
+        fyc={"rBy1": 8.0, "rBy2": 5.5, "rBy3": 0.0, "rCy1": 1.05, "rEy1": 0.10, "rHy1": 0.002,
+             "rVy1": 0.04, "rVy4": 30.0, "rVy5": 1.9, "rVy6": 18.0},
     ),
     # Candidate B: steeper belt angle; about 10 % more cornering stiffness, similar friction.
     DemoSpecimen(
@@ -220,7 +240,8 @@ SPECIMENS: dict[str, DemoSpecimen] = {s.id: s for s in (
     ),
 )}
 
-CATALOGUES = {"fy": FY0_COEFFICIENTS, "mz": MZ0_COEFFICIENTS, "fx": FX0_COEFFICIENTS}
+CATALOGUES = {"fy": FY0_COEFFICIENTS, "mz": MZ0_COEFFICIENTS, "fx": FX0_COEFFICIENTS,
+              "fxc": FXC_COEFFICIENTS, "fyc": FYC_COEFFICIENTS}
 
 
 def complete(channel: str, given: dict[str, float]) -> dict[str, float]:
@@ -257,11 +278,13 @@ class DemoRun:
     sweep: str = "slip_angle"  # or "slip_ratio"
     cambers_deg: tuple[float, ...] = (0.0,)  # camber set-points, in this order at each load
     pressure_kpa: float = P0_KPA  # set inflation pressure
+    held_deg: tuple[float, ...] = ()  # combined slip: slip angles held during a slip-ratio sweep
 
     @property
-    def steps(self) -> tuple[tuple[float, float], ...]:
-        """(load N, camber deg) of each set-point, in program order."""
-        return tuple((load, camber) for load in self.loads_n for camber in self.cambers_deg)
+    def steps(self) -> tuple[tuple[float, float, float], ...]:
+        """(load N, camber deg, held slip angle deg) of each set-point, in program order."""
+        return tuple((load, camber, held) for load in self.loads_n for camber in self.cambers_deg
+                     for held in (self.held_deg or (0.0,)))
 
     @property
     def is_nominal_lateral(self) -> bool:
@@ -302,6 +325,9 @@ RUNS: tuple[DemoRun, ...] = (
     DemoRun("PRD-A", HR, "rig/HR-4478_PRD-A_long.csv", _at(15, 0), LOADS_N, stream=14, sweep="slip_ratio"),
     DemoRun("CND-B", HR, "rig/HR-4479_CND-B_long.csv", _at(15, 15), LOADS_N, stream=15, sweep="slip_ratio"),
     DemoRun("CND-C", EZ, "rig/EZ-0415_CND-C_Laengs.csv", _at(15, 30), LOADS_N, stream=16, sweep="slip_ratio"),
+    # Combined slip: slip-ratio sweeps of PRD-A at 4 kN with the slip angle held at 0, 2, 4 and 6 deg.
+    DemoRun("PRD-A", HR, "rig/HR-4480_PRD-A_combined.csv", _at(15, 45), SINGLE_LOAD_N, stream=18,
+            sweep="slip_ratio", held_deg=COMBINED_HELD_DEG),
     DemoRun("CTL-1", HR, "rig/HR-4470_CTL-1_1600.csv", _at(16, 0), SINGLE_LOAD_N, stream=17),
 )
 
@@ -325,11 +351,13 @@ def control_span_h() -> float:
 # Simulation (internal ISO 8855 axes: N, N·m, deg, 1 (slip ratio), kPa, km/h, s)
 # =================================================================================================
 
-def rig_program(steps: tuple[tuple[float, float], ...], sweep: str = "slip_angle"
-                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Return (time s, true load N, set camber deg, commanded slip) on the fine simulation grid.
+def rig_program(steps: tuple[tuple[float, float, float], ...], sweep: str = "slip_angle"
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Return (time s, true load N, set camber deg, commanded slip, held slip angle deg) on the fine
+    simulation grid.
 
-    The slip is the slip angle in deg (``sweep == "slip_angle"``) or the slip ratio.
+    The slip is the slip angle in deg (``sweep == "slip_angle"``) or the slip ratio; the held slip
+    angle (combined slip) moves with the load and camber over each ramp and is held otherwise.
     """
     dt = 1.0 / SIM_RATE_HZ
     if sweep == "slip_angle":
@@ -337,16 +365,18 @@ def rig_program(steps: tuple[tuple[float, float], ...], sweep: str = "slip_angle
     else:
         peak, rate = SLIP_RATIO_MAX, SLIP_RATIO_RATE_PER_S
     sweep_s = 4.0 * peak / rate
-    segments_t, segments_fz, segments_camber, segments_slip = [], [], [], []
+    segments_t, segments_fz, segments_camber, segments_slip, segments_held = [], [], [], [], []
     t0 = 0.0
+    held_now = 0.0
 
-    def add(duration: float, fz_of_tau, camber_of_tau, slip_of_tau) -> None:
+    def add(duration: float, fz_of_tau, camber_of_tau, slip_of_tau, held_of_tau=None) -> None:
         nonlocal t0
         tau = np.arange(0.0, duration, dt)
         segments_t.append(t0 + tau)
         segments_fz.append(fz_of_tau(tau))
         segments_camber.append(camber_of_tau(tau))
         segments_slip.append(slip_of_tau(tau))
+        segments_held.append(np.full_like(tau, held_now) if held_of_tau is None else held_of_tau(tau))
         t0 += duration
 
     def ramp(a, b):
@@ -358,9 +388,10 @@ def rig_program(steps: tuple[tuple[float, float], ...], sweep: str = "slip_angle
     zero = np.zeros_like
     add(PREROLL_S, held(PRELOAD_N), zero, zero)
     previous_load, previous_camber = PRELOAD_N, 0.0
-    for load, camber in steps:
+    for load, camber, held_slip in steps:
         add(RAMP_S, ramp(previous_load, load), ramp(previous_camber, camber) if camber != previous_camber
-            else held(camber), zero)
+            else held(camber), zero, ramp(held_now, held_slip))
+        held_now = held_slip
 
         def settled_load(tau, load=load, offset=0.0):
             s = tau + offset  # time since the end of the ramp
@@ -372,9 +403,9 @@ def rig_program(steps: tuple[tuple[float, float], ...], sweep: str = "slip_angle
             lambda tau: triangle_sweep(tau, peak, rate))
         previous_load, previous_camber = load, camber
     add(RAMP_S, ramp(previous_load, PRELOAD_N),
-        ramp(previous_camber, 0.0) if previous_camber != 0.0 else held(0.0), zero)
+        ramp(previous_camber, 0.0) if previous_camber != 0.0 else held(0.0), zero, ramp(held_now, 0.0))
     return (np.concatenate(segments_t), np.concatenate(segments_fz), np.concatenate(segments_camber),
-            np.concatenate(segments_slip))
+            np.concatenate(segments_slip), np.concatenate(segments_held))
 
 
 def triangle_sweep(tau: np.ndarray, peak: float = SWEEP_MAX_DEG, rate: float = SWEEP_RATE_DEG_S) -> np.ndarray:
@@ -406,9 +437,12 @@ def simulate(run: DemoRun, rng: np.random.Generator) -> dict[str, np.ndarray]:
     lateral = run.sweep == "slip_angle"
     g = drift_factor(run)
     dpi = relative_pressure(run.pressure_kpa)
-    t_fine, fz_fine, camber_fine, slip_fine = rig_program(run.steps, run.sweep)
+    t_fine, fz_fine, camber_fine, slip_fine, held_fine = rig_program(run.steps, run.sweep)
     time_constant = RELAXATION_LENGTH_M / (SPEED_KMH / 3.6) if lateral else SLIP_RATIO_LAG_S
     slip_tire_fine = lagged(slip_fine, time_constant, 1.0 / SIM_RATE_HZ)
+    combined = bool(run.held_deg)
+    if combined:  # the held slip angle reaches the tire through the lateral relaxation lag
+        held_tire_fine = lagged(held_fine, RELAXATION_LENGTH_M / (SPEED_KMH / 3.6), 1.0 / SIM_RATE_HZ)
 
     step = int(round(SIM_RATE_HZ / (SAMPLE_RATE_HZ if lateral else SAMPLE_RATE_LONGITUDINAL_HZ)))
     t = t_fine[::step]
@@ -419,10 +453,16 @@ def simulate(run: DemoRun, rng: np.random.Generator) -> dict[str, np.ndarray]:
     slip_tire = slip_tire_fine[::step]
     n = t.size
 
+    fy_true = None
     if lateral:
         alpha = np.deg2rad(slip_tire)
         main_true = fy0(alpha, fz_true, p_fy, FZ0_N, gamma, dpi)
         mz_true = mz0(alpha, fz_true, spec.mz, p_fy, FZ0_N, R0_M, gamma, dpi)
+    elif combined:
+        alpha_held = np.deg2rad(held_tire_fine[::step])
+        main_true = fx_combined(slip_tire, alpha_held, fz_true, spec.fx, spec.fxc, FZ0_N, gamma, dpi)
+        fy_true = fy_combined(alpha_held, slip_tire, fz_true, p_fy, spec.fyc, FZ0_N, gamma, dpi)
+        mz_true = None
     else:
         main_true = fx0(slip_tire, fz_true, spec.fx, FZ0_N, gamma, dpi)
         mz_true = None
@@ -440,6 +480,8 @@ def simulate(run: DemoRun, rng: np.random.Generator) -> dict[str, np.ndarray]:
         ch["slip_angle"] = slip_cmd + rng.normal(0.0, NOISE_SLIP_DEG, n)
     else:
         ch["slip_ratio"] = slip_cmd + rng.normal(0.0, NOISE_SLIP_RATIO, n)
+    if combined:
+        ch["held_slip_angle"] = held_fine[::step] + rng.normal(0.0, NOISE_SLIP_DEG, n)
     ch["inclination"] = camber + rng.normal(0.0, NOISE_INCLINATION_DEG, n)
     ch["fz"] = fz_true * (1.0 + rng.normal(0.0, NOISE_FZ_FRACTION, n))
     if lateral:
@@ -447,6 +489,8 @@ def simulate(run: DemoRun, rng: np.random.Generator) -> dict[str, np.ndarray]:
         ch["mz"] = g * mz_true + rng.normal(0.0, NOISE_MZ_NM, n)
     else:
         ch["fx"] = main
+    if fy_true is not None:
+        ch["fy"] = g * fy_true + rng.normal(0.0, NOISE_FY_N, n)
     ch["speed"] = SPEED_KMH + rng.normal(0.0, NOISE_SPEED_KMH, n)
     ch["pressure"] = (run.pressure_kpa + PRESSURE_WARMUP_KPA * t / t[-1]
                       + rng.normal(0.0, NOISE_PRESSURE_KPA, n))
@@ -470,7 +514,19 @@ def write_harlow_ridge(path: Path, ch: dict[str, np.ndarray]) -> None:
     Longitudinal files carry the slip ratio in percent and Fx instead of slip angle, Fy and Mz.
     """
     flip = -1.0  # ISO 8855 -> SAE J670 for slip angle, Fy, Fz, Mz (Fx, slip ratio, inclination keep their sign)
-    if "slip_angle" in ch:
+    if "held_slip_angle" in ch:  # combined slip: a slip-ratio sweep at held slip angles
+        columns = [
+            ("ElapsedSec", _fmt(ch["time"], 3)),
+            ("SlipRatio_pct", _fmt(100.0 * ch["slip_ratio"], 2)),
+            ("SlipAng_deg", _fmt(flip * ch["held_slip_angle"], 3)),
+            ("InclAng_deg", _fmt(ch["inclination"], 3)),
+            ("Fz_lbf", _fmt(flip * ch["fz"] / LBF_N, 2)),
+            ("Fx_lbf", _fmt(ch["fx"] / LBF_N, 2)),
+            ("Fy_lbf", _fmt(flip * ch["fy"] / LBF_N, 2)),
+            ("Speed_mph", _fmt(ch["speed"] / MPH_KMH, 2)),
+            ("Infl_psi", _fmt(ch["pressure"] / PSI_KPA, 2)),
+        ]
+    elif "slip_angle" in ch:
         columns = [
             ("ElapsedSec", _fmt(ch["time"], 3)),
             ("SlipAng_deg", _fmt(flip * ch["slip_angle"], 3)),
@@ -738,6 +794,9 @@ def truth_document(spike_rows: dict[str, list[int]]) -> dict:
             }
         if spec.conicity_ply_steer is not None:
             entry["conicity_and_ply_steer"] = zero_slip_truth(spec)
+        if spec.fxc is not None and spec.fyc is not None:
+            entry["coefficients_fxc"] = complete("fxc", spec.fxc)
+            entry["coefficients_fyc"] = complete("fyc", spec.fyc)
         specimens[spec.id] = entry
     span_h = control_span_h()
     return {

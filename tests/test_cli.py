@@ -45,7 +45,7 @@ def test_bad_rig_file_exits_3_and_writes_nothing(tmp_path):
 def test_check_reports_the_demo_project_ok(capsys):
     assert main(["check", "demo_project"]) == EXIT_OK
     out = capsys.readouterr().out
-    assert "manifest and 18 rig file(s) OK" in out
+    assert "manifest and 19 rig file(s) OK" in out
     assert "rig/HR-4470_CTL-1_1000.csv: 413 samples" in out and ": sound" in out
     assert "test load is above the rated load of 6570 N" in out
 

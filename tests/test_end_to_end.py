@@ -255,8 +255,9 @@ def test_every_number_derives_from_the_rig_files_and_the_drift_from_the_control_
                 assert not found & control_files, ident
     assert all(kinds.values()), kinds
     corrections = [e for i, e in raw["entity"].items() if i.startswith("d:drift_corrected-")]
-    # every run on the control's rig (Harlow Ridge), its own repeats included: 18 runs less the 4 at Eisenau
-    assert len(corrections) == len(results["drift"]["corrections"]) == 14
+    # every run on the control's rig (Harlow Ridge), its own repeats and the combined-slip run included:
+    # 19 runs less the 4 at Eisenau
+    assert len(corrections) == len(results["drift"]["corrections"]) == 15
     assert {"d:recommendation", "d:narrative-summary-rendered"} <= raw["entity"].keys()
 
 

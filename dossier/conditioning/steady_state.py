@@ -31,7 +31,7 @@ Steps, each recorded in the run's :class:`ConditioningAccount`:
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import cast
 
 import numpy as np
@@ -62,6 +62,7 @@ REASONS = (
 SOUND, WITH_FINDINGS, UNUSABLE = "sound", "usable with findings", "unusable"
 NOTE, FINDING, BLOCKING = "note", "finding", "unusable"
 
+HELD_RATIO_TOLERANCE = 0.005  # a held slip ratio within ±0.005 of its set-point (common practice)
 MIN_SLIP_RATIO_RANGE = 0.10  # a longitudinal sweep narrower than ±0.10 misses the peak (common practice)
 DETECT_MIN_SHARE = 0.03  # a detected level holds at least 3 % of the samples
 OVERVIEW_POINTS = 4000  # samples kept for the time-history figure
@@ -237,10 +238,19 @@ class OperatingPoint:
     force_scale: float = 1.0  # drift correction applied to forces and moments (1 = none)
     holds: tuple[SlipHold, ...] = ()  # the force settling after each stop of the sweep
     lag_samples: LagSamples | None = None  # both halves near zero slip, for the relaxation length
+    # Combined slip: the other slip held during the sweep (slip angle in deg for a slip-ratio sweep,
+    # slip ratio for a slip-angle sweep), its set-point and its measured mean; None: pure slip.
+    held_slip: float | None = None
+    held_slip_mean: float | None = None
 
     @property
-    def key(self) -> tuple[int, float, float, float]:
-        return (self.run_index, self.load_n, self.camber_deg, self.pressure_kpa)
+    def combined(self) -> bool:
+        return self.held_slip is not None
+
+    @property
+    def key(self) -> tuple:
+        base = (self.run_index, self.load_n, self.camber_deg, self.pressure_kpa)
+        return base if self.held_slip is None else (*base, self.held_slip)
 
     def at_condition(self, camber_deg: float, pressure_kpa: float) -> bool:
         """True at this camber (to 0.01°) and pressure (to 1 kPa): how conditions are told apart."""
@@ -318,7 +328,14 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
     )
     load_idx, load_ok = _assign(fz, loads, settings.load_tolerance_pct / 100.0 * loads)
     camber_idx, camber_ok = _assign(incl, cambers, np.full(cambers.size, settings.camber_tolerance_deg))
-    in_band = load_ok & camber_ok
+    # Combined slip: the other slip's set-points are a third level (None: one level, pure slip).
+    held_name = spec.held_channel
+    helds = np.asarray(spec.held_setpoints or (0.0,), dtype=float)
+    held_idx, held_ok = np.zeros(n, dtype=int), np.ones(n, dtype=bool)
+    if held_name is not None:
+        tolerance = settings.camber_tolerance_deg if held_name == "slip_angle" else HELD_RATIO_TOLERANCE
+        held_idx, held_ok = _assign(ch[held_name], helds, np.full(helds.size, tolerance))
+    in_band = load_ok & camber_ok & held_ok
     if spec.load_setpoints_n:
         unmatched = _unmatched_levels(fz[~in_band], loads, settings.load_tolerance_pct, n)
         for level, count in unmatched:
@@ -344,7 +361,7 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
         )
 
     # 2. settling at the start of every stay
-    label = np.where(in_band, load_idx * cambers.size + camber_idx, -1)
+    label = np.where(in_band, (load_idx * cambers.size + camber_idx) * helds.size + held_idx, -1)
     starts = np.flatnonzero(np.r_[True, label[1:] != label[:-1]])
     ends = np.r_[starts[1:], n]
     keep = np.zeros(n, dtype=bool)
@@ -381,23 +398,28 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
     points = []
     for li, load in enumerate(loads):
         for ci, camber in enumerate(cambers):
-            sel = keep & (load_idx == li) & (camber_idx == ci)
-            if not np.any(sel):
-                if spec.load_setpoints_n and ci == 0:
-                    run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
-                continue
-            at_point = (load_idx == li) & (camber_idx == ci)
-            point, drops = _operating_point(
-                run, sel, direction, float(load), float(camber), bin_width, settings, rated_load_n, slip_noise_sd**2
-            )
-            if point is not None:
-                point = _with_relaxation_data(
-                    point, run, sel, hold_candidates & at_point, direction, slip_rate, bin_width, settings
+            for hi, held in enumerate(helds):
+                at_point = (load_idx == li) & (camber_idx == ci) & (held_idx == hi)
+                sel = keep & at_point
+                if not np.any(sel):
+                    if spec.load_setpoints_n and ci == 0 and hi == 0:
+                        run_findings.append(Finding(FINDING, f"set-point {load:.0f} N: no settled samples found"))
+                    elif held_name is not None:
+                        run_findings.append(Finding(FINDING, _no_held_samples(held_name, float(held), float(load))))
+                    continue
+                point, drops = _operating_point(
+                    run, sel, direction, float(load), float(camber), bin_width, settings, rated_load_n, slip_noise_sd**2
                 )
-            for reason, count in drops.items():
-                dropped[reason] += count
-            if point is not None:
-                points.append(point)
+                if point is not None and held_name is not None:
+                    point = replace(point, held_slip=float(held), held_slip_mean=float(np.mean(ch[held_name][sel])))
+                if point is not None:
+                    point = _with_relaxation_data(
+                        point, run, sel, hold_candidates & at_point, direction, slip_rate, bin_width, settings
+                    )
+                for reason, count in drops.items():
+                    dropped[reason] += count
+                if point is not None:
+                    points.append(point)
 
     # Rows the reader did not keep as samples (empty, or beyond any rig's range) are counted here
     # too, each reason with the lines it was found on: a reviewer sees every row of the file.
@@ -439,6 +461,11 @@ def condition_run(run: RigRun, settings: ConditioningSettings, rated_load_n: flo
 
 
 # --- operating points ------------------------------------------------------------------------
+
+
+def _no_held_samples(held_name: str, held: float, load: float) -> str:
+    what = f"slip angle {held:g}°" if held_name == "slip_angle" else f"slip ratio {held:g}"
+    return f"held {what} at {load:.0f} N: no settled samples found"
 
 
 def _operating_point(run: RigRun, sel, direction, load, camber, bin_width, settings, rated_load_n, x_noise_var):

@@ -20,7 +20,7 @@ from ..conditioning.drift import DriftEstimate
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
 from ..document.artifacts import FigureArtifact
 from ..metrics.evaluate import COMPUTE, MetricValue
-from ..model.fit import ChannelFit
+from ..model.fit import CHANNEL_SYMBOL, ChannelFit
 from ..project.catalogue import METRICS, STIFFNESS_METRICS
 
 matplotlib.use("Agg")
@@ -94,8 +94,16 @@ _AXIS = {
     "fy": ("Slip angle α [deg] (ISO 8855)", "Lateral force Fy [N]"),
     "mz": ("Slip angle α [deg] (ISO 8855)", "Aligning moment Mz [N·m]"),
     "fx": ("Slip ratio κ [1]", "Longitudinal force Fx [N]"),
+    "fxc": ("Slip ratio κ [1]", "Longitudinal force Fx [N]"),
+    "fyc": ("Slip ratio κ [1]", "Lateral force Fy [N]"),
 }
-_WORD = {"fy": "lateral force", "mz": "aligning moment", "fx": "longitudinal force"}
+_WORD = {
+    "fy": "lateral force",
+    "mz": "aligning moment",
+    "fx": "longitudinal force",
+    "fxc": "longitudinal force under combined slip",
+    "fyc": "lateral force under combined slip",
+}
 
 
 DASHES = ("-", "--", "-.", ":")
@@ -147,7 +155,7 @@ def channel_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) 
         f"{fit.channel}-{slug(fit.specimen)}.svg",
         f"Measured and fitted {_WORD[fit.channel]}, {fit.specimen}",
         ("Dots: kept rig samples (thinned); " if fit.channel != "mz" else "")
-        + f"circles: conditioned steady-state bins; lines: the fitted Magic Formula {fit.channel.upper()}0 "
+        + f"circles: conditioned steady-state bins; lines: the fitted Magic Formula {CHANNEL_SYMBOL[fit.channel]} "
         "at the nominal condition.",
         f"Chart of {_WORD[fit.channel]} against {xlabel.split(' [')[0].lower()} for specimen {fit.specimen} "
         f"at loads {loads_txt} kN, measured points and fitted curves.",
@@ -191,6 +199,101 @@ def conditions_figure(fit: ChannelFit, points: list[OperatingPoint], style: byte
     )
 
 
+def _held_label(p: OperatingPoint) -> str:
+    return f"α {p.held_slip:+g}°" if p.sweep == "slip_ratio" else f"κ {p.held_slip:+g}"
+
+
+def combined_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes) -> FigureArtifact:
+    """Combined slip: measured and fitted force against slip ratio at each held slip angle (or
+    against slip angle at each held slip ratio), with the pure-slip curve it weights."""
+    pts = sorted(points, key=lambda q: (q.load_n, q.held_slip or 0.0))
+    xlabel, ylabel = _AXIS[fit.channel]
+    lateral = fit.channel == "fyc"
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for i, p in enumerate(pts):
+            c, line, mark = _distinct(i, colors)
+            y = p.curve.fy_n if lateral else p.curve.fx_n
+            held = np.full(p.curve.n_points, p.held_slip_mean or 0.0)
+            kappa, alpha = (p.curve.x, held) if p.sweep == "slip_ratio" else (held, p.curve.x)
+            ax.plot(kappa, y, mark, ms=2.8, mfc="none", color=c, rasterized=True)
+            if p.sweep == "slip_ratio":
+                grid = np.linspace(float(kappa.min()), float(kappa.max()), 201)
+                other = np.full(grid.size, p.held_slip_mean or 0.0)
+                ax.plot(
+                    grid,
+                    fit.predict(grid, p.mean_load_n, other=other),
+                    line,
+                    lw=1.3,
+                    color=c,
+                    label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
+                )
+            else:
+                order = np.argsort(alpha)
+                ax.plot(
+                    kappa[order],
+                    fit.predict(kappa[order], p.mean_load_n, other=alpha[order]),
+                    line,
+                    lw=1.3,
+                    color=c,
+                    label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
+                )
+        _origin_axes(ax, xlabel, ylabel)
+        ax.legend(fontsize="x-small")
+        ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}")
+
+    return FigureArtifact(
+        f"{fit.channel}-{slug(fit.specimen)}.svg",
+        f"Measured and fitted {_WORD[fit.channel]}, {fit.specimen}",
+        "Circles: conditioned steady-state bins of the combined-slip runs; lines: the fitted weighting "
+        f"({CHANNEL_SYMBOL[fit.channel]}) times the pure-slip model, at each held slip.",
+        f"Chart of {_WORD[fit.channel]} against slip ratio for specimen {fit.specimen} at {len(pts)} held slips, "
+        "measured points and fitted curves.",
+        _render(style, draw),
+    )
+
+
+def friction_ellipse_figure(model, points: list[OperatingPoint], style: bytes) -> FigureArtifact:
+    """Fx against Fy at each held slip angle: the combined-slip envelope (the friction ellipse), measured
+    and from the fitted weighting of both forces."""
+    fxc, fyc = model.fxc, model.fyc
+    pts = sorted((p for p in points if p.sweep == "slip_ratio"), key=lambda q: (q.load_n, q.held_slip or 0.0))
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        ax.set_aspect("equal", adjustable="datalim")
+        colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
+        for i, p in enumerate(pts):
+            c, line, mark = _distinct(i, colors)
+            if p.curve.fx_n is not None and p.curve.fy_n is not None:
+                ax.plot(p.curve.fy_n, p.curve.fx_n, mark, ms=2.8, mfc="none", color=c, rasterized=True)
+            grid = np.linspace(float(p.curve.x.min()), float(p.curve.x.max()), 201)
+            other = np.full(grid.size, p.held_slip_mean or 0.0)
+            ax.plot(
+                fyc.predict(grid, p.mean_load_n, other=other),
+                fxc.predict(grid, p.mean_load_n, other=other),
+                line,
+                lw=1.3,
+                color=c,
+                label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
+            )
+        _origin_axes(ax, "Lateral force Fy [N] (ISO 8855)", "Longitudinal force Fx [N]")
+        ax.legend(fontsize="x-small", title="Constant slip angle", title_fontsize="x-small")
+        ax.set_title(f"{model.specimen}: longitudinal against lateral force at constant slip angle")
+
+    return FigureArtifact(
+        f"fxc-ellipse-{slug(model.specimen)}.svg",
+        f"Friction ellipse, {model.specimen}",
+        "Each curve: one held slip angle, traced by the slip-ratio sweep from braking (Fx < 0) to driving (Fx > 0); "
+        "circles: conditioned bins; lines: the fitted combined-slip models of Fx and Fy. Equal scales on both axes.",
+        f"Chart of longitudinal against lateral force of specimen {model.specimen} at {len(pts)} held slip angles, "
+        "measured and fitted.",
+        _render(style, draw, size=(7.0, 5.0)),
+    )
+
+
 def residual_figure(fit: ChannelFit, style: bytes) -> FigureArtifact:
     """Residuals (measured − fitted) against slip and against load."""
     xlabel, ylabel = _AXIS[fit.channel]
@@ -209,9 +312,9 @@ def residual_figure(fit: ChannelFit, style: bytes) -> FigureArtifact:
         ax2.plot(loads + jitter, res, ".", ms=2.5, color=colors[1], rasterized=True)
         ax2.axhline(0, lw=0.6, color="0.4")
         ax2.set_xlabel("Nominal load [kN]")
+        symbol = CHANNEL_SYMBOL[fit.channel]
         fig.suptitle(
-            f"{fit.specimen}: residuals of the {fit.channel.upper()}0 fit (RMSE {fit.statistics.rmse:.3g} {unit})",
-            fontsize="medium",
+            f"{fit.specimen}: residuals of the {symbol} fit (RMSE {fit.statistics.rmse:.3g} {unit})", fontsize="medium"
         )
 
     return FigureArtifact(

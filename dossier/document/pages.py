@@ -15,9 +15,10 @@ import jinja2
 from ..common.errors import StageError
 from ..conditioning import estimates
 from ..conditioning.relaxation import TRAVEL_LAGS
+from ..conditioning.steady_state import HELD_RATIO_TOLERANCE
 from ..metrics.budget import LABELS as BUDGET_LABELS
 from ..metrics.budget import ORDER as BUDGET_ORDER
-from ..model.fit import CHANNEL_LABEL, CHANNEL_UNIT, MODEL_NAME
+from ..model.fit import CHANNEL_LABEL, CHANNEL_SYMBOL, CHANNEL_UNIT, MODEL_NAME
 from ..project.catalogue import METRICS, MIN_PRESSURE_SPAN_KPA
 from ..project.manifest import LAB_DEFAULTS
 from .cautions import CAUTIONS_ID
@@ -66,6 +67,7 @@ def make_environment(
     env.globals.update(
         options=theme.options,
         channel_label=CHANNEL_LABEL,
+        channel_symbol=CHANNEL_SYMBOL,
         channel_unit=CHANNEL_UNIT,
         model_name=MODEL_NAME,
         volume=None,
@@ -79,6 +81,7 @@ def make_environment(
             "lab_defaults": LAB_DEFAULTS,
             "min_pressure_span_kpa": MIN_PRESSURE_SPAN_KPA,
             "travel_lags": TRAVEL_LAGS,
+            "held_ratio_tolerance": HELD_RATIO_TOLERANCE,
         },
         budget_labels=BUDGET_LABELS,
     )

@@ -159,6 +159,7 @@ class Evaluation:
     standings: tuple
     recommendation: tuple
     fitments: tuple
+    combined_points: tuple = ()  # the combined-slip operating points, drift-corrected like the rest
 
 
 def _radius_or_none(manifest, specimen_id: str) -> float | None:
@@ -176,7 +177,9 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     cache = cache or Cache(None)
     pool = pool or WorkerPool(1)
     conditioned = check(project, cache)
-    measured = [p for c in conditioned for p in c.points]
+    every_point = [p for c in conditioned for p in c.points]
+    measured = [p for p in every_point if not p.combined]  # pure slip: every stage but the combined-slip fits
+    combined = [p for p in every_point if p.combined]
     detected = [float(v) for c in conditioned if c.account.levels_detected for v in c.account.load_levels_n]
     fz0_n = nominal_load_n(manifest, detected)
     stations = {r.index: r.station for r in manifest.runs}
@@ -184,16 +187,19 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     points = measured
     if manifest.drift and manifest.drift.correct:
         applied = []
+        every = measured + combined
         for line in drifts:  # each rig's line corrects that rig's runs only
-            points, line = correct_points(points, line, stations)
+            every, line = correct_points(every, line, stations)
             applied.append(line)
         drifts = tuple(applied)
+        points, combined = [p for p in every if not p.combined], [p for p in every if p.combined]
     drift: DriftEstimate | None = (
         drifts[0] if drifts else None
     )  # results.json and the comparison page quote the first line; the data-quality page shows every one
     offset_splits = split_offsets(points)
     p0_kpa = nominal_pressure_kpa(manifest)
-    models, every = fit_specimens(points, manifest, fz0_n, cache=cache, pool=pool)  # each at its own condition
+    # each at its own condition; the combined-slip fits on top of the pure-slip ones
+    models, every = fit_specimens(points + combined, manifest, fz0_n, cache=cache, pool=pool)
     corrected = bool(manifest.drift and manifest.drift.correct)
     every = attach_budgets(
         every, points, BudgetInputs(stations, {d.station: d for d in drifts}, corrected, manifest.lab)
@@ -226,6 +232,7 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
         tuple(standings),
         recommendation,
         tuple(fitments),
+        tuple(combined),
     )
 
 
@@ -241,7 +248,17 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
 
     style = theme.figure_style
     tasks = figure_tasks(
-        models, points, conditioned, metrics, e.drifts, standings, fitments, manifest, fz0_n, p0_kpa, style
+        models,
+        points + list(e.combined_points),
+        conditioned,
+        metrics,
+        e.drifts,
+        standings,
+        fitments,
+        manifest,
+        fz0_n,
+        p0_kpa,
+        style,
     )
     rendered = cache.get_or_compute(
         digest("figures", [(place, name, args[:-1]) for place, name, args in tasks], style),

@@ -10,13 +10,19 @@ from .workers import WorkerPool
 def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitments, manifest, fz0_n, p0_kpa, style):
     """Every figure of the dossier as (place, function name, arguments): independent jobs."""
     tasks = []
+    pure = [p for p in points if not p.combined]  # the comparison charts are of pure slip
     for m in models:
         for fit in m.channels:
             own = points_of(fit, points)
-            tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
-            other = [p for p in own if not p.at_condition(fit.camber_deg, fit.pressure_kpa)]
-            if other:
-                tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
+            if fit.combined:
+                tasks.append((("specimen", m.specimen), "combined_figure", (fit, own, style)))
+                if fit.channel == "fxc" and m.fyc is not None:
+                    tasks.append((("specimen", m.specimen), "friction_ellipse_figure", (m, own, style)))
+            else:
+                tasks.append((("specimen", m.specimen), "channel_figure", (fit, own, style)))
+                other = [p for p in own if not p.at_condition(fit.camber_deg, fit.pressure_kpa)]
+                if other:
+                    tasks.append((("specimen", m.specimen), "conditions_figure", (fit, other, style)))
             tasks.append((("specimen", m.specimen), "residual_figure", (fit, style)))
     if models and any(m.metric in STIFFNESS_METRICS for m in metrics):
         tasks.append((("summary",), "stiffness_load_figure", (models, metrics, style)))
@@ -41,9 +47,9 @@ def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitmen
     for i, line in enumerate(drifts):  # one chart per rig that had a control line
         tasks.append((("drift",), "drift_figure", (line, style, i)))
     if models:
-        tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "fy", fz0_n, p0_kpa, style)))
+        tasks.append((("comparison", "comparison"), "overlay_figure", (models, pure, "fy", fz0_n, p0_kpa, style)))
         if any(m.mz for m in models):
-            tasks.append((("comparison", "comparison"), "overlay_figure", (models, points, "mz", fz0_n, p0_kpa, style)))
+            tasks.append((("comparison", "comparison"), "overlay_figure", (models, pure, "mz", fz0_n, p0_kpa, style)))
             tasks.append((("comparison", "comparison"), "gough_figure", (models, fz0_n, style)))
     if any(s.differences for s in standings):  # no chart with nothing to show
         tasks.append((("comparison", "comparison"), "difference_figure", (standings, style)))

@@ -7,11 +7,11 @@ only that run's specimen; jobs missing from the cache run in the pool's workers.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..conditioning.steady_state import OperatingPoint, same_condition
 from ..metrics.evaluate import MetricValue, metric_values, specimen_metrics
-from ..model.fit import ChannelFit, SpecimenModel, fit_channel, leave_one_load_out
+from ..model.fit import ChannelFit, SpecimenModel, fit_channel, leave_one_load_out, with_base_uncertainty
 from ..project.conditions import specimen_camber_deg, specimen_pressure_kpa, unloaded_radius_m
 from ..project.manifest import FitSettings, Manifest, MetricSettings
 from .cache import MISSING, Cache, digest, with_content_key
@@ -58,10 +58,11 @@ def fit_specimens(
     jobs = []
     for s in manifest.specimens:
         own = tuple(p for p in points if p.specimen == s.id)
-        has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in own)
+        pure = [p for p in own if not p.combined]
+        has_mz = any(p.sweep == "slip_angle" and p.curve.mz_nm is not None for p in pure)
         r0 = unloaded_radius_m(manifest, s.id) if has_mz else None
         own_p0 = specimen_pressure_kpa(manifest, s.id) if p0_kpa is None else p0_kpa
-        camber0 = specimen_camber_deg(manifest, s.id, [p.camber_deg for p in own])
+        camber0 = specimen_camber_deg(manifest, s.id, [p.camber_deg for p in pure])
         at_nominal, elsewhere = [], []
         for t in manifest.targets:
             if t.specimens and s.id not in t.specimens:
@@ -92,7 +93,7 @@ def fit_specimens(
             key,
             (
                 model.at(camber, pressure),
-                tuple(p for p in job.points if p.load_n == load),
+                tuple(p for p in job.points if p.load_n == load and not p.combined),
                 job.metric_settings,
                 load,
                 kind == "measured",
@@ -131,10 +132,11 @@ def split_nominal(
 
 def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
     settings, fz0_n, p0 = job.fit_settings, job.fz0_n, job.p0_kpa
-    forward = [p for p in job.points if p.rolling_direction == "forward"]
+    forward = [p for p in job.points if p.rolling_direction == "forward" and not p.combined]
     lateral = [p for p in forward if p.sweep == "slip_angle" and p.curve.fy_n is not None]
     longitudinal = [p for p in forward if p.sweep == "slip_ratio" and p.curve.fx_n is not None]
-    fy = mz = fx = None
+    combined = [p for p in job.points if p.rolling_direction == "forward" and p.combined]
+    fy = mz = fx = fxc = fyc = None
     if lateral:
         fy = _with_load_out(fit_channel(lateral, "fy", settings, fz0_n, p0), lateral, settings)
         with_mz = [p for p in lateral if p.curve.mz_nm is not None]
@@ -142,7 +144,25 @@ def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
             mz = _with_load_out(fit_channel(with_mz, "mz", settings, fz0_n, p0, job.r0_m, fy.values), with_mz, settings)
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
-    return SpecimenModel(job.specimen, fy, mz, fx).at(job.camber0_deg, p0) if (fy or fx) else None
+    # Combined slip weights the pure-slip models, so it needs both: Fx0 and Fy0 as fitted.
+    with_fx = [p for p in combined if p.curve.fx_n is not None]
+    with_fy = [p for p in combined if p.curve.fy_n is not None]
+    if fx is not None and fy is not None and with_fx:
+        fxc = with_base_uncertainty(fit_channel(with_fx, "fxc", settings, fz0_n, p0, fy_values=fx.values), fx, with_fx)
+    if fx is not None and fy is not None and with_fy:
+        fyc = with_base_uncertainty(fit_channel(with_fy, "fyc", settings, fz0_n, p0, fy_values=fy.values), fy, with_fy)
+    if not (fy or fx):
+        return None
+    if combined and not (fx and fy):
+        missing = "Fx0" if fx is None else "Fy0"
+        why = (
+            f"combined-slip runs not evaluated: they weight the pure-slip Fx0 and Fy0 fits, and no {missing} was fitted"
+        )
+        if fy is not None:
+            fy = replace(fy, warnings=(*fy.warnings, why))
+        if fx is not None:
+            fx = replace(fx, warnings=(*fx.warnings, why))
+    return SpecimenModel(job.specimen, fy, mz, fx, fxc, fyc).at(job.camber0_deg, p0)
 
 
 def _with_load_out(fit: ChannelFit, points, settings) -> ChannelFit:
@@ -157,6 +177,8 @@ def metric_conditions(model: SpecimenModel, job: SpecimenJob) -> list[tuple[floa
     camber0, p0 = job.camber0_deg, job.p0_kpa
     measured: dict[tuple[float, float], tuple[tuple[float, float], set[float]]] = {}
     for fit in model.channels:
+        if fit.combined:  # the metrics come from the pure-slip fits
+            continue
         for p in points_of(fit, list(job.points)):
             key = (round(p.camber_deg, 2), float(round(p.pressure_kpa)))
             measured.setdefault(key, (p.condition, set()))[1].add(p.load_n)

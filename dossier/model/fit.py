@@ -1,4 +1,5 @@
-"""Fit: the Magic Formula pure-slip models (Fy0, Mz0, Fx0) of one specimen, with honest uncertainty.
+"""Fit: the Magic Formula pure-slip models (Fy0, Mz0, Fx0) of one specimen, with honest uncertainty;
+and, where the specimen was run under combined slip, the combined-slip weighting of Fx and Fy on top.
 
 Strategy (common practice, see DEVELOPERS.md):
 
@@ -13,6 +14,9 @@ Strategy (common practice, see DEVELOPERS.md):
    Jacobian and the residual variance, and mark every coefficient that is at a bound, held at
    its default because the data cannot identify it, or strongly correlated with another;
 5. optionally, leave each load out in turn, refit, and predict it (how the model interpolates).
+
+Combined slip ("fxc", "fyc"): the weighting functions of Pacejka 2006, §4.3.2, fitted by the same
+global fit to the combined-slip points with the specimen's pure-slip Fx0 or Fy0 held as fitted.
 """
 
 from __future__ import annotations
@@ -28,9 +32,22 @@ from ..project.manifest import FitSettings
 from ..standards.coverage import coverage_factor
 
 STRONG_CORRELATION = 0.95
-CHANNEL_LABEL = {"fy": "lateral force Fy0", "mz": "aligning moment Mz0", "fx": "longitudinal force Fx0"}
-CHANNEL_UNIT = {"fy": "N", "mz": "N·m", "fx": "N"}
-MODEL_NAME = {c: f"Magic Formula 2002 pure-slip {CHANNEL_LABEL[c]}" for c in CHANNEL_LABEL}
+CHANNEL_LABEL = {
+    "fy": "lateral force Fy0",
+    "mz": "aligning moment Mz0",
+    "fx": "longitudinal force Fx0",
+    "fxc": "longitudinal force Fx under combined slip",
+    "fyc": "lateral force Fy under combined slip",
+}
+CHANNEL_SYMBOL = {"fy": "Fy0", "mz": "Mz0", "fx": "Fx0", "fxc": "Fx (combined)", "fyc": "Fy (combined)"}
+CHANNEL_UNIT = {"fy": "N", "mz": "N·m", "fx": "N", "fxc": "N", "fyc": "N"}
+COMBINED = ("fxc", "fyc")
+BASE_CHANNEL = {"fxc": "fx", "fyc": "fy"}  # the pure-slip fit a combined-slip fit weights
+MODEL_NAME = {
+    **{c: f"Magic Formula 2002 pure-slip {CHANNEL_LABEL[c]}" for c in ("fy", "mz", "fx")},
+    "fxc": "Magic Formula 2002 combined slip: Fx = Gxα·Fx0",
+    "fyc": "Magic Formula 2002 combined slip: Fy = Gyκ·Fy0 + SVyκ",
+}
 TOLERANCE = 1e-10  # ftol = xtol = gtol of the global fits
 
 
@@ -123,6 +140,9 @@ class FitData:
 
     load_n: np.ndarray  # nominal load of the sample's operating point
     keys: tuple[tuple, ...]
+    # Combined slip: x is the slip ratio and this the slip angle (deg) of every sample; None otherwise.
+    other_slip: np.ndarray | None = None
+    held_levels: np.ndarray | None = None  # the held slip level of each sample (combined slip)
 
 
 @dataclass(frozen=True)
@@ -134,7 +154,7 @@ class ChannelFit:
     fz0_n: float
     p0_kpa: float
     r0_m: float
-    fy_values: dict | None  # the lateral coefficients an Mz0 fit was made with
+    fy_values: dict | None  # the pure-slip coefficients an Mz0 (lateral) or combined-slip fit was made with
     settings: tuple[CoefficientSetting, ...]
     coefficients: tuple[CoefficientEstimate, ...]
     fitted_names: tuple[str, ...]
@@ -143,7 +163,7 @@ class ChannelFit:
     statistics: FitStatistics
     point_fits: tuple[PointFit, ...]
     load_range_n: tuple[float, float]
-    slip_range: tuple[float, float]  # deg for fy/mz, 1 for fx
+    slip_range: tuple[float, float]  # deg for fy/mz, 1 for fx and the combined-slip fits
     camber_range_deg: tuple[float, float]
     pressure_range_kpa: tuple[float, float]
     t95: float
@@ -157,6 +177,7 @@ class ChannelFit:
     # specimen's nominal camber and pressure, or another tested condition (see `at`).
     at_camber_deg: float = 0.0
     at_pressure_kpa: float | None = None  # None: p0
+    other_slip_range: tuple[float, float] | None = None  # combined slip: the slip angles, deg
 
     @property
     def values(self) -> dict[str, float]:
@@ -174,9 +195,14 @@ class ChannelFit:
         """The same fit, read at another camber and pressure by default (the coefficients are shared)."""
         return replace(self, at_camber_deg=float(camber_deg), at_pressure_kpa=float(pressure_kpa))
 
-    def predict(self, x, load_n, camber_deg=None, pressure_kpa=None, values: dict | None = None):
-        """Return the model at slip `x` (deg, or slip ratio for fx), load (N), camber (deg), pressure
-        (kPa); camber and pressure not given: the condition the fit is read at."""
+    @property
+    def combined(self) -> bool:
+        return self.channel in COMBINED
+
+    def predict(self, x, load_n, camber_deg=None, pressure_kpa=None, values: dict | None = None, other=None):
+        """Return the model at slip `x` (deg, or slip ratio for fx and combined slip), load (N), camber
+        (deg), pressure (kPa) and, under combined slip, slip angle `other` (deg); camber and pressure not
+        given: the condition the fit is read at."""
         p = self.pressure_kpa if pressure_kpa is None else pressure_kpa
         return _model(
             self.channel,
@@ -188,6 +214,7 @@ class ChannelFit:
             self.fz0_n,
             self.r0_m,
             self.fy_values,
+            other,
         )
 
     def strongly_correlated_pairs(self) -> list[tuple[str, str, float]]:
@@ -201,8 +228,12 @@ class ChannelFit:
         return out
 
 
-def _model(channel, x, fz, gamma_deg, dpi, values, fz0_n, r0_m, fy_values):
+def _model(channel, x, fz, gamma_deg, dpi, values, fz0_n, r0_m, fy_values, other=None):
     g = np.asarray(gamma_deg, float) * mf.DEG
+    if channel == "fxc":
+        return mf.fx_combined(x, np.asarray(other, float) * mf.DEG, fz, fy_values, values, fz0_n, g, dpi)
+    if channel == "fyc":
+        return mf.fy_combined(np.asarray(other, float) * mf.DEG, x, fz, fy_values, values, fz0_n, g, dpi)
     if channel == "fy":
         return mf.fy0(x * mf.DEG, fz, values, fz0_n, g, dpi)
     if channel == "mz":
@@ -214,14 +245,23 @@ def _model(channel, x, fz, gamma_deg, dpi, values, fz0_n, r0_m, fy_values):
 
 
 def fit_data(points: list[OperatingPoint], channel: str) -> FitData:
-    """Stack the conditioned curves of `points` for one channel, weighting each point by its noise."""
-    xs, fzs, gs, ps, ys, ws, ls = [], [], [], [], [], [], []
+    """Stack the conditioned curves of `points` for one channel, weighting each point by its noise.
+
+    Combined slip: x is the slip ratio and `other_slip` the slip angle in deg, whichever was swept."""
+    xs, fzs, gs, ps, ys, ws, ls, others, held = [], [], [], [], [], [], [], [], []
     for p in points:
         c = p.curve
-        y = {"fy": c.fy_n, "mz": c.mz_nm, "fx": c.fx_n}[channel]
+        y = {"fy": c.fy_n, "mz": c.mz_nm, "fx": c.fx_n, "fxc": c.fx_n, "fyc": c.fy_n}[channel]
         if y is None:
             continue
-        xs.append(c.x)
+        if channel in COMBINED:
+            fixed = np.full(c.n_points, p.held_slip_mean if p.held_slip_mean is not None else np.nan)
+            kappa, alpha = (c.x, fixed) if p.sweep == "slip_ratio" else (fixed, c.x)
+            xs.append(kappa)
+            others.append(alpha)
+            held.append(np.full(c.n_points, p.held_slip if p.held_slip is not None else np.nan))
+        else:
+            xs.append(c.x)
         fzs.append(c.fz_n)
         gs.append(np.full(c.n_points, p.camber_deg))
         ps.append(np.full(c.n_points, p.pressure_kpa))
@@ -240,6 +280,8 @@ def fit_data(points: list[OperatingPoint], channel: str) -> FitData:
         np.concatenate(ws),
         np.concatenate(ls),
         tuple(p.key for p in points),
+        np.concatenate(others) if others else None,
+        np.concatenate(held) if held else None,
     )
 
 
@@ -350,7 +392,16 @@ def _solve(
 
     def model(q):
         return _model(
-            channel, data.x, data.fz_n, data.gamma_deg, dpi, {**fixed, **dict(zip(names, q))}, fz0_n, r0_m, fy_values
+            channel,
+            data.x,
+            data.fz_n,
+            data.gamma_deg,
+            dpi,
+            {**fixed, **dict(zip(names, q))},
+            fz0_n,
+            r0_m,
+            fy_values,
+            data.other_slip,
         )
 
     def resid(q):
@@ -510,6 +561,9 @@ def _solve(
         _frozen(data.x),
         _frozen(data.load_n),
         _frozen(plain),
+        other_slip_range=None
+        if data.other_slip is None
+        else (float(data.other_slip.min()), float(data.other_slip.max())),
     )
     warnings = []
     for e in estimates:
@@ -587,12 +641,15 @@ def _counts(data: FitData) -> dict[str, int]:
     def loads_with_two(values):
         return sum(1 for L in set(load.tolist()) if len(set(values[load == L].tolist())) >= 2)
 
+    held = set() if data.held_levels is None else set(np.round(data.held_levels, 4).tolist()) - {0.0}
     return {
         "loads": len(set(load.tolist())),
         "camber": len(set(camber.tolist())),
         "pressure": len(set(pressure.tolist())),
         "camber_loads": loads_with_two(camber),
         "pressure_loads": loads_with_two(pressure),
+        "held": len(held),
+        "held_signs": int(any(v > 0 for v in held) and any(v < 0 for v in held)),
     }
 
 
@@ -606,6 +663,8 @@ def _identified(needs: str, counts: dict[str, int]) -> bool:
         "pressure": counts["pressure"] >= 2,
         "pressure3": counts["pressure"] >= 3,
         "pressure_loads": counts["pressure_loads"] >= 2,
+        "held_signs": counts["held_signs"] >= 1,
+        "held3": counts["held"] >= 3,
     }[needs]
 
 
@@ -617,6 +676,8 @@ HOLD_REASON = {
     "pressure": "held at default: pressure dependence needs two or more pressures",
     "pressure3": "held at default: a quadratic pressure term needs three or more pressures",
     "pressure_loads": "held at default: pressure-with-load dependence needs two pressures at two or more loads",
+    "held_signs": "held at default: an asymmetry needs held slips of both signs",
+    "held3": "held at default: this dependence needs three or more held slips besides zero",
 }
 
 
@@ -711,6 +772,8 @@ _HOLD_FIRST = {
     "camber": 2,
     "loads3": 3,
     "loads": 4,
+    "held3": 2,
+    "held_signs": 3,
     "": 5,
 }
 
@@ -778,6 +841,53 @@ def _covariance(resid, x, r, dof, at_bound):
     return cov, note
 
 
+def with_base_uncertainty(fit: ChannelFit, base: ChannelFit, points: list[OperatingPoint]) -> ChannelFit:
+    """Return a combined-slip fit whose covariance also carries the uncertainty of the pure-slip fit
+    it weights: the fit's own s²(JᵀJ)⁻¹ plus A·Σ_base·Aᵀ, where A = −(J_rᵀJ_r)⁻¹J_rᵀJ_p is how the
+    weighting coefficients r move when the pure-slip coefficients p move (first order, from the
+    normal equations at the solution; GUM 5.1.2 law of propagation)."""
+    data = fit_data(points, fit.channel)
+    dpi = (data.pressure_kpa - fit.p0_kpa) / fit.p0_kpa
+    names = list(fit.fitted_names)
+    base_names = [n for i, n in enumerate(base.fitted_names) if np.isfinite(base.covariance[i, i])]
+    if not names or not base_names:
+        return fit
+    keep = [base.fitted_names.index(n) for n in base_names]
+    cov_p = base.covariance[np.ix_(keep, keep)]
+    r0 = np.array([fit.values[n] for n in names])
+    p0 = np.array([base.values[n] for n in base_names])
+    base_values = dict(fit.fy_values or {})
+
+    def resid(q_r, q_p):
+        values = {**fit.values, **dict(zip(names, q_r))}
+        pure = {**base_values, **dict(zip(base_names, q_p))}
+        y = _model(
+            fit.channel, data.x, data.fz_n, data.gamma_deg, dpi, values, fit.fz0_n, fit.r0_m, pure, data.other_slip
+        )
+        return (y - data.y) * data.weight
+
+    j_r = _jacobian(lambda q: resid(q, p0), r0)
+    j_p = _jacobian(lambda q: resid(r0, q), p0)
+    free = np.isfinite(np.diag(fit.covariance))
+    if not np.any(free):
+        return fit
+    jf = j_r[:, free]
+    a = -np.linalg.pinv(jf.T @ jf) @ jf.T @ j_p
+    cov = np.array(fit.covariance, dtype=float)
+    cov[np.ix_(free, free)] = cov[np.ix_(free, free)] + a @ cov_p @ a.T
+    sd = np.sqrt(np.diag(cov))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        corr = cov / np.outer(sd, sd)
+    estimates = []
+    for c in fit.coefficients:
+        if c.status != "fitted" or c.name not in names or not np.isfinite(sd[names.index(c.name)]):
+            estimates.append(c)
+            continue
+        u = float(sd[names.index(c.name)])
+        estimates.append(replace(c, stderr=u, ci95=(c.value - fit.t95 * u, c.value + fit.t95 * u)))
+    return replace(fit, coefficients=tuple(estimates), covariance=cov, correlation=corr)
+
+
 def _frozen(a) -> np.ndarray:
     a = np.array(a, dtype=float)
     a.setflags(write=False)
@@ -800,6 +910,8 @@ class SpecimenModel:
     fy: ChannelFit | None
     mz: ChannelFit | None
     fx: ChannelFit | None
+    fxc: ChannelFit | None = None  # combined slip, where the specimen was run so
+    fyc: ChannelFit | None = None
 
     def get(self, channel: str) -> ChannelFit | None:
         return getattr(self, channel)
@@ -807,11 +919,12 @@ class SpecimenModel:
     def at(self, camber_deg: float, pressure_kpa: float) -> SpecimenModel:
         """The same fits, read at another camber and pressure."""
         fits = {c: None if f is None else f.at(camber_deg, pressure_kpa) for c, f in self.channels_by_name()}
-        return SpecimenModel(self.specimen, fits["fy"], fits["mz"], fits["fx"])
+        return SpecimenModel(self.specimen, **fits)
 
     def channels_by_name(self) -> list[tuple[str, ChannelFit | None]]:
-        return [("fy", self.fy), ("mz", self.mz), ("fx", self.fx)]
+        return [("fy", self.fy), ("mz", self.mz), ("fx", self.fx), ("fxc", self.fxc), ("fyc", self.fyc)]
 
     @property
     def channels(self) -> list[ChannelFit]:
-        return [f for f in (self.fy, self.mz, self.fx) if f is not None]
+        """Every fit: the pure-slip ones first (Fy0, Mz0, Fx0), then the combined-slip ones."""
+        return [f for _, f in self.channels_by_name() if f is not None]

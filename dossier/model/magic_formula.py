@@ -1,7 +1,9 @@
 """The Magic Formula equations, as vectorised pure functions.
 
 Sources: Pacejka & Bakker, VSD 21 suppl. (1992); Pacejka, *Tire and Vehicle Dynamics*,
-2nd ed. (2006), §4.3.1 (general form) and §4.3.2 (pure-slip equations of the 2002 form);
+2nd ed. (2006), §4.3.1 (general form) and §4.3.2 (pure-slip equations of the 2002 form, and
+the weighting functions of combined slip, eqs. 4.E50-4.E67: the 2002 form of Pacejka 2006 as
+recalled *(from memory; no turn slip, ζ2 = 1)*);
 inflation pressure: Besselink, Schmeitz & Pacejka, VSD 48 suppl. 1 (2010). Scaling factors
 λ are 1 throughout (we fit; we do not rescale). Equation labels such as ``4.E25`` refer to
 the 2006 edition's list of pure-slip equations *(numbering from memory; the formulas
@@ -146,9 +148,45 @@ FX0_COEFFICIENTS: tuple[CoefficientInfo, ...] = (
     C("ppx3", "1", 0.0, -3.0, 3.0, "BSP2010", "linear pressure effect on longitudinal friction", "pressure"),
     C("ppx4", "1", 0.0, -3.0, 3.0, "BSP2010", "quadratic pressure effect on longitudinal friction", "pressure3"),
 )
+
+# Combined slip (Pacejka 2006, §4.3.2, 4.E50-4.E67): weighting functions on top of the pure-slip
+# fits. "held_signs": the held slip angles (or ratios) include both signs; "held3": three or more
+# held levels other than zero. Defaults and bounds: common practice for car and truck tires.
+FXC_COEFFICIENTS: tuple[CoefficientInfo, ...] = (
+    C("rBx1", "1", 10.0, 0.5, 60.0, "4.E54", "slope of the Fx weighting against slip angle"),
+    C("rBx2", "1", 8.0, 0.0, 60.0, "4.E54", "variation of that slope with slip ratio"),
+    C("rBx3", "1", 0.0, -100.0, 100.0, "4.E54", "variation of that slope with camber squared", "camber"),
+    C("rCx1", "1", 1.0, 0.5, 2.0, "4.E55", "shape factor of the Fx weighting"),
+    C("rEx1", "1", 0.0, -10.0, 1.0, "4.E56", "curvature of the Fx weighting at nominal load"),
+    C("rEx2", "1", 0.0, -10.0, 10.0, "4.E56", "variation of that curvature with load", "loads"),
+    C("rHx1", "rad", 0.0, -0.05, 0.05, "4.E57", "shift of the Fx weighting in slip angle", "held_signs"),
+)
+FYC_COEFFICIENTS: tuple[CoefficientInfo, ...] = (
+    C("rBy1", "1", 8.0, 0.5, 60.0, "4.E62", "slope of the Fy weighting against slip ratio"),
+    C("rBy2", "1", 5.0, 0.0, 60.0, "4.E62", "variation of that slope with slip angle"),
+    C("rBy3", "rad", 0.0, -0.1, 0.1, "4.E62", "slip-angle shift of that variation", "held_signs"),
+    C("rBy4", "1", 0.0, -100.0, 100.0, "4.E62", "variation of that slope with camber squared", "camber"),
+    C("rCy1", "1", 1.0, 0.5, 2.0, "4.E63", "shape factor of the Fy weighting"),
+    C("rEy1", "1", 0.0, -10.0, 1.0, "4.E64", "curvature of the Fy weighting at nominal load"),
+    C("rEy2", "1", 0.0, -10.0, 10.0, "4.E64", "variation of that curvature with load", "loads"),
+    C("rHy1", "1", 0.0, -0.05, 0.05, "4.E65", "shift of the Fy weighting in slip ratio"),
+    C("rHy2", "1", 0.0, -0.05, 0.05, "4.E65", "variation of that shift with load", "loads"),
+    C("rVy1", "1", 0.0, -1.0, 1.0, "4.E67", "slip-ratio-induced lateral force / (friction · load)"),
+    C("rVy2", "1", 0.0, -1.0, 1.0, "4.E67", "variation of the induced force with load", "loads"),
+    C("rVy3", "1/rad", 0.0, -10.0, 10.0, "4.E67", "variation of the induced force with camber", "camber"),
+    C("rVy4", "1", 0.0, 0.0, 200.0, "4.E67", "fall of the induced force with slip angle", "held3"),
+    C("rVy5", "1", 2.0, 0.0, 5.0, "4.E66", "shape of the induced force against slip ratio"),
+    C("rVy6", "1", 10.0, 0.0, 100.0, "4.E66", "slope of the induced force against slip ratio"),
+)
 del C
 
-CATALOGUE = {"fy": FY0_COEFFICIENTS, "mz": MZ0_COEFFICIENTS, "fx": FX0_COEFFICIENTS}
+CATALOGUE = {
+    "fy": FY0_COEFFICIENTS,
+    "mz": MZ0_COEFFICIENTS,
+    "fx": FX0_COEFFICIENTS,
+    "fxc": FXC_COEFFICIENTS,
+    "fyc": FYC_COEFFICIENTS,
+}
 INFO = {c.name: c for cat in CATALOGUE.values() for c in cat}
 
 
@@ -181,7 +219,7 @@ def _fy0_parts(alpha, fz, c, fz0_n, gamma, dpi):
     )
     by = kya / _nonzero(cy * dy)  # 4.E26
     fy = sine_form(alpha_y, by, cy, dy, ey) + svy  # 4.E19
-    return fy, dfz, shy, svy, kya, by, cy
+    return fy, dfz, shy, svy, kya, by, cy, mu_y
 
 
 def fy0(alpha_rad, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
@@ -250,7 +288,7 @@ def mz0(
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
     dpi = np.asarray(dpi, float)
-    fy, dfz, shy, svy, kya, by, cy = _fy0_parts(alpha, fz, c, fz0_n, g, dpi)
+    fy, dfz, shy, svy, kya, by, cy, _ = _fy0_parts(alpha, fz, c, fz0_n, g, dpi)
     t = pneumatic_trail_m(alpha, fz, cq, fz0_n, r0_m, g, dpi)  # 4.E33
     alpha_r = alpha + shy + svy / _nonzero(kya)  # 4.E37
     br = cq["qBz9"] + cq["qBz10"] * by * cy  # 4.E45
@@ -322,6 +360,67 @@ def fx0(kappa, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     bx = kxk / _nonzero(cx * dx)  # 4.E16
     svx = fz * (c["pVx1"] + c["pVx2"] * dfz)  # 4.E18
     return sine_form(kx, bx, cx, dx, ex) + svx  # 4.E9
+
+
+def _weighting(slip, shift, B, C, E):
+    """cos[C arctan{B s − E(B s − arctan B s)}] at s = slip + shift, over its value at s = shift: one
+    at zero of the other slip by construction (Pacejka 2006, 4.E51-4.E52, 4.E59-4.E60)."""
+    return cosine_form(slip + shift, B, C, 1.0, E) / cosine_form(shift, B, C, 1.0, E)
+
+
+def gx_alpha(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_rad=0.0):
+    """Weighting Gxα of Fx by slip angle under combined slip (Pacejka 2006, 4.E51-4.E57); α* = tan α,
+    γ* = sin γ. Gxα = 1 at α = 0."""
+    c = {**defaults("fxc"), **r}
+    k = np.asarray(kappa, float)
+    a = np.tan(np.asarray(alpha_rad, float))
+    g = np.sin(np.asarray(gamma_rad, float))
+    dfz = (np.asarray(fz_n, float) - fz0_n) / fz0_n
+    b = (c["rBx1"] + c["rBx3"] * g**2) * np.cos(np.arctan(c["rBx2"] * k))  # 4.E54
+    e = np.minimum(c["rEx1"] + c["rEx2"] * dfz, 1.0)  # 4.E56
+    return _weighting(a, c["rHx1"], b, c["rCx1"], e)  # 4.E51-4.E53, 4.E55, 4.E57
+
+
+def gy_kappa(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_rad=0.0):
+    """Weighting Gyκ of Fy by slip ratio under combined slip (Pacejka 2006, 4.E59-4.E65). Gyκ = 1
+    at κ = 0."""
+    c = {**defaults("fyc"), **r}
+    k = np.asarray(kappa, float)
+    a = np.tan(np.asarray(alpha_rad, float))
+    g = np.sin(np.asarray(gamma_rad, float))
+    dfz = (np.asarray(fz_n, float) - fz0_n) / fz0_n
+    b = (c["rBy1"] + c["rBy4"] * g**2) * np.cos(np.arctan(c["rBy2"] * (a - c["rBy3"])))  # 4.E62
+    e = np.minimum(c["rEy1"] + c["rEy2"] * dfz, 1.0)  # 4.E64
+    return _weighting(k, c["rHy1"] + c["rHy2"] * dfz, b, c["rCy1"], e)  # 4.E59-4.E61, 4.E63, 4.E65
+
+
+def svy_kappa(kappa, alpha_rad, fz_n, r: dict[str, float], mu_y, fz0_n: float, gamma_rad=0.0):
+    """Lateral force induced by slip ratio, SVyκ in N (Pacejka 2006, 4.E66-4.E67; ζ2 = 1): zero at κ = 0."""
+    c = {**defaults("fyc"), **r}
+    k = np.asarray(kappa, float)
+    a = np.tan(np.asarray(alpha_rad, float))
+    g = np.sin(np.asarray(gamma_rad, float))
+    fz = np.asarray(fz_n, float)
+    dfz = (fz - fz0_n) / fz0_n
+    dv = mu_y * fz * (c["rVy1"] + c["rVy2"] * dfz + c["rVy3"] * g) * np.cos(np.arctan(c["rVy4"] * a))  # 4.E67
+    return dv * np.sin(c["rVy5"] * np.arctan(c["rVy6"] * k))  # 4.E66
+
+
+def fx_combined(kappa, alpha_rad, fz_n, p: dict[str, float], r: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
+    """Longitudinal force under combined slip, Fx = Gxα·Fx0 in N (Pacejka 2006, 4.E50), with the
+    pure-slip coefficients `p` and the combined-slip ones `r`."""
+    return gx_alpha(kappa, alpha_rad, fz_n, r, fz0_n, gamma_rad) * fx0(kappa, fz_n, p, fz0_n, gamma_rad, dpi)
+
+
+def fy_combined(alpha_rad, kappa, fz_n, p: dict[str, float], r: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
+    """Lateral force under combined slip, Fy = Gyκ·Fy0 + SVyκ in N (Pacejka 2006, 4.E58), with the
+    pure-slip coefficients `p` and the combined-slip ones `r`."""
+    c = {**defaults("fy"), **p}
+    a = np.asarray(alpha_rad, float)
+    fz = np.asarray(fz_n, float)
+    g = np.asarray(gamma_rad, float)
+    fy, *_, mu_y = _fy0_parts(a, fz, c, fz0_n, g, np.asarray(dpi, float))
+    return gy_kappa(kappa, a, fz, r, fz0_n, g) * fy + svy_kappa(kappa, a, fz, r, mu_y, fz0_n, g)
 
 
 def _nonzero(x):

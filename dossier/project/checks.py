@@ -10,7 +10,14 @@ from __future__ import annotations
 from ..common.errors import Problem
 from ..common.names import slug
 from ..standards import sidewall
-from .manifest import REQUIRED_CHANNELS, SWEEP_CHANNELS, quantity_value
+from .manifest import (
+    COMBINED_CHANNELS,
+    HELD_SETPOINTS_KEY,
+    HELD_SLIP,
+    REQUIRED_CHANNELS,
+    SWEEP_CHANNELS,
+    quantity_value,
+)
 from .validation import join_path, suggest
 
 
@@ -77,6 +84,27 @@ def check_references(data: dict, problems: list[Problem]) -> None:
                         Problem(
                             f"runs[{i}].columns.{ch}",
                             f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})",
+                        )
+                    )
+        sweep = run.get("sweep") or "slip_angle"
+        own_key = HELD_SETPOINTS_KEY.get(sweep)  # the set-points of the swept slip itself: not held
+        if own_key and run.get(own_key):
+            other = HELD_SETPOINTS_KEY[HELD_SLIP[sweep]]
+            problems.append(
+                Problem(
+                    f"runs[{i}].{own_key}",
+                    f"a {sweep} run sweeps this slip and cannot hold it at set-points; combined slip holds the "
+                    f"other one: {other}",
+                )
+            )
+        held_key = HELD_SETPOINTS_KEY.get(HELD_SLIP.get(sweep, ""), "")
+        if run.get(held_key) and run.get("columns") is not None:
+            for ch in COMBINED_CHANNELS:
+                if ch not in columns:
+                    problems.append(
+                        Problem(
+                            f"runs[{i}].columns.{ch}",
+                            f"is required: a combined-slip run ({held_key} given) needs {', '.join(COMBINED_CHANNELS)}",
                         )
                     )
         cambers = run.get("camber_setpoints_deg") or []

@@ -10,7 +10,9 @@ import datetime as dt
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..standards import units
+import numpy as np
+
+from ..standards import axes, units
 from ..standards.statics import static_axle_loads_n
 
 MANIFEST_NAME = "dossier.toml"
@@ -37,6 +39,10 @@ SWEEPS = ("slip_angle", "slip_ratio")
 # Channels every run needs, and those its sweep needs in addition.
 REQUIRED_CHANNELS = ("time", "fz")
 SWEEP_CHANNELS = {"slip_angle": ("slip_angle", "fy"), "slip_ratio": ("slip_ratio", "fx")}
+# Combined slip: the other slip is held at set-points while the sweep runs; both forces are needed.
+HELD_SLIP = {"slip_ratio": "slip_angle", "slip_angle": "slip_ratio"}  # sweep -> the slip it holds
+HELD_SETPOINTS_KEY = {"slip_angle": "slip_angle_setpoints_deg", "slip_ratio": "slip_ratio_setpoints"}
+COMBINED_CHANNELS = ("slip_angle", "slip_ratio", "fy", "fx")
 
 
 @dataclass(frozen=True)
@@ -89,6 +95,14 @@ class RunSpec:
     rolling_direction: str = "forward"
     tested_at: dt.datetime | None = None
     rig: str = ""  # the machine within the lab; drift is tracked per lab and rig
+    # Combined slip: the levels of the other slip held while the sweep runs (slip angle in deg, ISO
+    # 8855 signs, for a slip-ratio sweep; slip ratio for a slip-angle sweep); None: pure slip.
+    held_setpoints: tuple[float, ...] | None = None
+
+    @property
+    def held_channel(self) -> str | None:
+        """The slip held at set-points (combined slip), or None for a pure-slip run."""
+        return HELD_SLIP[self.sweep] if self.held_setpoints else None
 
     @property
     def station(self) -> tuple[str, str]:
@@ -282,6 +296,11 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
             force_factor = units.factor_to_internal("force", r["load_setpoints"]["unit"])
             loads = tuple(v * force_factor for v in r["load_setpoints"]["values"])
         pressure_factor = units.factor_to_internal("pressure", r["pressure"]["unit"])
+        held_key = HELD_SETPOINTS_KEY[HELD_SLIP[r["sweep"]]]
+        held = None
+        if r.get(held_key):
+            internal = axes.to_internal(HELD_SLIP[r["sweep"]], np.asarray(r[held_key], float), r["axis_convention"])
+            held = tuple(float(v) + 0.0 for v in internal)  # + 0.0: no "-0" where a flipped zero is shown
         runs.append(
             RunSpec(
                 index=i,
@@ -301,6 +320,7 @@ def typed_manifest(data: dict, project_dir: Path) -> Manifest:
                 rolling_direction=r["rolling_direction"],
                 tested_at=r["tested_at"],
                 rig=r["rig"] or "",
+                held_setpoints=held,
             )
         )
     cond = ConditioningSettings(**data["conditioning"]) if data.get("conditioning") else ConditioningSettings()

@@ -197,6 +197,17 @@ MANIFEST_SCHEMA = Table(
                         "camber_setpoints_deg": Key(
                             ListOf(Number(minimum=-15, maximum=15), min_items=1), required=False
                         ),
+                        "slip_angle_setpoints_deg": Key(
+                            ListOf(Number(minimum=-30, maximum=30), min_items=1, max_items=100),
+                            required=False,
+                            help="combined slip: the slip angles held while a slip-ratio sweep runs, in the "
+                            "run's axis convention",
+                        ),
+                        "slip_ratio_setpoints": Key(
+                            ListOf(Number(minimum=-1, maximum=1), min_items=1, max_items=100),
+                            required=False,
+                            help="combined slip: the slip ratios held while a slip-angle sweep runs",
+                        ),
                         "pressure": Key(
                             Table(
                                 {

@@ -26,6 +26,7 @@ from .. import __version__
 from ..conditioning.drift import DriftEstimate
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint, same_condition
 from ..metrics.evaluate import MetricValue
+from ..model.fit import BASE_CHANNEL, CHANNEL_SYMBOL
 from ..project.catalogue import METRICS
 from ..project.manifest import MANIFEST_NAME, Manifest
 from ..standards import axes
@@ -255,11 +256,12 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
         for fit in m.channels:
             ent = fit_id(m.specimen, fit.channel)
             runs = sorted({k[0] for k in fit.source_points})
-            used = [curves_of(i) for i in runs] + ([fit_id(m.specimen, "fy")] if fit.channel == "mz" else [])
+            base = "fy" if fit.channel == "mz" else BASE_CHANNEL.get(fit.channel)  # the fit this one builds on
+            used = [curves_of(i) for i in runs] + ([fit_id(m.specimen, base)] if base else [])
             act = r.activity(
                 pid("fitting", m.specimen, fit.channel),
                 {
-                    "prov:label": f"fit {fit.channel.upper()}0 of {m.specimen}",
+                    "prov:label": f"fit {CHANNEL_SYMBOL[fit.channel]} of {m.specimen}",
                     "d:settings": json.dumps(
                         {
                             **manifest.fit.__dict__,
@@ -280,15 +282,19 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
                     {
                         "prov:activity": act,
                         "prov:entity": curves_of(i),
-                        "d:operating_points": "; ".join(f"{k[1]:.0f} N, {k[2]:g} deg, {k[3]:.0f} kPa" for k in pts),
+                        "d:operating_points": "; ".join(
+                            f"{k[1]:.0f} N, {k[2]:g} deg, {k[3]:.0f} kPa"
+                            + (f", held slip {k[4]:g}" if len(k) > 4 else "")
+                            for k in pts
+                        ),
                     },
                 )
-            if fit.channel == "mz":
-                r.rel("used", {"prov:activity": act, "prov:entity": fit_id(m.specimen, "fy")})
+            if base:
+                r.rel("used", {"prov:activity": act, "prov:entity": fit_id(m.specimen, base)})
             r.entity(
                 ent,
                 {
-                    "prov:label": f"fitted {fit.channel.upper()}0 of {m.specimen}",
+                    "prov:label": f"fitted {CHANNEL_SYMBOL[fit.channel]} of {m.specimen}",
                     "d:rmse": fit.statistics.rmse,
                     "d:n_points": fit.statistics.n_points,
                 },

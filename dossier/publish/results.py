@@ -159,7 +159,10 @@ def _fit_record(f: ChannelFit) -> dict:
         "camber_deg": 0.0,
         "load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
         "slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
-        "slip_unit": "1" if f.channel == "fx" else "deg",
+        "slip_unit": "1" if f.channel in ("fx", "fxc", "fyc") else "deg",
+        "other_slip_range_deg": None
+        if f.other_slip_range is None
+        else [_num(f.other_slip_range[0]), _num(f.other_slip_range[1])],
         "camber_range_deg": [_num(f.camber_range_deg[0]), _num(f.camber_range_deg[1])],
         "pressure_range_kpa": [_num(f.pressure_range_kpa[0]), _num(f.pressure_range_kpa[1])],
         "statistics": {
@@ -422,7 +425,7 @@ def coefficient_files(manifest: Manifest, conditioned: list[ConditionedRun], mod
                     "r0_m": _num(f.r0_m) if f.channel == "mz" else None,
                     "valid_load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
                     "valid_slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
-                    "slip_unit_of_range": "1" if f.channel == "fx" else "deg",
+                    "slip_unit_of_range": "1" if f.channel in ("fx", "fxc", "fyc") else "deg",
                     "coefficients": [_coefficient_record(c) for c in f.coefficients],
                 }
                 for f in m.channels
