@@ -47,26 +47,53 @@ def test_load_index_follows_the_geometric_series():
         assert kg == pytest.approx(45 * 10 ** (li / 80), rel=0.02), li
     values = [LOAD_INDEX_KG[i] for i in sorted(LOAD_INDEX_KG)]
     assert values == sorted(values) and len(set(values)) == len(values)
-    assert sorted(LOAD_INDEX_KG) == list(range(60, 161))
+    assert sorted(LOAD_INDEX_KG) == list(range(0, 280))
+
+
+# Further load-index values as the published tables give them (ISO 4000-1 / UN ECE R30 Annex 4 and
+# R54 Annex IV, ETRTO); from memory: the light end in tenths of a kilogram, the truck end whole.
+PUBLISHED_ENDS = {0: 45, 1: 46.2, 3: 48.7, 19: 77.5, 35: 121, 50: 190, 59: 243, 161: 4625, 163: 4875,
+                  170: 6000, 180: 8000, 190: 10600, 200: 14000, 240: 45000, 279: 136000}  # fmt: skip
+
+
+@pytest.mark.parametrize("li, kg", sorted(PUBLISHED_ENDS.items()))
+def test_load_index_table_over_its_whole_range(li, kg):
+    assert LOAD_INDEX_KG[li] == kg  # from memory (ISO 4000-1 / UN ECE R30, R54 tables)
+
+
+def test_the_table_is_one_series_ten_times_per_80_indices():
+    # The load-index series repeats by decades: the capacity at LI + 80 is ten times that at LI, within
+    # the published rounding (ISO 4000-1 tables; from memory).
+    for li in range(0, 200):
+        step = 1.0 if LOAD_INDEX_KG[li] >= 100 else 0.1  # the published precision of the lower entry
+        assert 0 <= LOAD_INDEX_KG[li + 80] - 10 * LOAD_INDEX_KG[li] < 10 * step + 1e-9, li
 
 
 def test_speed_symbols():
-    # ISO 4000-1 / UN ECE R30 speed symbols (domain primer §7)
-    assert SPEED_SYMBOL_KMH == {
-        "L": 120,
-        "M": 130,
-        "N": 140,
-        "P": 150,
-        "Q": 160,
-        "R": 170,
-        "S": 180,
-        "T": 190,
-        "U": 200,
-        "H": 210,
-        "V": 240,
-        "W": 270,
-        "Y": 300,
-    }
+    # ISO 4000-1 / UN ECE R30 and R54 speed symbols: the primer's table (§7) from L up; the slow-moving
+    # A1-A8 and B to K from memory.
+    slow = {f"A{i}": 5 * i for i in range(1, 9)} | {"B": 50, "C": 60, "D": 65, "E": 70, "F": 80, "G": 90}
+    assert (
+        slow
+        | {
+            "J": 100,
+            "K": 110,
+            "L": 120,
+            "M": 130,
+            "N": 140,
+            "P": 150,
+            "Q": 160,
+            "R": 170,
+            "S": 180,
+            "T": 190,
+            "U": 200,
+            "H": 210,
+            "V": 240,
+            "W": 270,
+            "Y": 300,
+        }
+        == SPEED_SYMBOL_KMH
+    )
 
 
 @pytest.mark.parametrize(
@@ -80,6 +107,21 @@ def test_speed_symbols():
         ("445/50R22.5", 445, 50, 22.5, None, None, None, False, None),
         ("245/40 ZR18 97(Y)", 245, 40, 18, 97, None, "(Y)", False, 300),
         ("205/55 R16 91V reinforced", 205, 55, 16, 91, None, "V", True, 240),
+        # truck, low-section and wide-base sizes (ISO 4000-2 / ETRTO designations; common practice)
+        ("315/80 R22.5 156/150L", 315, 80, 22.5, 156, 150, "L", False, 120),
+        ("385/65R22.5 160K", 385, 65, 22.5, 160, None, "K", False, 110),
+        ("445/45R19.5 160J", 445, 45, 19.5, 160, None, "J", False, 100),
+        ("445/50 R22.5 161L", 445, 50, 22.5, 161, None, "L", False, 120),
+        # numeric (inch) sizes: width in inches, no aspect ratio in the designation
+        ("11R22.5 146/143L", 11 * 25.4, None, 22.5, 146, 143, "L", False, 120),
+        ("12R22.5 152/148M", 12 * 25.4, None, 22.5, 152, 148, "M", False, 130),
+        ("11.00R20 150/146K", 11 * 25.4, None, 20, 150, 146, "K", False, 110),
+        # the service description in brackets, ZR with a service description, C, LT load range
+        ("255/40 ZR19 (101Y)", 255, 40, 19, 101, None, "Y", False, 300),
+        ("255/40ZR19 (101Y) XL", 255, 40, 19, 101, None, "Y", True, 300),
+        ("215/65 R16C 109/107R", 215, 65, 16, 109, 107, "R", False, 170),
+        ("LT265/75R16 123/120S LRE", 265, 75, 16, 123, 120, "S", False, 180),
+        ("LT245/75R16 120/116Q Load Range E", 245, 75, 16, 120, 116, "Q", False, 160),
     ],
 )
 def test_size_designations(text, width, aspect, rim, li, dual, speed, reinforced, kmh):
@@ -107,6 +149,22 @@ def test_nominal_dimensions_follow_the_designation_arithmetic():
     assert "above 300" in parse_size("245/40 ZR18 97(Y)").speed_note
     assert parse_size("not a size") is None
     assert parse_size("225/45 R17 94X") is None  # X is no speed symbol
+    assert parse_size("225/45 R17 (94W") is None  # an unbalanced bracket
+
+
+def test_a_twin_load_index_rates_the_tire_single_and_in_a_dual_pair():
+    # 146/143: 146 fitted single, 143 in a dual pair (ISO 4000-2 / ETRTO; common practice); kg from memory
+    s = parse_size("11R22.5 146/143L")
+    assert (s.rated_load_kg_as("single"), s.rated_load_kg_as("dual")) == (3000, 2725)
+    wide = parse_size("445/50 R22.5 161L")  # a wide-base single has one index
+    assert wide.rated_load_kg_as("dual") == wide.rated_load_kg == 4625
+
+
+def test_numeric_and_bracketed_sizes_say_what_they_cannot_give():
+    s = parse_size("11R22.5 146/143L")
+    assert s.overall_diameter_mm is None and s.unloaded_radius_m is None  # no aspect ratio stated
+    assert "above 300" in parse_size("255/40 ZR19 (101Y)").speed_note
+    assert parse_size("215/65 R16C 109/107R").commercial and parse_size("LT265/75R16 123/120S LRE").load_range == "E"
 
 
 @pytest.mark.parametrize(

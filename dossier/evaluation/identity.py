@@ -67,7 +67,7 @@ class SpecimenIdentity:
 
 def tire_kind(size: SizeDesignation) -> str:
     """Tell passenger car, light truck and truck/bus tires apart by their size designation."""
-    if size.prefix == "LT":
+    if size.prefix == "LT" or size.commercial or size.load_range:
         return LIGHT_TRUCK
     # Commercial-vehicle tubeless rims (15° taper) carry half-inch diameters: 17.5, 19.5, 22.5,
     # 24.5 in (common practice); 16.5 in was a light-truck rim and carries the LT prefix.

@@ -87,4 +87,10 @@ def unloaded_radius_m(manifest: Manifest, specimen_id: str) -> float:
             f"specimens[{i}].size: cannot read a size from {s.size!r} to get the unloaded radius "
             f"for the aligning-moment model; set specimens[{i}].unloaded_radius_m"
         )
+    if size.unloaded_radius_m is None:
+        i = manifest.specimens.index(s)
+        raise StageError(
+            f"specimens[{i}].size: {s.size!r} is a numeric size, which states no aspect ratio and so no "
+            f"unloaded radius for the aligning-moment model; set specimens[{i}].unloaded_radius_m"
+        )
     return size.unloaded_radius_m

@@ -2,8 +2,11 @@
 
 Size designation per ISO 4000-1 / UN ECE R30 and R54, e.g. ``225/45 R17 94W``: section width
 225 mm, aspect ratio 45 %, radial, 17-inch rim, load index 94, speed symbol W. Variants read:
-``P`` and ``LT`` prefixes, ``ZR``, ``XL``/``RF``/``reinforced``, dual/single load indices
-(``123/120R``), heavy-truck and wide-base sizes (``295/75R22.5 144/141L``, ``445/50R22.5``).
+``P`` and ``LT`` prefixes, ``ZR``, ``XL``/``RF``/``reinforced``, single/dual load indices
+(``123/120R``), heavy-truck, low-section and wide-base sizes (``295/75R22.5 144/141L``,
+``385/65R22.5 160K``, ``445/45R19.5``), numeric truck sizes (``11R22.5 146/143L``, ``11.00R20``),
+a service description in brackets (``255/40 ZR19 (101Y)``), commercial ``C`` after the rim
+(``215/65 R16C 109/107R``) and LT load ranges (``LT265/75R16 123/120S LRE``).
 Nominal overall diameter = rim × 25.4 + 2 × width × aspect/100 (mm).
 
 The DOT tire identification number (49 CFR 574.5) ends in the date code: since 2000 four
@@ -21,115 +24,52 @@ from dataclasses import dataclass
 from ..common.errors import SidewallError
 from .units import STANDARD_GRAVITY_M_PER_S2
 
-# Load index → load capacity per tire, kg (ISO 4000-1 / UN ECE R30 Annex 4 / R54 Annex IV).
-# From memory; the values the domain primer lists agree, and every entry lies within 2 % of the
-# geometric series 45·10^(LI/80) (tested).
-LOAD_INDEX_KG: dict[int, int] = {
-    60: 250,
-    61: 257,
-    62: 265,
-    63: 272,
-    64: 280,
-    65: 290,
-    66: 300,
-    67: 307,
-    68: 315,
-    69: 325,
-    70: 335,
-    71: 345,
-    72: 355,
-    73: 365,
-    74: 375,
-    75: 387,
-    76: 400,
-    77: 412,
-    78: 425,
-    79: 437,
-    80: 450,
-    81: 462,
-    82: 475,
-    83: 487,
-    84: 500,
-    85: 515,
-    86: 530,
-    87: 545,
-    88: 560,
-    89: 580,
-    90: 600,
-    91: 615,
-    92: 630,
-    93: 650,
-    94: 670,
-    95: 690,
-    96: 710,
-    97: 730,
-    98: 750,
-    99: 775,
-    100: 800,
-    101: 825,
-    102: 850,
-    103: 875,
-    104: 900,
-    105: 925,
-    106: 950,
-    107: 975,
-    108: 1000,
-    109: 1030,
-    110: 1060,
-    111: 1090,
-    112: 1120,
-    113: 1150,
-    114: 1180,
-    115: 1215,
-    116: 1250,
-    117: 1285,
-    118: 1320,
-    119: 1360,
-    120: 1400,
-    121: 1450,
-    122: 1500,
-    123: 1550,
-    124: 1600,
-    125: 1650,
-    126: 1700,
-    127: 1750,
-    128: 1800,
-    129: 1850,
-    130: 1900,
-    131: 1950,
-    132: 2000,
-    133: 2060,
-    134: 2120,
-    135: 2180,
-    136: 2240,
-    137: 2300,
-    138: 2360,
-    139: 2430,
-    140: 2500,
-    141: 2575,
-    142: 2650,
-    143: 2725,
-    144: 2800,
-    145: 2900,
-    146: 3000,
-    147: 3075,
-    148: 3150,
-    149: 3250,
-    150: 3350,
-    151: 3450,
-    152: 3550,
-    153: 3650,
-    154: 3750,
-    155: 3875,
-    156: 4000,
-    157: 4125,
-    158: 4250,
-    159: 4375,
-    160: 4500,
+# Load index → load capacity per tire, kg (ISO 4000-1 / UN ECE R30 Annex 4 / R54 Annex IV; ETRTO).
+# From memory; the values the domain primer lists agree. The published table is one series: the
+# capacity at LI + 80 is ten times that at LI, so indices 80-159 below give the whole range 0-279
+# (LI 0 = 45 kg, LI 279 = 136 000 kg), each shown as published: truncated to 0.1 kg below 100 kg,
+# to 1 kg above (LI 81 = 462 kg but LI 161 = 4 625 kg and LI 1 = 46.2 kg). Every entry lies within
+# 2 % of the geometric series 45·10^(LI/80) (tested).
+_SERIES_KG = (
+    450, 462.5, 475, 487.5, 500, 515, 530, 545, 560, 580,  # LI 80-89
+    600, 615, 630, 650, 670, 690, 710, 730, 750, 775,  # LI 90-99
+    800, 825, 850, 875, 900, 925, 950, 975, 1000, 1030,  # LI 100-109
+    1060, 1090, 1120, 1150, 1180, 1215, 1250, 1285, 1320, 1360,  # LI 110-119
+    1400, 1450, 1500, 1550, 1600, 1650, 1700, 1750, 1800, 1850,  # LI 120-129
+    1900, 1950, 2000, 2060, 2120, 2180, 2240, 2300, 2360, 2430,  # LI 130-139
+    2500, 2575, 2650, 2725, 2800, 2900, 3000, 3075, 3150, 3250,  # LI 140-149
+    3350, 3450, 3550, 3650, 3750, 3875, 4000, 4125, 4250, 4375,  # LI 150-159
+)  # fmt: skip
+LOAD_INDEX_MIN, LOAD_INDEX_MAX = 0, 279
+
+
+def _load_index_kg(li: int) -> float:
+    decade, i = divmod(li - 80, 80)
+    exact = _SERIES_KG[i] * 10.0**decade
+    # as published: whole kilograms from 100 kg up, one decimal below (truncated, not rounded)
+    return float(math.floor(exact)) if exact >= 100 else math.floor(exact * 10 + 1e-9) / 10
+
+
+def _as_published(kg: float) -> float:
+    return int(kg) if kg == int(kg) else kg
+
+
+LOAD_INDEX_KG: dict[int, float] = {
+    li: _as_published(_load_index_kg(li)) for li in range(LOAD_INDEX_MIN, LOAD_INDEX_MAX + 1)
 }
 
-# Speed symbol → maximum speed, km/h (ISO 4000-1 / UN ECE R30) — the primer's table.
+# Speed symbol → maximum speed, km/h (ISO 4000-1 / UN ECE R30 and R54; from memory): A1-A8 for
+# slow-moving vehicles, then B to Y; "(Y)" in brackets means above 300 km/h.
 SPEED_SYMBOL_KMH: dict[str, int] = {
+    **{f"A{i}": 5 * i for i in range(1, 9)},
+    "B": 50,
+    "C": 60,
+    "D": 65,
+    "E": 70,
+    "F": 80,
+    "G": 90,
+    "J": 100,
+    "K": 110,
     "L": 120,
     "M": 130,
     "N": 140,
@@ -145,12 +85,22 @@ SPEED_SYMBOL_KMH: dict[str, int] = {
     "Y": 300,
 }
 
-_SIZE = re.compile(
+_SERVICE = (
+    r"(?:\s*(?P<open>\()?\s*(?P<li>\d{1,3})(?:\s*/\s*(?P<li_dual>\d{1,3}))?\s*"
+    r"(?P<speed>\((?:A[1-8]|[B-HJ-NP-WY])\)|(?:A[1-8]|[B-HJ-NP-WY]))?\s*(?P<close>\))?)?"
+)
+_FLAGS = r"(?:\s*(?P<reinforced>XL|RF|EXTRA\s+LOAD|REINFORCED))?(?:\s*(?:LR\s*|LOAD\s+RANGE\s+)(?P<load_range>[B-N]))?"
+_METRIC = re.compile(
     r"^\s*(?P<prefix>P|LT)?\s*(?P<width>\d{3})\s*/\s*(?P<aspect>\d{2,3})\s*"
-    r"(?P<construction>ZR|R|-|D|B)\s*(?P<rim>\d{2}(?:\.\d)?)"
-    r"(?:\s*(?P<reinforced_pre>XL|RF|EXTRA\s+LOAD|REINFORCED)\b)?"
-    r"(?:\s*(?P<li>\d{2,3})(?:\s*/\s*(?P<li_dual>\d{2,3}))?\s*(?P<speed>\(?[A-Z]\)?)?)?"
-    r"(?:\s*(?P<reinforced>XL|RF|EXTRA\s+LOAD|REINFORCED))?\s*$",
+    r"(?P<construction>ZR|R|-|D|B)\s*(?P<rim>\d{2}(?:\.\d)?)(?P<commercial>C\b)?"
+    r"(?:\s*(?P<reinforced_pre>XL|RF|EXTRA\s+LOAD|REINFORCED)\b)?" + _SERVICE + _FLAGS + r"\s*$",
+    re.IGNORECASE,
+)
+# Numeric (inch) sizes of truck and light-truck tires: 11R22.5, 12R22.5, 11.00R20, 7.50R16; the
+# designation gives no aspect ratio, so no overall diameter either (ETRTO lists it per size).
+_NUMERIC = re.compile(
+    r"^\s*(?P<prefix>LT)?\s*(?P<width_in>\d{1,2}(?:\.\d{2})?)\s*(?P<construction>R|-)\s*"
+    r"(?P<rim>\d{2}(?:\.\d)?)(?P<commercial>C\b)?" + _SERVICE + _FLAGS + r"\s*$",
     re.IGNORECASE,
 )
 
@@ -162,39 +112,52 @@ class SizeDesignation:
     text: str
     prefix: str  # "", "P" or "LT"
     width_mm: float
-    aspect_pct: float
+    aspect_pct: float | None  # None: a numeric (inch) size, which states none
     construction: str  # "R", "ZR", "-", "D", "B"
     rim_in: float
     load_index: int | None
     load_index_dual: int | None
     speed_symbol: str | None  # as written, e.g. "W" or "(Y)"
     reinforced: bool
+    load_range: str | None = None  # LT load range letter (B, C, D, E, ...)
+    commercial: bool = False  # "C" after the rim diameter (a commercial, van tire)
+    bracketed: bool = False  # the whole service description in brackets, e.g. "(101Y)"
 
     @property
-    def sidewall_height_mm(self) -> float:
-        return self.width_mm * self.aspect_pct / 100.0
+    def sidewall_height_mm(self) -> float | None:
+        return None if self.aspect_pct is None else self.width_mm * self.aspect_pct / 100.0
 
     @property
-    def overall_diameter_mm(self) -> float:
-        return self.rim_in * 25.4 + 2.0 * self.sidewall_height_mm
+    def overall_diameter_mm(self) -> float | None:
+        h = self.sidewall_height_mm
+        return None if h is None else self.rim_in * 25.4 + 2.0 * h
 
     @property
-    def unloaded_radius_m(self) -> float:
-        """Nominal unloaded radius R0 from the designation, m."""
-        return self.overall_diameter_mm / 2000.0
+    def unloaded_radius_m(self) -> float | None:
+        """Nominal unloaded radius R0 from the designation, m (None: the size states no aspect ratio)."""
+        d = self.overall_diameter_mm
+        return None if d is None else d / 2000.0
 
     @property
-    def revolutions_per_km(self) -> float:
+    def revolutions_per_km(self) -> float | None:
         """Nominal revolutions per km of the unloaded circumference (the loaded one is smaller)."""
-        return 1.0e6 / (math.pi * self.overall_diameter_mm)
+        d = self.overall_diameter_mm
+        return None if d is None else 1.0e6 / (math.pi * d)
 
     @property
-    def rated_load_kg(self) -> int | None:
+    def rated_load_kg(self) -> float | None:
         return None if self.load_index is None else LOAD_INDEX_KG.get(self.load_index)
 
     @property
-    def rated_load_dual_kg(self) -> int | None:
+    def rated_load_dual_kg(self) -> float | None:
         return None if self.load_index_dual is None else LOAD_INDEX_KG.get(self.load_index_dual)
+
+    def rated_load_kg_as(self, assembly: str) -> float | None:
+        """The capacity per tire where it is fitted as a "single" or in a "dual" pair: the second load
+        index where the designation gives two (e.g. 146/143: 146 single, 143 dual), else the one."""
+        if assembly == "dual" and self.load_index_dual is not None:
+            return self.rated_load_dual_kg
+        return self.rated_load_kg
 
     @property
     def rated_load_n(self) -> float | None:
@@ -209,12 +172,14 @@ class SizeDesignation:
 
     @property
     def speed_note(self) -> str:
-        """The speed category in words, including the open-ended ZR and (Y) cases."""
+        """The speed category in words, including the open-ended ZR and bracketed cases."""
         sym = (self.speed_symbol or "").upper()
-        if sym == "(Y)":
+        if sym == "(Y)" or (self.bracketed and sym == "Y"):
             return "above 300 km/h (speed symbol in brackets)"
         if self.max_speed_kmh:
             base = f"up to {self.max_speed_kmh} km/h"
+            if self.bracketed:
+                return base + " (service description in brackets: the tire may run faster, as its maker states)"
             return base + (
                 "; ZR in the size: above 240 km/h" if self.construction == "ZR" and self.max_speed_kmh > 240 else ""
             )
@@ -224,26 +189,45 @@ class SizeDesignation:
 
 
 def parse_size(text: str) -> SizeDesignation | None:
-    """Decode a size designation such as '225/45 R17 94W'; None if it does not match."""
-    m = _SIZE.match(text or "")
-    if not m:
+    """Decode a size designation such as '225/45 R17 94W', '11R22.5 146/143L' or '255/40 ZR19 (101Y)';
+    None if it does not match."""
+    m = _METRIC.match(text or "")
+    numeric = None if m else _NUMERIC.match(text or "")
+    found = m or numeric
+    if not found:
         return None
-    li = int(m["li"]) if m["li"] else None
-    dual = int(m["li_dual"]) if m["li_dual"] else None
-    speed = m["speed"].upper() if m["speed"] else None
-    if speed and speed.strip("()") not in SPEED_SYMBOL_KMH:
+    if bool(found["open"]) != bool(found["close"]):
+        return None  # an unbalanced bracket
+    li = int(found["li"]) if found["li"] else None
+    dual = int(found["li_dual"]) if found["li_dual"] else None
+    speed = found["speed"].upper() if found["speed"] else None
+    if speed and (speed.count("(") != speed.count(")") or speed.strip("()") not in SPEED_SYMBOL_KMH):
         return None
+    if li is not None and not LOAD_INDEX_MIN <= li <= LOAD_INDEX_MAX:
+        return None
+    if dual is not None and not LOAD_INDEX_MIN <= dual <= LOAD_INDEX_MAX:
+        return None
+    if m:
+        width_mm, aspect = float(m["width"]), float(m["aspect"])
+        reinforced = bool(m["reinforced"] or m["reinforced_pre"])
+    else:
+        assert numeric is not None
+        width_mm, aspect = float(numeric["width_in"]) * 25.4, None
+        reinforced = bool(numeric["reinforced"])
     return SizeDesignation(
         text=text.strip(),
-        prefix=(m["prefix"] or "").upper(),
-        width_mm=float(m["width"]),
-        aspect_pct=float(m["aspect"]),
-        construction=m["construction"].upper(),
-        rim_in=float(m["rim"]),
+        prefix=(found["prefix"] or "").upper(),
+        width_mm=width_mm,
+        aspect_pct=aspect,
+        construction=found["construction"].upper(),
+        rim_in=float(found["rim"]),
         load_index=li,
         load_index_dual=dual,
         speed_symbol=speed,
-        reinforced=bool(m["reinforced"] or m["reinforced_pre"]),
+        reinforced=reinforced,
+        load_range=found["load_range"].upper() if found["load_range"] else None,
+        commercial=bool(found["commercial"]),
+        bracketed=bool(found["open"]),
     )
 
 
