@@ -51,6 +51,25 @@ def test_site_pages_work_from_disk(demo_out):
         assert title in index
 
 
+_READ: dict[Path, list[tuple[str, list[tuple[float, str]]]]] = {}
+
+
+def _pages(path: Path) -> list[tuple[str, list[tuple[float, str]]]]:
+    """Each page's text and where each piece of text starts (x in user space), read once per volume:
+    text extraction is the slow part of these tests."""
+    if path not in _READ:
+        found = []
+        for page in PdfReader(path).pages:
+            placed: list[tuple[float, str]] = []
+
+            def visit(text, cm, tm, font, size, placed=placed):
+                placed.append((tm[4] * cm[0] + tm[5] * cm[2] + cm[4], text))  # the text origin (no rotation)
+
+            found.append((page.extract_text(visitor_text=visit), placed))
+        _READ[path] = found
+    return _READ[path]
+
+
 def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
     expected = {
         "dossier.pdf": (
@@ -82,7 +101,7 @@ def test_pdf_volumes_have_their_sections_cautions_and_page_numbers(demo_out):
     texts = {}
     for name, headings in expected.items():
         reader = PdfReader(demo_out / name)
-        pages = [page.extract_text() for page in reader.pages]
+        pages = [text for text, _ in _pages(demo_out / name)]
         text = texts[name] = "\n".join(pages)
         for heading in (*headings, "Safety cautions", "NTW-EVD-2026-031"):  # every volume carries the cautions
             assert heading in text, (name, heading)
@@ -283,20 +302,17 @@ def test_no_text_of_any_volume_starts_past_the_content_edge(demo_out):
         "annex-c-rig-runs.pdf",
         "annex-d-provenance.pdf",
     ):
-        beyond = []
-        for n, page in enumerate(PdfReader(demo_out / name).pages, 1):
-
-            def visit(text, cm, tm, font, size, n=n):
-                x = tm[4] * cm[0] + tm[5] * cm[2] + cm[4]  # the text origin in user space (no rotation)
-                if text.strip() and x > right_edge_pt:
-                    beyond.append((n, round(x), text.strip()[:30]))
-
-            page.extract_text(visitor_text=visit)
+        beyond = [
+            (n, round(x), text.strip()[:30])
+            for n, (_, placed) in enumerate(_pages(demo_out / name), 1)
+            for x, text in placed
+            if text.strip() and x > right_edge_pt
+        ]
         assert not beyond, (name, beyond[:5])
 
 
 def test_the_candidates_at_a_glance_fit_one_page_after_the_summary(demo_out):
-    pages = [p.extract_text() for p in PdfReader(demo_out / "dossier.pdf").pages]
+    pages = [text for text, _ in _pages(demo_out / "dossier.pdf")]
     (start,) = [i for i, t in enumerate(pages) if "Candidates at a glance\n" in t and "At 4.0 kN" in t]
     assert "Executive summary" in pages[start - 1] or "Executive summary" in pages[start - 2]
     page = pages[start]
