@@ -9,6 +9,7 @@ import pytest
 from dossier.evaluation.acceptance import FAILS, MARGINAL, MEETS, NOT_MEASURED, judge
 from dossier.evaluation.vehicle import (
     AxleFitment,
+    as_fitted,
     balance,
     character,
     characteristic_speed_kmh,
@@ -81,6 +82,31 @@ def test_dual_axle_against_wide_base_single_hand_computed():
     assert wide.understeer_gradient_deg_per_g == pytest.approx(front / caf - rear / car_wide)
     assert dual.understeer_gradient_deg_per_g == pytest.approx(-1.0454, abs=1e-4)
     assert dual.character == "oversteer" and wide.understeer_gradient_deg_per_g > dual.understeer_gradient_deg_per_g
+
+
+def test_a_wide_base_single_on_an_axle_declared_as_duals_is_counted_as_one_tire_per_pair():
+    # A wide-base single replaces a dual pair (common practice): on a drive axle declared as four tires
+    # in duals, a 445/50 R22.5 is two tires at half the axle load each, a 315/80 R22.5 four at a quarter.
+    g = 9.80665
+    front, rear = 6500 * g, 11500 * g
+    declared = AxleFitment("W", 4, "dual")
+    wide, note = as_fitted(declared, "445/50 R22.5 161L", "rear")
+    assert (wide.tires, wide.kind) == (2, "wide-base single") and "wide-base single" in note
+    dual, none = as_fitted(AxleFitment("D", 4, "dual"), "315/80 R22.5 156/150L", "rear")
+    assert dual == AxleFitment("D", 4, "dual") and none is None
+    assert as_fitted(AxleFitment("W", 2, "single"), "445/50 R22.5 161L", "front") == (
+        AxleFitment("W", 2, "single"),
+        None,
+    )
+
+    def stiffness(sid, load):
+        return {"S": 2500 + 0.06 * load, "D": 2000 + 0.05 * load, "W": 3500 + 0.06 * load}[sid], None, None
+
+    b = balance(AxleFitment("S", 2, "single"), wide, front, rear, 3.8, stiffness)
+    assert b.rear_tire_load_n == pytest.approx(rear / 2)  # 56 388 N per tire, not 28 194 N
+    # by hand: rear axle 2 × (3 500 + 0.06 × 56 388.2) = 13 766.6 N/deg
+    assert b.rear_axle_stiffness_n_per_deg == pytest.approx(2 * (3500 + 0.06 * rear / 2))
+    assert b.rear_axle_stiffness_n_per_deg == pytest.approx(13766.6, abs=0.1)
 
 
 def test_speeds_and_yaw_gain():

@@ -11,12 +11,13 @@ compliance steer, lateral load transfer or aligning-torque effects; tires in the
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..metrics.evaluate import single_metric
 from ..model.fit import SpecimenModel
 from ..project.manifest import Manifest
 from ..standards.coverage import effective_dof, interval
+from ..standards.sidewall import parse_size
 from ..standards.units import STANDARD_GRAVITY_M_PER_S2
 
 DEG_PER_RAD = 180.0 / math.pi  # the "57.3" of the handbook formulas
@@ -54,6 +55,7 @@ class Balance:
     critical_speed_kmh: float | None  # K < 0
     character: str  # "understeer", "neutral", "oversteer"
     extrapolated: bool = False
+    notes: tuple[str, ...] = ()  # how a tire was counted where it differs from the axle's declaration
 
 
 def understeer_gradient_deg_per_g(
@@ -141,6 +143,21 @@ def balance(
     )
 
 
+def as_fitted(axle: AxleFitment, size: str, where: str) -> tuple[AxleFitment, str | None]:
+    """The axle as the specimen is fitted to it: a wide-base single on an axle declared as duals is
+    counted as one tire per dual pair (half the tires, each at twice the load), with a note saying so."""
+    decoded = parse_size(size)
+    if axle.kind != "dual" or decoded is None or not decoded.wide_base:
+        return axle, None
+    tires = max(axle.tires // 2, 1)
+    note = (
+        f"{axle.specimen} ({size}) is a wide-base single: on the {where} axle, declared as {axle.tires} tires in dual "
+        f"pairs, it is counted as {tires} tires, each at 1/{tires} of the axle load (a wide-base single replaces a "
+        "dual pair; common practice)"
+    )
+    return AxleFitment(axle.specimen, tires, "wide-base single"), note
+
+
 def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
     """Understeer gradient of every front × rear pairing of the fitted specimens (no controls)."""
     v = manifest.vehicle
@@ -160,16 +177,12 @@ def fitment_matrix(manifest: Manifest, models: list[SpecimenModel]) -> list:
         lo, hi = fy.load_range_n
         return not (0.98 * lo <= load <= 1.02 * hi)
 
-    return [
-        balance(
-            AxleFitment(f, v.front.tires, v.front.kind),
-            AxleFitment(r, v.rear.tires, v.rear.kind),
-            v.front_axle_load_n,
-            v.rear_axle_load_n,
-            v.wheelbase_m,
-            stiffness,
-            extrapolated,
-        )
-        for f in ids
-        for r in ids
-    ]
+    sizes = {s.id: s.size for s in manifest.specimens}
+    out = []
+    for f in ids:
+        for r in ids:
+            front, front_note = as_fitted(AxleFitment(f, v.front.tires, v.front.kind), sizes[f], "front")
+            rear, rear_note = as_fitted(AxleFitment(r, v.rear.tires, v.rear.kind), sizes[r], "rear")
+            b = balance(front, rear, v.front_axle_load_n, v.rear_axle_load_n, v.wheelbase_m, stiffness, extrapolated)
+            out.append(replace(b, notes=tuple(n for n in (front_note, rear_note) if n)))
+    return out

@@ -152,6 +152,12 @@ class SizeDesignation:
     def rated_load_dual_kg(self) -> float | None:
         return None if self.load_index_dual is None else LOAD_INDEX_KG.get(self.load_index_dual)
 
+    @property
+    def wide_base(self) -> bool:
+        """A wide-base truck tire (385 mm section or wider on a 17.5-24.5 in commercial rim, e.g. 385/65R22.5,
+        445/50R22.5, 495/45R22.5): fitted single, never in a dual pair (common practice)."""
+        return self.width_mm >= 385 and self.rim_in >= 17.5 and self.rim_in % 1.0 == 0.5
+
     def rated_load_kg_as(self, assembly: str) -> float | None:
         """The capacity per tire where it is fitted as a "single" or in a "dual" pair: the second load
         index where the designation gives two (e.g. 146/143: 146 single, 143 dual), else the one."""
