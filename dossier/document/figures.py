@@ -219,27 +219,20 @@ def combined_figure(fit: ChannelFit, points: list[OperatingPoint], style: bytes)
             held = np.full(p.curve.n_points, p.held_slip_mean or 0.0)
             kappa, alpha = (p.curve.x, held) if p.sweep == "slip_ratio" else (held, p.curve.x)
             ax.plot(kappa, y, mark, ms=2.8, mfc="none", color=c, rasterized=True)
-            if p.sweep == "slip_ratio":
-                grid = np.linspace(float(kappa.min()), float(kappa.max()), 201)
-                other = np.full(grid.size, p.held_slip_mean or 0.0)
-                ax.plot(
-                    grid,
-                    fit.predict(grid, p.mean_load_n, other=other),
-                    line,
-                    lw=1.3,
-                    color=c,
-                    label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
-                )
-            else:
+            if p.sweep == "slip_ratio":  # the model along the swept slip ratio, at the held slip angle
+                k_line = np.linspace(float(kappa.min()), float(kappa.max()), 201)
+                a_line = np.full(k_line.size, p.held_slip_mean or 0.0)
+            else:  # at the held slip ratio, along the swept slip angle
                 order = np.argsort(alpha)
-                ax.plot(
-                    kappa[order],
-                    fit.predict(kappa[order], p.mean_load_n, other=alpha[order]),
-                    line,
-                    lw=1.3,
-                    color=c,
-                    label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
-                )
+                k_line, a_line = kappa[order], alpha[order]
+            ax.plot(
+                k_line,
+                fit.predict(k_line, p.mean_load_n, other=a_line),
+                line,
+                lw=1.3,
+                color=c,
+                label=f"{p.load_n / 1000:.1f} kN, {_held_label(p)}",
+            )
         _origin_axes(ax, xlabel, ylabel)
         ax.legend(fontsize="x-small")
         ax.set_title(f"{fit.specimen}: {_WORD[fit.channel]}")

@@ -179,20 +179,18 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
     conditioned = check(project, cache)
     every_point = [p for c in conditioned for p in c.points]
     measured = [p for p in every_point if not p.combined]  # pure slip: every stage but the combined-slip fits
-    combined = [p for p in every_point if p.combined]
     detected = [float(v) for c in conditioned if c.account.levels_detected for v in c.account.load_levels_n]
     fz0_n = nominal_load_n(manifest, detected)
     stations = {r.index: r.station for r in manifest.runs}
     drifts = estimate_drifts(measured, manifest.drift.control, fz0_n, stations) if manifest.drift else ()
-    points = measured
     if manifest.drift and manifest.drift.correct:
         applied = []
-        every = measured + combined
-        for line in drifts:  # each rig's line corrects that rig's runs only
-            every, line = correct_points(every, line, stations)
+        for line in drifts:  # each rig's line corrects that rig's runs only, combined slip included
+            every_point, line = correct_points(every_point, line, stations)
             applied.append(line)
         drifts = tuple(applied)
-        points, combined = [p for p in every if not p.combined], [p for p in every if p.combined]
+    points = [p for p in every_point if not p.combined]
+    combined = [p for p in every_point if p.combined]
     drift: DriftEstimate | None = (
         drifts[0] if drifts else None
     )  # results.json and the comparison page quote the first line; the data-quality page shows every one

@@ -11,7 +11,7 @@ from dataclasses import dataclass, replace
 
 from ..conditioning.steady_state import OperatingPoint, same_condition
 from ..metrics.evaluate import MetricValue, metric_values, specimen_metrics
-from ..model.fit import ChannelFit, SpecimenModel, fit_channel, leave_one_load_out, with_base_uncertainty
+from ..model.fit import ChannelFit, SpecimenModel, fit_channel, fit_combined, leave_one_load_out
 from ..project.conditions import specimen_camber_deg, specimen_pressure_kpa, unloaded_radius_m
 from ..project.manifest import FitSettings, Manifest, MetricSettings
 from .cache import MISSING, Cache, digest, with_content_key
@@ -145,12 +145,11 @@ def _fit_one_specimen(job: SpecimenJob) -> SpecimenModel | None:
     if longitudinal:
         fx = _with_load_out(fit_channel(longitudinal, "fx", settings, fz0_n, p0), longitudinal, settings)
     # Combined slip weights the pure-slip models, so it needs both: Fx0 and Fy0 as fitted.
-    with_fx = [p for p in combined if p.curve.fx_n is not None]
-    with_fy = [p for p in combined if p.curve.fy_n is not None]
-    if fx is not None and fy is not None and with_fx:
-        fxc = with_base_uncertainty(fit_channel(with_fx, "fxc", settings, fz0_n, p0, fy_values=fx.values), fx, with_fx)
-    if fx is not None and fy is not None and with_fy:
-        fyc = with_base_uncertainty(fit_channel(with_fy, "fyc", settings, fz0_n, p0, fy_values=fy.values), fy, with_fy)
+    if fx is not None and fy is not None:
+        with_fx = [p for p in combined if p.curve.fx_n is not None]
+        with_fy = [p for p in combined if p.curve.fy_n is not None]
+        fxc = fit_combined(with_fx, "fxc", fx, settings, fz0_n, p0) if with_fx else None
+        fyc = fit_combined(with_fy, "fyc", fy, settings, fz0_n, p0) if with_fy else None
     if not (fy or fx):
         return None
     if combined and not (fx and fy):

@@ -42,7 +42,8 @@ CHANNEL_LABEL = {
 CHANNEL_SYMBOL = {"fy": "Fy0", "mz": "Mz0", "fx": "Fx0", "fxc": "Fx (combined)", "fyc": "Fy (combined)"}
 CHANNEL_UNIT = {"fy": "N", "mz": "N·m", "fx": "N", "fxc": "N", "fyc": "N"}
 COMBINED = ("fxc", "fyc")
-BASE_CHANNEL = {"fxc": "fx", "fyc": "fy"}  # the pure-slip fit a combined-slip fit weights
+BASE_CHANNEL = {"mz": "fy", "fxc": "fx", "fyc": "fy"}  # the fit another one is made with (held as fitted)
+SLIP_UNIT = {"fy": "deg", "mz": "deg", "fx": "1", "fxc": "1", "fyc": "1"}  # the unit of a fit's slip range
 MODEL_NAME = {
     **{c: f"Magic Formula 2002 pure-slip {CHANNEL_LABEL[c]}" for c in ("fy", "mz", "fx")},
     "fxc": "Magic Formula 2002 combined slip: Fx = Gxα·Fx0",
@@ -841,12 +842,22 @@ def _covariance(resid, x, r, dof, at_bound):
     return cov, note
 
 
-def with_base_uncertainty(fit: ChannelFit, base: ChannelFit, points: list[OperatingPoint]) -> ChannelFit:
+def fit_combined(
+    points: list[OperatingPoint], channel: str, base: ChannelFit, settings: FitSettings, fz0_n: float, p0_kpa: float
+) -> ChannelFit:
+    """Fit the combined-slip weighting `channel` ("fxc" or "fyc") on top of the pure-slip fit `base`
+    (Fx0 or Fy0, held as fitted), whose uncertainty the result's covariance carries too."""
+    data = fit_data(points, channel)
+    setting_list = _settings(channel, data, (), fz0_n, base.r0_m, base.values)
+    fit = _solve(channel, points[0].specimen, data, setting_list, (), settings, fz0_n, p0_kpa, base.r0_m, base.values)
+    return _with_base_uncertainty(fit, base, data)
+
+
+def _with_base_uncertainty(fit: ChannelFit, base: ChannelFit, data: FitData) -> ChannelFit:
     """Return a combined-slip fit whose covariance also carries the uncertainty of the pure-slip fit
     it weights: the fit's own s²(JᵀJ)⁻¹ plus A·Σ_base·Aᵀ, where A = −(J_rᵀJ_r)⁻¹J_rᵀJ_p is how the
     weighting coefficients r move when the pure-slip coefficients p move (first order, from the
     normal equations at the solution; GUM 5.1.2 law of propagation)."""
-    data = fit_data(points, fit.channel)
     dpi = (data.pressure_kpa - fit.p0_kpa) / fit.p0_kpa
     names = list(fit.fitted_names)
     base_names = [n for i, n in enumerate(base.fitted_names) if np.isfinite(base.covariance[i, i])]

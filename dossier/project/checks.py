@@ -76,8 +76,8 @@ def check_references(data: dict, problems: list[Problem]) -> None:
                 )
             )
         columns = run.get("columns") or {}
+        sweep = run.get("sweep") or "slip_angle"
         if run.get("columns") is not None:
-            sweep = run.get("sweep") or "slip_angle"
             for ch in REQUIRED_CHANNELS + SWEEP_CHANNELS.get(sweep, ()):
                 if ch not in columns:
                     problems.append(
@@ -86,7 +86,6 @@ def check_references(data: dict, problems: list[Problem]) -> None:
                             f"is required (a {sweep} run needs {', '.join(REQUIRED_CHANNELS + SWEEP_CHANNELS[sweep])})",
                         )
                     )
-        sweep = run.get("sweep") or "slip_angle"
         own_key = HELD_SETPOINTS_KEY.get(sweep)  # the set-points of the swept slip itself: not held
         if own_key and run.get(own_key):
             other = HELD_SETPOINTS_KEY[HELD_SLIP[sweep]]

@@ -256,7 +256,7 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
         for fit in m.channels:
             ent = fit_id(m.specimen, fit.channel)
             runs = sorted({k[0] for k in fit.source_points})
-            base = "fy" if fit.channel == "mz" else BASE_CHANNEL.get(fit.channel)  # the fit this one builds on
+            base = BASE_CHANNEL.get(fit.channel)  # the fit this one is made with
             used = [curves_of(i) for i in runs] + ([fit_id(m.specimen, base)] if base else [])
             act = r.activity(
                 pid("fitting", m.specimen, fit.channel),

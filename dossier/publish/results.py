@@ -20,7 +20,7 @@ from ..conditioning.offsets import OffsetSplit
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
 from ..metrics.budget import Budget
 from ..metrics.evaluate import MetricValue
-from ..model.fit import MODEL_NAME, ChannelFit
+from ..model.fit import MODEL_NAME, SLIP_UNIT, ChannelFit
 from ..project.catalogue import METRICS
 from ..project.manifest import Manifest
 from ..standards import axes
@@ -159,7 +159,7 @@ def _fit_record(f: ChannelFit) -> dict:
         "camber_deg": 0.0,
         "load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
         "slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
-        "slip_unit": "1" if f.channel in ("fx", "fxc", "fyc") else "deg",
+        "slip_unit": SLIP_UNIT[f.channel],
         "other_slip_range_deg": None
         if f.other_slip_range is None
         else [_num(f.other_slip_range[0]), _num(f.other_slip_range[1])],
@@ -425,7 +425,7 @@ def coefficient_files(manifest: Manifest, conditioned: list[ConditionedRun], mod
                     "r0_m": _num(f.r0_m) if f.channel == "mz" else None,
                     "valid_load_range_n": [_num(f.load_range_n[0]), _num(f.load_range_n[1])],
                     "valid_slip_range": [_num(f.slip_range[0]), _num(f.slip_range[1])],
-                    "slip_unit_of_range": "1" if f.channel in ("fx", "fxc", "fyc") else "deg",
+                    "slip_unit_of_range": SLIP_UNIT[f.channel],
                     "coefficients": [_coefficient_record(c) for c in f.coefficients],
                 }
                 for f in m.channels
