@@ -96,9 +96,12 @@ def manifest_text(decimal: str = ".", delimiter: str = ",") -> str:
         + "\n[metrics]\nloads_n = [5000]\n"
         + '\n[drift]\ncontrol = "CTRL"\ncorrect = true\n'
         + '\n[[targets]]\nmetric = "cornering_stiffness"\nload_n = 4000\nminimum = 100\nreference = "spec 1"\n'
-        + '\n[vehicle]\nname = "Test car"\nwheelbase = { value = 2.7, unit = "m" }\n'
+        + '\n[vehicle]\nname = "Test car"\n'
         + 'mass = { value = 1500, unit = "kg" }\ncg_to_front_axle = { value = 1.2, unit = "m" }\n'
-        + "front = { tires = 2 }\nrear = { tires = 2 }\n"
+        + '[[vehicle.axles]]\nname = "front"\nposition = "steer"\nfrom_front = { value = 0, unit = "m" }\n'
+        + '[[vehicle.axles]]\nname = "rear"\nposition = "drive"\nfrom_front = { value = 2.7, unit = "m" }\n'
+        + '[[vehicle.fitments]]\nname = "BASE all round"\n'
+        + 'mounted = { front = { specimen = "BASE" }, rear = { specimen = "BASE" } }\n'
         + '\n[signoff]\nstatus = "draft"\n[[signoff.people]]\nname = "A. Tester"\nrole = "author"\n'
     )
 

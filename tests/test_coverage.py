@@ -4,7 +4,7 @@ and its claimed coverage tested by simulation."""
 import numpy as np
 import pytest
 
-from dossier.evaluation.vehicle import AxleFitment, balance
+from dossier.evaluation.vehicle import TireInput, propagate
 from dossier.standards.coverage import coverage_factor, effective_dof, interval
 
 
@@ -60,13 +60,13 @@ def test_the_interval_of_a_difference_covers_95_percent_with_few_degrees_of_free
 
 
 def test_the_understeer_interval_uses_the_rule():
-    def stiffness(sid, load):
-        return {"F": (1500.0, 30.0, 8), "R": (1400.0, 40.0, 12)}[sid]
-
-    b = balance(AxleFitment("F", 2, "single"), AxleFitment("R", 2, "single"), 8000.0, 7000.0, 2.7, stiffness)
-    lo, hi = b.understeer_gradient_ci95
-    gf = -8000.0 / (2 * 1500.0) ** 2 * 2 * 30.0
-    gr = 7000.0 / (2 * 1400.0) ** 2 * 2 * 40.0
+    # K = Wf/Cαf − Wr/Cαr (Gillespie 1992, ch. 6) from two specimens' axle stiffnesses with their own
+    # standard errors and degrees of freedom: the delta method, then the Welch-Satterthwaite t factor.
+    inputs = [TireInput("F", 3000.0, 60.0, 8), TireInput("R", 2800.0, 80.0, 12)]
+    e = propagate(lambda c: 8000.0 / c[0] - 7000.0 / c[1], inputs)
+    lo, hi = e.ci95
+    gf = -8000.0 / 3000.0**2 * 60.0
+    gr = 7000.0 / 2800.0**2 * 80.0
     k = coverage_factor(effective_dof([(gf, 8), (gr, 12)]))
-    assert (hi - lo) / 2 == pytest.approx(k * float(np.hypot(gf, gr)))
+    assert (hi - lo) / 2 == pytest.approx(k * float(np.hypot(gf, gr)), rel=1e-6)
     assert k > 2.05  # about 19 effective degrees of freedom: wider than 1.96

@@ -83,11 +83,19 @@ def test_manifest_text_is_still_valid_toml_after_our_edits():
 VEHICLE = """
 [vehicle]
 name = "Test car"
-wheelbase = { value = 2.7, unit = "m" }
-front_axle_load = { value = 8000, unit = "N" }
-rear_axle_load = { value = 7000, unit = "N" }
-front = { tires = 2 }
-rear = { tires = 2 }
+[[vehicle.axles]]
+name = "front"
+position = "steer"
+from_front = { value = 0, unit = "m" }
+load = { value = 8000, unit = "N" }
+[[vehicle.axles]]
+name = "rear"
+position = "drive"
+from_front = { value = 2.7, unit = "m" }
+load = { value = 7000, unit = "N" }
+[[vehicle.fitments]]
+name = "A all round"
+mounted = { front = { specimen = "A" }, rear = { specimen = "A" } }
 """
 BASE = P.MANIFEST_HEAD + P.specimen_block("A") + P.run_block("A", "rig/a.csv", [4000])
 
@@ -103,10 +111,13 @@ def _one_run(file):
         (_one_run("."), "runs[0].file: must name a file inside the project folder; got '.'"),
         (_one_run("rig"), "runs[0].file: is not a regular file: 'rig' (a folder)"),
         (_one_run("rig/\\u0000a.csv"), "runs[0].file: contains a NUL byte"),
-        (BASE + VEHICLE.replace('unit = "m"', 'unit = "metre"'), "vehicle.wheelbase.unit: unknown unit 'metre'"),
+        (
+            BASE + VEHICLE.replace('{ value = 2.7, unit = "m" }', '{ value = 2.7, unit = "metre" }'),
+            "vehicle.axles[1].from_front.unit: unknown unit 'metre'",
+        ),
         (
             BASE + VEHICLE.replace('{ value = 2.7, unit = "m" }', '{ unit = "m" }'),
-            "vehicle.wheelbase.value: is required",
+            "vehicle.axles[1].from_front.value: is required",
         ),
         (
             BASE + '\n[[targets]]\nmetric = ["cornering_stiffness"]\nload_n = 4000\nminimum = 1\nreference = "x"\n',
@@ -117,8 +128,8 @@ def _one_run(file):
             "runs[0].header_line: must be an integer from 1 to 1000000",
         ),
         (
-            BASE + VEHICLE.replace("front = { tires = 2 }", "front = { tires = 99999999 }"),
-            "vehicle.front.tires: must be an integer from 1 to 16",
+            BASE + VEHICLE.replace('{ value = 8000, unit = "N" }', "{ value = 1.79e308, unit = 'N' }"),
+            "vehicle.axles[0].load.value: must be <= 1e+07",
         ),
         (BASE.replace("values = [4000]", "values = [1.79e308]"), "runs[0].load_setpoints.values[0]: must be <= 1e+07"),
         (

@@ -17,7 +17,13 @@ from ..conditioning.drift import DriftEstimate
 from ..conditioning.offsets import OffsetSplit
 from ..conditioning.steady_state import ConditionedRun, ConditioningAccount
 from ..evaluation.identity import SpecimenIdentity, specimen_identity
-from ..evaluation.vehicle import SIMPLIFICATIONS
+from ..evaluation.vehicle import (
+    MULTI_AXLE_SIMPLIFICATION,
+    NO_VEHICLE,
+    ROLLOVER_CAUTION,
+    SIMPLIFICATIONS,
+    VehicleResults,
+)
 from ..metrics.evaluate import MetricValue
 from ..model.fit import ChannelFit
 from ..project.catalogue import METRICS, PRESSURE_SENSITIVE, MetricDefinition
@@ -37,7 +43,7 @@ class Glance:
     rows: tuple  # (metric definition, the baseline's value, one Difference or None per candidate)
     verdict_counts: dict  # specimen -> (meets, marginal, does not meet, not measured)
     baseline_understeer_deg_per_g: float | None
-    handling: tuple  # (candidate, understeer gradient on both axles, change from the baseline's) in deg/g
+    handling: tuple  # (candidate, understeer gradient with it on every axle, change from the baseline's) in deg/g
 
 
 @dataclass(frozen=True)
@@ -174,10 +180,10 @@ class DossierContext:
     verdicts: tuple = ()
     standings: tuple = ()
     recommendation: tuple = (None, "")
-    fitments: tuple = ()
+    vehicle_results: VehicleResults = NO_VEHICLE
     comparison_figures: dict = field(default_factory=dict)
     drifts: tuple[DriftEstimate, ...] = ()  # every rig's control line (`drift` is the first)
-    vehicle_simplifications: tuple[str, ...] = SIMPLIFICATIONS
+    rollover_caution: str = ROLLOVER_CAUTION
     narrative: dict = field(default_factory=dict)  # part -> rendered HTML (Markup)
     downloads_page: str = "downloads.html"
 
@@ -218,26 +224,18 @@ class DossierContext:
             mine = [v.verdict for v in self.verdicts if v.specimen == sid]
             counts[sid] = tuple(mine.count(k) for k in ("meets", "marginal", "does not meet", "not measured"))
         handling = []
-        if self.fitments:
-            own = self.fitment(base, base)
-            for s in standings:
-                b = self.fitment(s.candidate, s.candidate)
-                if own is not None and b is not None:
-                    handling.append(
-                        (
-                            s.candidate,
-                            b.understeer_gradient_deg_per_g,
-                            b.understeer_gradient_deg_per_g - own.understeer_gradient_deg_per_g,
-                        )
-                    )
+        own = self.vehicle_results.uniform(base)
+        for s in standings:
+            b = self.vehicle_results.uniform(s.candidate)
+            if own is not None and b is not None:
+                k, k0 = b.understeer_gradient_deg_per_g.value, own.understeer_gradient_deg_per_g.value
+                handling.append((s.candidate, k, k - k0))
         return Glance(
             base,
             tuple(s.candidate for s in standings),
             tuple(rows),
             counts,
-            None
-            if not self.fitments or self.fitment(base, base) is None
-            else self.fitment(base, base).understeer_gradient_deg_per_g,
+            None if own is None else own.understeer_gradient_deg_per_g.value,
             tuple(handling),
         )
 
@@ -245,12 +243,24 @@ class DossierContext:
     def judged_specimens(self) -> list[str]:
         return list(dict.fromkeys(v.specimen for v in self.verdicts))
 
-    def fitment(self, front: str, rear: str):
-        return next((b for b in self.fitments if b.front == front and b.rear == rear), None)
+    @property
+    def fitments(self) -> tuple:
+        return self.vehicle_results.fitments
 
     @property
-    def fitment_ids(self) -> list[str]:
-        return list(dict.fromkeys(b.front for b in self.fitments))
+    def vehicle_simplifications(self) -> tuple[str, ...]:
+        many = self.vehicle is not None and len(self.vehicle.axles) > 2
+        return SIMPLIFICATIONS + ((MULTI_AXLE_SIMPLIFICATION,) if many else ())
+
+    @property
+    def replacements(self) -> tuple:
+        return self.vehicle_results.replacements
+
+    @property
+    def fitment_findings(self) -> list[str]:
+        return [x for f in self.fitments for x in f.findings] + [
+            f"not evaluated: {x}" for x in self.vehicle_results.not_evaluated
+        ]
 
     @property
     def nominal_condition(self) -> str:
@@ -355,7 +365,7 @@ def make_context(
     judged=(),
     standings=(),
     recommendation=(None, ""),
-    fitments=(),
+    vehicle: VehicleResults = NO_VEHICLE,
     comparison_figures=None,
     condition_metrics=(),
     drifts=(),
@@ -397,7 +407,7 @@ def make_context(
         verdicts=tuple(judged),
         standings=tuple(standings),
         recommendation=recommendation,
-        fitments=tuple(fitments),
+        vehicle_results=vehicle,
         comparison_figures=dict(comparison_figures or {}),
         drifts=tuple(drifts) or ((drift,) if drift else ()),
     )

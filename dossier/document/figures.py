@@ -709,31 +709,31 @@ def difference_figure(standings, style: bytes) -> FigureArtifact:
 
 
 def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
-    """Yaw-rate gain against speed for every fitment with the same specimen on both axles."""
+    """Yaw-rate gain against speed for every declared fitment, each with its equivalent wheelbase."""
     from ..evaluation.vehicle import yaw_rate_gain_per_s
-
-    same = [b for b in fitments if b.front == b.rear]
 
     def draw(fig):
         ax = fig.add_subplot()
         v = np.array(vehicle.speeds_kmh, dtype=float)
         colors = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
-        for i, b in enumerate(same):
+        for i, f in enumerate(fitments):
             c, _, mark = _distinct(i, colors)
+            k = f.understeer_gradient_deg_per_g.value
             # Each curve its own dash and marker, thinner as it comes later, so that two fitments of
             # equal gradient are both seen (the later one drawn over the earlier).
             ax.plot(
                 v,
-                [yaw_rate_gain_per_s(x, b.understeer_gradient_deg_per_g, vehicle.wheelbase_m) for x in v],
+                [yaw_rate_gain_per_s(x, k, f.equivalent_wheelbase_m) for x in v],
                 DASHES[i % len(DASHES)],
                 marker=mark,
                 markevery=max(1, v.size // 8),
                 ms=4,
                 color=c,
                 lw=max(2.4 - 0.5 * i, 0.9),
-                label=f"{b.front} all round (K = {b.understeer_gradient_deg_per_g:+.2f} deg/g)",
+                label=f"{f.name} (K = {k:+.2f} deg/g)",
             )
-        ax.plot(v, (v / 3.6) / vehicle.wheelbase_m, ":", color="0.5", lw=1.0, label="neutral steer")
+        length = fitments[0].equivalent_wheelbase_m
+        ax.plot(v, (v / 3.6) / length, ":", color="0.5", lw=1.0, label=f"neutral steer, L = {length:.2f} m")
         ax.set_xlabel("Speed [km/h]")
         ax.set_ylabel("Yaw-rate gain r/δ [1/s]")
         ax.set_ylim(0, None)
@@ -743,9 +743,9 @@ def yaw_gain_figure(fitments, vehicle, style: bytes) -> FigureArtifact:
     return FigureArtifact(
         "yaw-gain.svg",
         "Yaw-rate gain against speed",
-        "Linear single-track model with each specimen on both axles at its static tire loads; the dotted line is a "
-        "neutral-steer vehicle of the same wheelbase.",
-        "Chart of steady-state yaw-rate gain against speed for each specimen fitted all round.",
+        "Linear single-track model of each declared fitment at its static tire loads, with its equivalent "
+        "wheelbase; the dotted line is a neutral-steer vehicle of the first fitment's wheelbase.",
+        "Chart of steady-state yaw-rate gain against speed for each declared fitment.",
         _render(style, draw),
     )
 

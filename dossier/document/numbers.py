@@ -15,6 +15,7 @@ DECIMALS = {
     "deg": 2,
     "mm": 1,
     "N·m/deg": 2,
+    "deg/g": 2,
     "N·m": 1,
     "N": 0,
     "1/kN": 4,

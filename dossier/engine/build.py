@@ -1,6 +1,6 @@
 """The build, as a recipe: gather everything first, then write.
 
-load the project → condition → drift → offsets → fit and metrics → judge and compare → fitments →
+load the project → condition → drift → offsets → fit and metrics → judge and compare → vehicle fitments →
 figures → context and narrative → results and provenance → site → PDF volumes (annexes, then the
 report that attaches them) → integrity manifest → write.
 
@@ -29,7 +29,7 @@ from ..document.theme import Theme, load_theme
 from ..document.volumes import ANNEXES, REPORT
 from ..evaluation.acceptance import verdicts as judge_targets
 from ..evaluation.comparison import compare_candidates
-from ..evaluation.vehicle import fitment_matrix
+from ..evaluation.vehicle import VehicleResults, evaluate_vehicle
 from ..ingest.rig_table import parse_run
 from ..metrics.budget import BudgetInputs, attach_budgets
 from ..metrics.measured import measured_values, moment_values
@@ -158,7 +158,7 @@ class Evaluation:
     judged: tuple
     standings: tuple
     recommendation: tuple
-    fitments: tuple
+    vehicle: VehicleResults  # every declared fitment and replacement
     combined_points: tuple = ()  # the combined-slip operating points, drift-corrected like the rest
 
 
@@ -213,7 +213,7 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
         manifest.targets, [s.id for s in manifest.specimens if s.role != "control"], every, own_pressure
     )
     standings, recommendation = compare_candidates(manifest, metrics, fz0_n, drift, judged)
-    fitments = fitment_matrix(manifest, models)
+    vehicle = evaluate_vehicle(manifest, models)
 
     return Evaluation(
         tuple(conditioned),
@@ -229,7 +229,7 @@ def evaluate(project: Project, *, cache: Cache | None = None, pool: WorkerPool |
         tuple(judged),
         tuple(standings),
         recommendation,
-        tuple(fitments),
+        vehicle,
         tuple(combined),
     )
 
@@ -242,7 +242,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     e = evaluate(project, cache=cache, pool=pool)
     conditioned, points, fz0_n, p0_kpa, drift = list(e.conditioned), list(e.points), e.fz0_n, e.p0_kpa, e.drift
     offset_splits, models, metrics = list(e.offset_splits), list(e.models), list(e.metrics)
-    judged, standings, recommendation, fitments = list(e.judged), list(e.standings), e.recommendation, list(e.fitments)
+    judged, standings, recommendation, vehicle = list(e.judged), list(e.standings), e.recommendation, e.vehicle
 
     style = theme.figure_style
     tasks = figure_tasks(
@@ -252,7 +252,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         metrics,
         e.drifts,
         standings,
-        fitments,
+        vehicle,
         manifest,
         fz0_n,
         p0_kpa,
@@ -280,7 +280,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         judged=judged,
         standings=standings,
         recommendation=recommendation,
-        fitments=fitments,
+        vehicle=vehicle,
         comparison_figures=comparison_figures,
         condition_metrics=e.condition_metrics,
         drifts=e.drifts,
@@ -297,7 +297,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         judged,
         standings,
         recommendation,
-        fitments,
+        vehicle,
         list(e.condition_metrics),
     )
     evidence = Evidence(
@@ -310,7 +310,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         tuple(judged),
         tuple(standings),
         recommendation,
-        tuple(fitments),
+        vehicle,
         {name: sha256(data) for name, data in project.files.items()},
         tuple(e.condition_metrics),
     )

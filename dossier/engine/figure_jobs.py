@@ -7,7 +7,7 @@ from .specimens import points_of
 from .workers import WorkerPool
 
 
-def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitments, manifest, fz0_n, p0_kpa, style):
+def figure_tasks(models, points, conditioned, metrics, drifts, standings, vehicle, manifest, fz0_n, p0_kpa, style):
     """Every figure of the dossier as (place, function name, arguments): independent jobs."""
     tasks = []
     pure = [p for p in points if not p.combined]  # the comparison charts are of pure slip
@@ -53,8 +53,8 @@ def figure_tasks(models, points, conditioned, metrics, drifts, standings, fitmen
             tasks.append((("comparison", "comparison"), "gough_figure", (models, fz0_n, style)))
     if any(s.differences for s in standings):  # no chart with nothing to show
         tasks.append((("comparison", "comparison"), "difference_figure", (standings, style)))
-    if fitments and manifest.vehicle:
-        tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (fitments, manifest.vehicle, style)))
+    if vehicle.fitments and manifest.vehicle:
+        tasks.append((("comparison", "vehicle"), "yaw_gain_figure", (vehicle.fitments, manifest.vehicle, style)))
     return tasks
 
 

@@ -146,25 +146,7 @@ def check_references(data: dict, problems: list[Problem]) -> None:
         problems.append(Problem("revisions", f"has no entry for the document's revision {doc['revision']!r}"))
     v = data.get("vehicle")
     if v:
-        by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
-        by_load = v.get("front_axle_load") is not None or v.get("rear_axle_load") is not None
-        if by_mass == by_load:
-            problems.append(
-                Problem("vehicle", "give either mass and cg_to_front_axle, or front_axle_load and rear_axle_load")
-            )
-        elif by_mass and (v.get("mass") is None or v.get("cg_to_front_axle") is None):
-            problems.append(Problem("vehicle", "mass and cg_to_front_axle go together; one of them is missing"))
-        elif by_load and (v.get("front_axle_load") is None or v.get("rear_axle_load") is None):
-            problems.append(
-                Problem("vehicle", "front_axle_load and rear_axle_load go together; one of them is missing")
-            )
-        elif by_mass and v.get("wheelbase") and v.get("cg_to_front_axle"):
-            L = quantity_value(v["wheelbase"], "length")
-            b = quantity_value(v["cg_to_front_axle"], "length")
-            if not 0 < b < L:
-                problems.append(
-                    Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m")
-                )
+        _check_vehicle(v, specimens, problems)
     drift = data.get("drift")
     if drift and drift.get("control") and ids:
         ctl = drift["control"]
@@ -207,4 +189,104 @@ def check_references(data: dict, problems: list[Problem]) -> None:
                     join_path("labs", name),
                     f"no run names this lab{suggest(name, [n for n in run_labs if n])}; the runs' labs are {lab_names}",
                 )
+            )
+
+
+def _check_vehicle(v: dict, specimens: list, problems: list[Problem]) -> None:
+    """Axle loads given one way, axles front to back, each fitment naming every axle once with a
+    declared specimen, replacements naming another fitment, wide-base sizes never in dual pairs."""
+    axles = [a for a in (v.get("axles") or []) if a]
+    names = [a.get("name") for a in axles if a.get("name")]
+    for i, a in enumerate(axles):
+        if a.get("name") in names[:i]:
+            problems.append(Problem(f"vehicle.axles[{i}].name", f"duplicate axle name {a['name']!r}"))
+    by_mass = v.get("mass") is not None or v.get("cg_to_front_axle") is not None
+    loaded = [i for i, a in enumerate(axles) if a.get("load") is not None]
+    if by_mass:
+        if v.get("mass") is None or v.get("cg_to_front_axle") is None:
+            problems.append(Problem("vehicle", "mass and cg_to_front_axle go together; one of them is missing"))
+        elif len(axles) != 2:
+            problems.append(
+                Problem(
+                    "vehicle.mass",
+                    f"gives axle loads for two axles only; got {len(axles)} axles: give each axle its load",
+                )
+            )
+        elif loaded:
+            problems.append(
+                Problem(
+                    f"vehicle.axles[{loaded[0]}].load",
+                    "give either the vehicle's mass and cg_to_front_axle or each axle's load, not both",
+                )
+            )
+        elif all(a.get("from_front") for a in axles):
+            L = quantity_value(axles[1]["from_front"], "length") - quantity_value(axles[0]["from_front"], "length")
+            b = quantity_value(v["cg_to_front_axle"], "length")
+            if not 0 < b < L:
+                problems.append(
+                    Problem("vehicle.cg_to_front_axle", f"must lie between the axles (0 … {L:.3f} m); got {b:.3f} m")
+                )
+    else:
+        for i, a in enumerate(axles):
+            if a.get("load") is None:
+                problems.append(
+                    Problem(
+                        f"vehicle.axles[{i}].load",
+                        "is required (or give the vehicle's mass and cg_to_front_axle for two axles)",
+                    )
+                )
+    positions = [quantity_value(a["from_front"], "length") for a in axles if a.get("from_front")]
+    if len(positions) == len(axles):
+        for i in range(1, len(positions)):
+            if positions[i] <= positions[i - 1]:
+                problems.append(
+                    Problem(
+                        f"vehicle.axles[{i}].from_front",
+                        f"axles go front to back: must be more than {positions[i - 1]:.3f} m (axle {i - 1}); "
+                        f"got {positions[i]:.3f} m",
+                    )
+                )
+    if axles and not any(
+        a.get("steered") or (a.get("steered") is None and a.get("position") == "steer") for a in axles
+    ):
+        problems.append(Problem("vehicle.axles", "no axle steers: give one position = 'steer' or steered = true"))
+    sizes = {s["id"]: s.get("size") for s in specimens if s and s.get("id")}
+    fitments = [f for f in (v.get("fitments") or []) if f]
+    fit_names = [f.get("name") for f in fitments if f.get("name")]
+    for i, f in enumerate(fitments):
+        where = f"vehicle.fitments[{i}]"
+        if f.get("name") in fit_names[:i]:
+            problems.append(Problem(f"{where}.name", f"duplicate fitment name {f['name']!r}"))
+        rep = f.get("replaces")
+        if rep is not None and (rep not in fit_names or rep == f.get("name")):
+            others = [n for n in fit_names if n != f.get("name")]
+            problems.append(
+                Problem(f"{where}.replaces", f"must name another fitment; got {rep!r}{suggest(rep, others)}")
+            )
+        mounted = f.get("mounted") or {}
+        for axle, m in mounted.items():
+            at = join_path(f"{where}.mounted", axle)
+            if axle not in names:
+                problems.append(Problem(at, f"no axle named {axle!r}{suggest(axle, names)}"))
+            if not m or not m.get("specimen"):
+                continue
+            sid = m["specimen"]
+            if sid not in sizes:
+                problems.append(Problem(f"{at}.specimen", f"no specimen with id {sid!r}{suggest(sid, list(sizes))}"))
+                continue
+            size = sidewall.parse_size(sizes[sid] or "")
+            if m.get("assembly") == "dual" and size is not None and size.wide_base:
+                problems.append(
+                    Problem(
+                        f"{at}.assembly",
+                        f"{sid} ({sizes[sid]}) is a wide-base single, fitted in place of a dual pair, never in one; "
+                        "expected 'wide-base single'",
+                    )
+                )
+            if m.get("assembly") != "dual" and m.get("dual_spacing") is not None:
+                problems.append(Problem(f"{at}.dual_spacing", "applies to a dual assembly only"))
+        missing = [n for n in names if n not in mounted]
+        if f.get("mounted") is not None and missing:
+            problems.append(
+                Problem(f"{where}.mounted", f"names no mounting for axle(s) {', '.join(map(repr, missing))}")
             )

@@ -14,6 +14,7 @@ import numpy as np
 
 from ..standards import axes, units
 from ..standards.statics import static_axle_loads_n
+from ..standards.units import STANDARD_GRAVITY_M_PER_S2
 
 MANIFEST_NAME = "dossier.toml"
 ROLES = ("baseline", "candidate", "control")
@@ -150,21 +151,84 @@ class Target:
         return f"≥ {self.minimum:g}" if self.minimum is not None else f"≤ {self.maximum:g}"
 
 
+AXLE_POSITIONS = ("steer", "drive", "tag", "pusher", "trailer", "free-rolling")
+ASSEMBLIES = ("single", "dual", "wide-base single")
+TIRES_PER_AXLE = {"single": 2, "dual": 4, "wide-base single": 2}  # a dual assembly: a pair each side
+
+
 @dataclass(frozen=True)
 class AxleSpec:
-    tires: int
-    kind: str
+    """One axle of the vehicle: where it is, what it carries, whether it steers."""
+
+    name: str
+    position: str  # one of AXLE_POSITIONS
+    from_front_m: float  # distance behind the first axle
+    load_n: float  # static axle load
+    track_m: float | None  # between the centres of the axle's tires (dual pairs: of the pairs)
+    steered: bool
+
+
+@dataclass(frozen=True)
+class Mounting:
+    """What one fitment puts on one axle: a specimen and its assembly."""
+
+    axle: str
+    specimen: str
+    assembly: str  # one of ASSEMBLIES
+    dual_spacing_m: float | None = None  # centre to centre of the two tires of a dual pair
+    track_m: float | None = None  # this assembly's own track where it differs from the axle's
+
+    @property
+    def tires(self) -> int:
+        return TIRES_PER_AXLE[self.assembly]
+
+
+@dataclass(frozen=True)
+class FitmentSpec:
+    """A declared fitment: one mounting per axle, in the vehicle's axle order."""
+
+    index: int
+    name: str
+    mountings: tuple[Mounting, ...]
+    replaces: str | None = None  # the fitment this one is a replacement for
+
+    @property
+    def location(self) -> str:
+        return f"vehicle.fitments[{self.index}]"
+
+    def on(self, axle: str) -> Mounting:
+        return next(m for m in self.mountings if m.axle == axle)
+
+    def uniform_specimen(self) -> str | None:
+        """The specimen on every axle, or None when the fitment mixes specimens."""
+        ids = {m.specimen for m in self.mountings}
+        return next(iter(ids)) if len(ids) == 1 else None
 
 
 @dataclass(frozen=True)
 class VehicleSpec:
     name: str
-    wheelbase_m: float
-    front_axle_load_n: float
-    rear_axle_load_n: float
-    front: AxleSpec
-    rear: AxleSpec
+    axles: tuple[AxleSpec, ...]  # front to back
+    fitments: tuple[FitmentSpec, ...]
     speeds_kmh: tuple[float, ...]
+    cg_height_m: float | None = None
+
+    @property
+    def mass_kg(self) -> float:
+        return sum(a.load_n for a in self.axles) / STANDARD_GRAVITY_M_PER_S2
+
+    @property
+    def cg_from_front_m(self) -> float:
+        """The centre of gravity behind the first axle, from the static axle loads (moments about it)."""
+        return sum(a.load_n * a.from_front_m for a in self.axles) / sum(a.load_n for a in self.axles)
+
+    @property
+    def wheelbase_m(self) -> float:
+        """First axle to last axle (the equivalent wheelbase of a fitment is on its result)."""
+        return self.axles[-1].from_front_m - self.axles[0].from_front_m
+
+    def fitment(self, name: str) -> FitmentSpec:
+        return next(f for f in self.fitments if f.name == name)
 
 
 @dataclass(frozen=True)
@@ -385,20 +449,48 @@ def quantity_value(q: dict, quantity: str) -> float:
 
 
 def _vehicle(v: dict) -> VehicleSpec:
-    L = quantity_value(v["wheelbase"], "length")
-    if v["mass"]:
-        front, rear = static_axle_loads_n(
-            quantity_value(v["mass"], "mass"), L, quantity_value(v["cg_to_front_axle"], "length")
+    axles = v["axles"]
+    loads: tuple[float, ...]
+    if v["mass"]:  # two axles, checked: the loads from the mass and its centre of gravity
+        loads = static_axle_loads_n(
+            quantity_value(v["mass"], "mass"),
+            quantity_value(axles[1]["from_front"], "length") - quantity_value(axles[0]["from_front"], "length"),
+            quantity_value(v["cg_to_front_axle"], "length"),
         )
     else:
-        front, rear = quantity_value(v["front_axle_load"], "force"), quantity_value(v["rear_axle_load"], "force")
+        loads = tuple(quantity_value(a["load"], "force") for a in axles)
     speeds = tuple(v["speeds_kmh"]) if v["speeds_kmh"] else tuple(float(x) for x in range(20, 201, 10))
-    return VehicleSpec(
-        v["name"],
-        L,
-        front,
-        rear,
-        AxleSpec(v["front"]["tires"], v["front"]["kind"]),
-        AxleSpec(v["rear"]["tires"], v["rear"]["kind"]),
-        speeds,
+    specs = tuple(
+        AxleSpec(
+            a["name"],
+            a["position"],
+            quantity_value(a["from_front"], "length"),
+            load,
+            quantity_value(a["track"], "length") if a["track"] else None,
+            a["position"] == "steer" if a["steered"] is None else a["steered"],
+        )
+        for a, load in zip(axles, loads)
     )
+    fitments = tuple(
+        FitmentSpec(
+            i,
+            f["name"],
+            tuple(
+                Mounting(
+                    a.name,
+                    f["mounted"][a.name]["specimen"],
+                    f["mounted"][a.name]["assembly"],
+                    _length_or_none(f["mounted"][a.name]["dual_spacing"]),
+                    _length_or_none(f["mounted"][a.name]["track"]),
+                )
+                for a in specs
+            ),
+            f["replaces"],
+        )
+        for i, f in enumerate(v["fitments"])
+    )
+    return VehicleSpec(v["name"], specs, fitments, speeds, _length_or_none(v["cg_height"]))
+
+
+def _length_or_none(q: dict | None) -> float | None:
+    return None if not q else quantity_value(q, "length")

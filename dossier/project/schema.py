@@ -13,6 +13,8 @@ from dataclasses import dataclass
 from ..standards import axes
 from .catalogue import METRICS
 from .manifest import (
+    ASSEMBLIES,
+    AXLE_POSITIONS,
     CHANNELS,
     ROLES,
     SIGNOFF_ROLES,
@@ -60,11 +62,54 @@ def _quantity(quantity: str) -> Table:
     )
 
 
+def _length_from_zero() -> Table:
+    return Table({"value": Key(Number(minimum=0, maximum=MAX_QUANTITY)), "unit": Key(Unit("length"))})
+
+
 def _axle() -> Table:
     return Table(
         {
-            "tires": Key(Integer(minimum=1, maximum=16)),
-            "kind": Key(Choice(("single", "dual", "wide-base single")), required=False, default="single"),
+            "name": Key(Text(), help="the axle's name, as the fitments give it (steer, drive-1, ...)"),
+            "position": Key(Choice(AXLE_POSITIONS)),
+            "from_front": Key(_length_from_zero(), help="distance behind the first axle (the first axle: 0)"),
+            "load": Key(
+                _quantity("force"),
+                required=False,
+                help="static axle load (without the vehicle's mass and centre of gravity)",
+            ),
+            "track": Key(
+                _quantity("length"),
+                required=False,
+                help="between the centres of the axle's tires (dual pairs: between the pairs' centres)",
+            ),
+            "steered": Key(Boolean(), required=False, help="default: a steer axle steers, the others do not"),
+        }
+    )
+
+
+def _mounting() -> Table:
+    return Table(
+        {
+            "specimen": Key(Text()),
+            "assembly": Key(Choice(ASSEMBLIES), required=False, default="single"),
+            "dual_spacing": Key(
+                _quantity("length"), required=False, help="centre to centre of the two tires of a dual pair"
+            ),
+            "track": Key(
+                _quantity("length"), required=False, help="this assembly's own track, where it differs from the axle's"
+            ),
+        }
+    )
+
+
+def _fitment() -> Table:
+    return Table(
+        {
+            "name": Key(Text()),
+            "mounted": Key(NamedTables(_mounting()), help="per axle name: the specimen and its assembly"),
+            "replaces": Key(
+                Text(), required=False, help="the fitment this one replaces: compared axle for axle at equal axle load"
+            ),
         }
     )
 
@@ -333,17 +378,19 @@ MANIFEST_SCHEMA = Table(
             Table(
                 {
                     "name": Key(Text()),
-                    "wheelbase": Key(_quantity("length")),
-                    "mass": Key(_quantity("mass"), required=False),
+                    "mass": Key(_quantity("mass"), required=False, help="two axles only: gives the axle loads"),
                     "cg_to_front_axle": Key(
                         _quantity("length"),
                         required=False,
-                        help="distance from the front axle back to the centre of gravity",
+                        help="two axles only: distance from the front axle back to the centre of gravity",
                     ),
-                    "front_axle_load": Key(_quantity("force"), required=False),
-                    "rear_axle_load": Key(_quantity("force"), required=False),
-                    "front": Key(_axle()),
-                    "rear": Key(_axle()),
+                    "cg_height": Key(
+                        _quantity("length"),
+                        required=False,
+                        help="centre-of-gravity height above the ground (for the static rollover threshold)",
+                    ),
+                    "axles": Key(ListOf(_axle(), min_items=2, max_items=12), help="front to back"),
+                    "fitments": Key(ListOf(_fitment(), min_items=1), help="what is mounted on each axle"),
                     "speeds_kmh": Key(ListOf(Number(minimum=1, maximum=400), min_items=2), required=False),
                 }
             ),

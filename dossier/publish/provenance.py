@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 from .. import __version__
 from ..conditioning.drift import DriftEstimate
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint, same_condition
+from ..evaluation.vehicle import NO_VEHICLE, VehicleResults
 from ..metrics.evaluate import MetricValue
 from ..model.fit import BASE_CHANNEL, CHANNEL_SYMBOL
 from ..project.catalogue import METRICS
@@ -96,7 +97,7 @@ class Evidence:
     verdicts: tuple = ()
     standings: tuple = ()
     recommendation: tuple = (None, "")
-    fitments: tuple = ()
+    vehicle: VehicleResults = NO_VEHICLE
     input_sha256: dict = field(default_factory=dict)  # relative path -> SHA-256 of the project's files
     condition_metrics: tuple[MetricValue, ...] = ()  # at the other conditions tested
 
@@ -423,28 +424,42 @@ def provenance_record(manifest: Manifest, evidence: Evidence) -> dict:
             )
         )
 
-    # Vehicle balance: each fitment from the lateral fits of its front and rear specimens.
-    if evidence.fitments:
+    # Vehicle balance: each declared fitment from the lateral fits of the specimens on its axles; each
+    # replacement from the two fitments it compares.
+    if evidence.vehicle.fitments:
         balancing = r.activity(
             pid("vehicle", "balance"),
             {
-                "prov:label": "understeer gradient of every fitment from axle cornering stiffnesses",
+                "prov:label": "understeer gradient of each declared fitment from its axles' cornering stiffnesses",
                 "d:software": soft_label,
             },
             software,
             used=(man,),
         )
-        for b in evidence.fitments:
-            sources = list(dict.fromkeys([fit_id(b.front, "fy"), fit_id(b.rear, "fy")]))
+        for fitted in evidence.vehicle.fitments:
+            sources = list(dict.fromkeys(fit_id(a.specimen, "fy") for a in fitted.axles))
             outcome.append(
                 r.entity(
-                    pid("fitment", b.front, b.rear),
+                    pid("fitment", fitted.name),
                     {
-                        "prov:label": f"front {b.front}, rear {b.rear}: understeer gradient",
-                        "prov:value": float(b.understeer_gradient_deg_per_g),
+                        "prov:label": f"fitment {fitted.name}: understeer gradient",
+                        "prov:value": float(fitted.understeer_gradient_deg_per_g.value),
                         "d:unit": "deg/g",
                     },
                     derived_from=sources + [man],
+                    generated_by=balancing,
+                )
+            )
+        for x in evidence.vehicle.replacements:
+            outcome.append(
+                r.entity(
+                    pid("replacement", x.fitment, x.replaces),
+                    {
+                        "prov:label": f"{x.fitment} in place of {x.replaces}: change of the understeer gradient",
+                        "prov:value": float(x.understeer_gradient_change_deg_per_g.value),
+                        "d:unit": "deg/g",
+                    },
+                    derived_from=[pid("fitment", x.fitment), pid("fitment", x.replaces)],
                     generated_by=balancing,
                 )
             )

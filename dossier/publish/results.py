@@ -18,14 +18,15 @@ from .. import __version__
 from ..conditioning.drift import DriftEstimate
 from ..conditioning.offsets import OffsetSplit
 from ..conditioning.steady_state import ConditionedRun, OperatingPoint
+from ..evaluation.vehicle import NO_VEHICLE, Estimate, VehicleResults
 from ..metrics.budget import Budget
 from ..metrics.evaluate import MetricValue
 from ..model.fit import MODEL_NAME, SLIP_UNIT, ChannelFit
 from ..project.catalogue import METRICS
-from ..project.manifest import Manifest
+from ..project.manifest import Manifest, VehicleSpec
 from ..standards import axes
 
-RESULTS_SCHEMA_VERSION = "1"
+RESULTS_SCHEMA_VERSION = "2"  # 2: the vehicle block holds declared fitments and replacements
 
 
 def _num(x: float | None) -> float | None:
@@ -204,7 +205,7 @@ def results_record(
     verdicts=(),
     standings=(),
     recommendation=(None, ""),
-    fitments=(),
+    vehicle: VehicleResults = NO_VEHICLE,
     condition_metrics: Sequence[MetricValue] = (),
 ) -> dict:
     """Return the ``results.json`` content as plain data (`metrics`: at each specimen's nominal
@@ -352,33 +353,86 @@ def results_record(
             for s in standings
         ],
         "recommendation": {"candidate": recommendation[0], "reason": recommendation[1]},
-        "vehicle": None
-        if manifest.vehicle is None
-        else {
-            "name": manifest.vehicle.name,
-            "wheelbase_m": _num(manifest.vehicle.wheelbase_m),
-            "front_axle_load_n": _num(manifest.vehicle.front_axle_load_n),
-            "rear_axle_load_n": _num(manifest.vehicle.rear_axle_load_n),
-            "fitments": [
-                {
-                    "front": b.front,
-                    "rear": b.rear,
-                    "front_tire_load_n": _num(b.front_tire_load_n),
-                    "rear_tire_load_n": _num(b.rear_tire_load_n),
-                    "front_axle_stiffness_n_per_deg": _num(b.front_axle_stiffness_n_per_deg),
-                    "rear_axle_stiffness_n_per_deg": _num(b.rear_axle_stiffness_n_per_deg),
-                    "understeer_gradient_deg_per_g": _num(b.understeer_gradient_deg_per_g),
-                    "understeer_gradient_ci95": None
-                    if b.understeer_gradient_ci95 is None
-                    else [_num(b.understeer_gradient_ci95[0]), _num(b.understeer_gradient_ci95[1])],
-                    "characteristic_speed_kmh": _num(b.characteristic_speed_kmh),
-                    "critical_speed_kmh": _num(b.critical_speed_kmh),
-                    "character": b.character,
-                    "extrapolated": b.extrapolated,
-                }
-                for b in fitments
-            ],
-        },
+        "vehicle": None if manifest.vehicle is None else _vehicle_record(manifest.vehicle, vehicle),
+    }
+
+
+def _estimate(e: Estimate | None) -> dict | None:
+    if e is None:
+        return None
+    return {"value": _num(e.value), "ci95": None if e.ci95 is None else [_num(e.ci95[0]), _num(e.ci95[1])]}
+
+
+def _vehicle_record(spec: VehicleSpec, vehicle: VehicleResults) -> dict:
+    return {
+        "name": spec.name,
+        "mass_kg": _num(spec.mass_kg),
+        "cg_from_front_m": _num(spec.cg_from_front_m),
+        "cg_height_m": _num(spec.cg_height_m),
+        "axles": [
+            {
+                "name": a.name,
+                "position": a.position,
+                "from_front_m": _num(a.from_front_m),
+                "load_n": _num(a.load_n),
+                "track_m": _num(a.track_m),
+                "steered": a.steered,
+            }
+            for a in spec.axles
+        ],
+        "fitments": [
+            {
+                "name": f.name,
+                "replaces": f.replaces,
+                "axles": [
+                    {
+                        "axle": a.axle,
+                        "specimen": a.specimen,
+                        "assembly": a.assembly,
+                        "tires": a.tires,
+                        "tire_load_n": _num(a.tire_load_n),
+                        "rated_load_kg": _num(a.rated_load_kg),
+                        "load_index": a.load_index,
+                        "over_rating": a.over_rating,
+                        "cornering_stiffness_n_per_deg": _estimate(a.cornering_stiffness_n_per_deg),
+                        "lateral_capacity_n": _estimate(a.lateral_capacity_n),
+                        "aligning_stiffness_nm_per_deg": _estimate(a.aligning_stiffness_nm_per_deg),
+                        "effective_track_m": _num(a.effective_track_m),
+                        "extrapolated": a.extrapolated,
+                    }
+                    for a in f.axles
+                ],
+                "understeer_gradient_deg_per_g": _estimate(f.understeer_gradient_deg_per_g),
+                "equivalent_wheelbase_m": _num(f.equivalent_wheelbase_m),
+                "characteristic_speed_kmh": _num(f.characteristic_speed_kmh),
+                "critical_speed_kmh": _num(f.critical_speed_kmh),
+                "character": f.character,
+                "static_rollover_threshold_g": _num(f.rollover_threshold_g),
+                "findings": list(f.findings),
+            }
+            for f in vehicle.fitments
+        ],
+        "replacements": [
+            {
+                "fitment": r.fitment,
+                "replaces": r.replaces,
+                "axles": [
+                    {
+                        "axle": c.axle,
+                        "before": {"specimen": c.before.specimen, "assembly": c.before.assembly},
+                        "after": {"specimen": c.after.specimen, "assembly": c.after.assembly},
+                        "cornering_stiffness_change_pct": _estimate(c.cornering_stiffness_pct),
+                        "lateral_capacity_change_pct": _estimate(c.lateral_capacity_pct),
+                        "aligning_stiffness_change_pct": _estimate(c.aligning_stiffness_pct),
+                    }
+                    for c in r.changes
+                ],
+                "understeer_gradient_change_deg_per_g": _estimate(r.understeer_gradient_change_deg_per_g),
+                "static_rollover_threshold_change_g": _num(r.rollover_threshold_change_g),
+            }
+            for r in vehicle.replacements
+        ],
+        "not_evaluated": list(vehicle.not_evaluated),
     }
 
 
