@@ -313,6 +313,7 @@ class DossierContext:
                     f"the rig's force level{where} drifted {mu.over_session_pct:+.1f} % over the session "
                     f"({'corrected' if line.corrected else 'not corrected'})"
                 )
+        out += [f"vehicle: {f}" for f in self.fitment_findings]
         return out
 
     @property
