@@ -414,6 +414,10 @@ def test_a_three_axle_vehicle_reads_with_its_fitments(tmp_path):
             "vehicle.mass: gives axle loads for two axles only; got 3 axles",
         ),
         (lambda t: t.replace('load = { value = 7100, unit = "kgf" }\n', ""), "vehicle.axles[0].load: is required"),
+        (
+            lambda t: t.replace('name = "wide-base"', 'name = "Duals"'),
+            "vehicle.fitments[1].name: 'Duals' and 'duals' differ only in punctuation or case",
+        ),
         (lambda t: t.replace('position = "steer"', 'position = "drive"'), "vehicle.axles: no axle steers"),
         (lambda t: t.replace('position = "steer"', 'position = "front"'), "vehicle.axles[0].position:"),
     ],

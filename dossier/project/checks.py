@@ -257,6 +257,16 @@ def _check_vehicle(v: dict, specimens: list, problems: list[Problem]) -> None:
         where = f"vehicle.fitments[{i}]"
         if f.get("name") in fit_names[:i]:
             problems.append(Problem(f"{where}.name", f"duplicate fitment name {f['name']!r}"))
+        elif f.get("name"):
+            twin = next((n for n in fit_names[:i] if slug(n) == slug(f["name"])), None)
+            if twin is not None:
+                problems.append(
+                    Problem(
+                        f"{where}.name",
+                        f"{f['name']!r} and {twin!r} differ only in punctuation or case, which the "
+                        "provenance record and the file names may not keep apart: rename one",
+                    )
+                )
         rep = f.get("replaces")
         if rep is not None and (rep not in fit_names or rep == f.get("name")):
             others = [n for n in fit_names if n != f.get("name")]
