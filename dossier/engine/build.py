@@ -50,7 +50,7 @@ from ..publish.provenance import Evidence, provenance_bytes, provenance_record
 from ..publish.results import coefficient_files, conditioned_data_files, results_record
 from ..publish.writer import json_bytes, refuse_foreign, write_dossier
 from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
-from .figure_jobs import figure_tasks, place_figures, run_figure_tasks
+from .figure_jobs import draw_figures, figure_tasks, place_figures
 from .freshness import build_key, output_is_current
 from .specimens import fit_specimens, split_nominal
 from .workers import WorkerPool
@@ -89,7 +89,9 @@ def check(project: Project, cache: Cache | None = None) -> list[ConditionedRun]:
         rated = rated_load_n(manifest.specimen(spec.specimen))
         raw = project.files[spec.file]
         key = digest("conditioned", spec, manifest.conditioning, rated, raw)
-        run = cache.get_or_compute(key, lambda: condition_run(parse_run(raw, spec), manifest.conditioning, rated))
+        run = cache.get_or_compute(
+            key, lambda: condition_run(parse_run(raw, spec), manifest.conditioning, rated), f"run {spec.index}"
+        )
         return with_content_key(run, key)
 
     conditioned = [conditioned_run(spec) for spec in manifest.runs]
@@ -258,10 +260,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         p0_kpa,
         style,
     )
-    rendered = cache.get_or_compute(
-        digest("figures", [(place, name, args[:-1]) for place, name, args in tasks], style),
-        lambda: run_figure_tasks(tasks, pool),
-    )
+    rendered = draw_figures(tasks, style, cache, pool)
     specimen_figures, summary_figures, quality_figures, drift_figures, comparison_figures = place_figures(
         tasks, rendered
     )
@@ -360,7 +359,7 @@ def render_volumes(
     out = {name: cache.get(key) for name, key in keys.items()}
     todo = [pdf_job(ctx, env, v, site, attachments) for v in volumes if out[v.filename] is MISSING]
     for job, pdf in zip(todo, pool.map(render_pdf, todo, cost=lambda job: len(job.html))):
-        cache.put(keys[job.volume.filename], pdf)
+        cache.put(keys[job.volume.filename], pdf, f"pdf {job.volume.filename}")
         out[job.volume.filename] = pdf
     return out
 

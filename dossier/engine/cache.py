@@ -64,6 +64,19 @@ def digest(*parts: Any) -> str:
     return h.hexdigest()
 
 
+def digest_each(items, *common: Any) -> list[str]:
+    """One digest per item, each of `common` and the item: what :func:`digest` gives for
+    ``digest(*common, item)``, with each object met in several items hashed once."""
+    memo: dict[int, bytes] = {}
+    out = []
+    for item in items:
+        h = hashlib.sha256(code_version().encode())
+        for part in (*common, item):
+            _feed(h, part, memo)
+        out.append(h.hexdigest())
+    return out
+
+
 CONTENT_KEY = "_dossier_content_key"
 
 
@@ -131,6 +144,7 @@ class Cache:
         self.folder = Path(folder) if folder else None
         self.hits = 0
         self.misses = 0
+        self.computed: list[str] = []  # what this build computed, by label ("figure …", "pdf …"), in order
         self._used: set[Path] = set()  # entries read or written by this build: never pruned
 
     def get(self, key: str) -> Any:
@@ -149,15 +163,16 @@ class Cache:
         self.misses += 1
         return MISSING
 
-    def get_or_compute(self, key: str, compute: Callable[[], Any]) -> Any:
+    def get_or_compute(self, key: str, compute: Callable[[], Any], label: str = "") -> Any:
         value = self.get(key)
         if value is MISSING:
             value = compute()
-            self.put(key, value)
+            self.put(key, value, label)
         return value
 
-    def put(self, key: str, value: Any) -> None:
+    def put(self, key: str, value: Any, label: str = "") -> None:
         check()  # a signal whose exception the computation swallowed: never store what it made
+        self.computed.append(label or key[:12])
         if self.folder is not None:
             self._store(key, value)
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from ..project.catalogue import METRICS, STIFFNESS_METRICS
+from .cache import MISSING, Cache, digest_each
 from .specimens import points_of
 from .workers import WorkerPool
 
@@ -72,6 +73,21 @@ FIGURE_COST = {"time_history_figure": 1.5, "conditions_figure": 1.4, "residual_f
 def run_figure_tasks(tasks, pool: WorkerPool) -> list:
     """Render every figure in the pool's workers (the SVG bytes do not depend on their number)."""
     return pool.map(_render_task, tasks, cost=lambda task: FIGURE_COST.get(task[1], 1.0))
+
+
+def draw_figures(tasks, style: bytes, cache: Cache, pool: WorkerPool) -> list:
+    """Every figure of `tasks`, each cached on its own under what it is drawn from (its place, its
+    function, its arguments and the theme's figure style): a change redraws only the figures it reaches."""
+    keys = digest_each(
+        [(place, name, tuple(a for a in args if a is not style)) for place, name, args in tasks], "figure", style
+    )
+    drawn = [cache.get(key) for key in keys]
+    todo = [i for i, fig in enumerate(drawn) if fig is MISSING]
+    for i, fig in zip(todo, run_figure_tasks([tasks[i] for i in todo], pool)):
+        place, name, _ = tasks[i]
+        cache.put(keys[i], fig, f"figure {':'.join(map(str, place))} {fig.filename}")
+        drawn[i] = fig
+    return drawn
 
 
 def place_figures(tasks, rendered):

@@ -110,9 +110,9 @@ def fit_specimens(
     values: dict[str, list[MetricValue]] = {}
     for (key, _), found in zip(metric_jobs, pool.map(_metrics_job, [mj for _, mj in metric_jobs])):
         values.setdefault(key, []).extend(found)
-    for (key, _), model in zip(todo, models):
+    for (key, job), model in zip(todo, models):
         results[key] = None if model is None else (model, values[key])
-        cache.put(key, results[key])
+        cache.put(key, results[key], f"specimen {job.specimen}")
     for key in keys:
         if results[key] is not None:  # each fit is fully determined by its job's key
             for fit in results[key][0].channels:
