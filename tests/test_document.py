@@ -133,7 +133,7 @@ def test_project_override_without_cautions_fails(tmp_path):
 def test_plain_theme_inherits_from_default(small, tmp_path):
     root, _ = small
     build(root, tmp_path / "plain", theme_name="plain")
-    css = (tmp_path / "plain/site/static/screen.css").read_text(encoding="utf-8")
+    css = (tmp_path / "plain/site/static/common.css").read_text(encoding="utf-8")
     assert css.index("dossier default theme") < css.index("plain theme")  # parent rules first
     assert "Evaluation dossier (monochrome)" in (tmp_path / "plain/site/index.html").read_text(encoding="utf-8")
     with pytest.raises(UserError, match="theme 'nope' not found"):

@@ -38,6 +38,7 @@ def test_site_pages_work_from_disk(demo_out):
         "figures/fy-prd-a.svg",
         "figures/mz-prd-a.svg",
         "figures/fy-residuals-prd-a.svg",
+        "static/common.css",
         "static/screen.css",
     ):
         assert (site / img).is_file()

@@ -1,7 +1,9 @@
 """Themes: data plus templates.
 
 A theme is a folder with ``theme.toml`` (``name``, optional ``parent``, ``[options]``), Jinja2
-templates, ``screen.css``, ``print.css`` and a matplotlib style ``figures.mplstyle``. Its
+templates, ``common.css`` (the rules the site and the PDF share), ``screen.css`` (the site only: a
+change there re-renders no PDF), ``print.css`` (the PDF and printed pages) and a matplotlib style
+``figures.mplstyle``. Its
 ``theme.toml`` is validated like the manifest: an unknown key, a misspelt option or a parent
 that does not exist is an error naming the file and key. Template search order: the project's
 ``templates/`` override folder, the theme, its parent (and so on).
@@ -23,7 +25,7 @@ from ..common.errors import ManifestError, Problem, UserError
 from ..project.validation import Key, Table, Text
 
 THEME_FILE = "theme.toml"
-STATIC_FILES = ("screen.css", "print.css")
+STATIC_FILES = ("common.css", "screen.css", "print.css")  # common.css: what the site and the PDF share
 FIGURE_STYLE = "figures.mplstyle"
 # The options a theme may set, with their defaults (the one place they are stated).
 OPTIONS = {"organisation_label": "Tire evaluation dossier"}

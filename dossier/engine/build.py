@@ -49,7 +49,7 @@ from ..publish.layout import (
 from ..publish.provenance import Evidence, provenance_bytes, provenance_record
 from ..publish.results import coefficient_files, conditioned_data_files, results_record
 from ..publish.writer import json_bytes, refuse_foreign, write_dossier
-from .cache import CACHE_DIR, MISSING, Cache, digest, with_content_key
+from .cache import CACHE_DIR, MISSING, Cache, digest, digest_each, with_content_key
 from .figure_jobs import draw_figures, figure_tasks, place_figures
 from .freshness import build_key, output_is_current
 from .specimens import fit_specimens, split_nominal
@@ -323,17 +323,15 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     }
     env = make_environment(theme, project.templates, cache.compiled_templates())
     site = render_site(ctx, env, theme, data_files)
-    templates = {**theme.files, **{f"templates/{k}": v for k, v in project.templates.items()}}
-    annexes = render_volumes(ANNEXES, facts, env, site, templates, cache, pool)
+    annexes = render_volumes(ANNEXES, facts, env, site, cache, pool)
     archived = {f"{INPUTS}/{k}": v for k, v in project.files.items()}
     # The report carries every other file of the dossier but the site, and the integrity manifest
-    # of all of them, so that the PDF alone can be checked and rebuilt from.
+    # of what it carries, so that the PDF alone can be checked and rebuilt from. The site is a
+    # rendering of the same content for the screen: the folder's manifest and its seal cover it,
+    # and the report does not depend on it (a screen-only change re-renders no PDF).
     carried = {**data_files, **annexes, **archived}
-    others = {**{f"site/{k}": v for k, v in site.items()}, **carried}
-    report = render_volumes(
-        (REPORT,), ctx, env, site, templates, cache, pool, {**carried, ATTACHED_MANIFEST: manifest_bytes(others)}
-    )
-    files = {**others, **report}
+    report = render_volumes((REPORT,), ctx, env, site, cache, pool, {**carried, ATTACHED_MANIFEST: manifest_bytes(carried)})
+    files = {**{f"site/{k}": v for k, v in site.items()}, **carried, **report}
     files[FONTS_NAME] = json_bytes(embedded_font_record({**annexes, **report}))
     return Dossier(with_manifest(files), len(all_fits), len(metrics))
 
@@ -343,23 +341,25 @@ def render_volumes(
     ctx,
     env,
     site: dict[str, bytes],
-    templates: dict[str, bytes],
     cache: Cache,
     pool: WorkerPool,
     attachments: dict[str, bytes] | None = None,
 ) -> dict[str, bytes]:
     """Render PDF volumes from `ctx`; file name -> bytes.
 
-    Each volume is cached under everything it is made from: the volume, the context (whose
-    figures carry their bytes), the template and stylesheet files and the attachments. Only
-    volumes missing from the cache have their pages rendered, in the pool's workers.
+    Each volume is cached under exactly what WeasyPrint is given for it (its :class:`PdfJob`: the
+    page's HTML, the stylesheets and figures that page refers to, its attachments and metadata), so
+    a change reaches a volume only through something that volume shows, uses or carries: an edit of
+    a template that a volume does not include, or of the screen stylesheet, renders no PDF. Only
+    volumes missing from the cache have their pages laid out, in the pool's workers.
     """
-    made_from = digest("pdf", ctx, templates, attachments or {})
-    keys = {v.filename: digest("pdf", v, made_from) for v in volumes}
-    out = {name: cache.get(key) for name, key in keys.items()}
-    todo = [pdf_job(ctx, env, v, site, attachments) for v in volumes if out[v.filename] is MISSING]
-    for job, pdf in zip(todo, pool.map(render_pdf, todo, cost=lambda job: len(job.html))):
-        cache.put(keys[job.volume.filename], pdf, f"pdf {job.volume.filename}")
+    jobs = [pdf_job(ctx, env, v, site, attachments) for v in volumes]
+    keys = digest_each(jobs, "pdf")
+    out = {job.volume.filename: cache.get(key) for job, key in zip(jobs, keys)}
+    todo = [(job, key) for job, key in zip(jobs, keys) if out[job.volume.filename] is MISSING]
+    rendered = pool.map(render_pdf, [job for job, _ in todo], cost=lambda job: len(job.html))
+    for (job, key), pdf in zip(todo, rendered):
+        cache.put(key, pdf, f"pdf {job.volume.filename}")
         out[job.volume.filename] = pdf
     return out
 
