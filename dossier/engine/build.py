@@ -74,6 +74,7 @@ class BuildSummary:
     reused: bool = False  # nothing changed: the output was left as it was
     cache_hits: int = 0
     cache_misses: int = 0
+    computed: tuple[str, ...] = ()  # what was computed, not taken from the cache ("run 0", "figure …", "pdf …")
 
 
 def check(project: Project, cache: Cache | None = None) -> list[ConditionedRun]:
@@ -138,7 +139,8 @@ def build(
     write_dossier(out_dir, dossier.files, extra={BUILD_KEY: (key + "\n").encode()})
     cache.prune()
     return BuildSummary(
-        out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits, cache_misses=cache.misses
+        out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits, cache_misses=cache.misses,
+        computed=tuple(cache.computed),
     )
 
 
