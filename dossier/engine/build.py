@@ -139,7 +139,12 @@ def build(
     write_dossier(out_dir, dossier.files, extra={BUILD_KEY: (key + "\n").encode()})
     cache.prune()
     return BuildSummary(
-        out_dir, len(dossier.files), dossier.n_fits, dossier.n_metrics, cache_hits=cache.hits, cache_misses=cache.misses,
+        out_dir,
+        len(dossier.files),
+        dossier.n_fits,
+        dossier.n_metrics,
+        cache_hits=cache.hits,
+        cache_misses=cache.misses,
         computed=tuple(cache.computed),
     )
 
@@ -332,7 +337,9 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
     # rendering of the same content for the screen: the folder's manifest and its seal cover it,
     # and the report does not depend on it (a screen-only change re-renders no PDF).
     carried = {**data_files, **annexes, **archived}
-    report = render_volumes((REPORT,), ctx, env, site, cache, pool, {**carried, ATTACHED_MANIFEST: manifest_bytes(carried)})
+    report = render_volumes(
+        (REPORT,), ctx, env, site, cache, pool, {**carried, ATTACHED_MANIFEST: manifest_bytes(carried)}
+    )
     files = {**{f"site/{k}": v for k, v in site.items()}, **carried, **report}
     files[FONTS_NAME] = json_bytes(embedded_font_record({**annexes, **report}))
     return Dossier(with_manifest(files), len(all_fits), len(metrics))

@@ -24,7 +24,7 @@ ROOT = Path(__file__).resolve().parents[2]
 STAGES = [
     "check",
     "fit_specimens",
-    "run_figure_tasks",
+    "draw_figures",
     "make_context",
     "render_site",
     "render_volumes",
