@@ -175,6 +175,7 @@ def test_empty_rows_and_overflow_sentinels_are_dropped_and_counted_with_their_li
     assert "2 row(s) dropped, implausible value" in texts and "line 21 (FZ = 9.9e+37" in texts
 
 
+@pytest.mark.filterwarnings("error")  # no library warning reaches the user
 def test_a_value_that_overflows_in_unit_conversion_is_dropped_not_infinite(tmp_path):
     raw, spec = _damaged(tmp_path, [(8, "0.28,-4.8,-1.79e308,4320.0")])
     spec = dataclasses.replace(spec, columns={**spec.columns, "fz": dataclasses.replace(spec.columns["fz"], unit="kN")})

@@ -233,7 +233,8 @@ def _keep_plausible(channels, lines, spec: RunSpec, header, index, rejected: tup
 def _to_internal(raw: dict[str, np.ndarray], spec: RunSpec) -> dict[str, np.ndarray]:
     channels = {}
     for ch, vals in raw.items():
-        arr = vals * units.factor_to_internal(CHANNELS[ch], spec.columns[ch].unit)
+        with np.errstate(over="ignore"):  # a value beyond float range becomes inf: rejected as non-finite
+            arr = vals * units.factor_to_internal(CHANNELS[ch], spec.columns[ch].unit)
         arr = axes.to_internal(ch, arr, spec.axis_convention)
         arr.setflags(write=False)
         channels[ch] = arr

@@ -92,13 +92,15 @@ def build_once(project: Path, out: Path, themes: Path, cache: bool = True) -> tu
     return cpu, ru, wall, text.strip()
 
 
-def _touch_one_sample(path: Path) -> None:
-    """Change the last digit of one sample in the middle of a rig file (one number, same layout)."""
+def _touch_one_sample(path: Path, field: int) -> None:
+    """Change the last digit of one sample (field `field` of the line in the middle of a
+    comma-separated rig file): one number, the same layout."""
     lines = path.read_bytes().split(b"\n")
     i = len(lines) // 2
-    m = list(re.finditer(rb"\d", lines[i]))[-1]
-    digit = int(lines[i][m.start() : m.end()])
-    lines[i] = lines[i][: m.start()] + str((digit + 1) % 10).encode() + lines[i][m.end() :]
+    cells = lines[i].split(b",")
+    digit = int(cells[field][-1:])
+    cells[field] = cells[field][:-1] + str((digit + 1) % 10).encode()
+    lines[i] = b",".join(cells)
     path.write_bytes(b"\n".join(lines))
 
 
@@ -110,7 +112,7 @@ def _append(path: Path, text: str) -> None:
 SCENARIOS = [
     ("nothing changed", lambda p, t: None),
     ("narrative edited", lambda p, t: _append(p / "narrative/test_notes.md", "\nOne more sentence.\n")),
-    ("one sample of one rig file", lambda p, t: _touch_one_sample(p / "rig/HR-4472_CND-B.csv")),
+    ("one Fy sample of one rig file", lambda p, t: _touch_one_sample(p / "rig/HR-4472_CND-B.csv", 4)),
     ("screen stylesheet edited", lambda p, t: _append(t / "default/screen.css", ".pagefoot { font-size: .9rem; }\n")),
     ("shared stylesheet edited", lambda p, t: _append(t / "default/common.css", "h3 { letter-spacing: .01em; }\n")),
 ]
