@@ -36,7 +36,7 @@ from ..metrics.measured import measured_values, moment_values
 from ..project.conditions import nominal_load_n, nominal_pressure_kpa, rated_load_n, unloaded_radius_m
 from ..project.load import Project, load_project
 from ..publish.environment import embedded_font_record, environment_record
-from ..publish.integrity import manifest_bytes, sha256, with_manifest
+from ..publish.integrity import manifest_bytes, with_manifest
 from ..publish.layout import (
     ATTACHED_MANIFEST,
     BUILD_KEY,
@@ -88,10 +88,10 @@ def check(project: Project, cache: Cache | None = None) -> list[ConditionedRun]:
 
     def conditioned_run(spec) -> ConditionedRun:
         rated = rated_load_n(manifest.specimen(spec.specimen))
-        raw = project.files[spec.file]
-        key = digest("conditioned", spec, manifest.conditioning, rated, raw)
+        raw, sha = project.files[spec.file], project.sha256[spec.file]
+        key = digest("conditioned", spec, manifest.conditioning, rated, sha)
         run = cache.get_or_compute(
-            key, lambda: condition_run(parse_run(raw, spec), manifest.conditioning, rated), f"run {spec.index}"
+            key, lambda: condition_run(parse_run(raw, spec, sha), manifest.conditioning, rated), f"run {spec.index}"
         )
         return with_content_key(run, key)
 
@@ -127,7 +127,7 @@ def build(
     out_dir = Path(out_dir) if out_dir else project.folder / "dossier-out"
     refuse_foreign(out_dir)  # before any work: a folder that is not ours is never replaced
     theme = load_theme(theme_name)
-    key = build_key(project.files, theme.files, theme_name)
+    key = build_key(project.sha256, theme.files, theme_name)
     if use_cache and output_is_current(out_dir, key):
         return BuildSummary(out_dir, -1, -1, -1, reused=True)
     cache = Cache(project.folder / CACHE_DIR if use_cache else None)
@@ -317,7 +317,7 @@ def assemble(project: Project, theme: Theme, *, cache: Cache | None = None, pool
         tuple(standings),
         recommendation,
         vehicle,
-        {name: sha256(data) for name, data in project.files.items()},
+        dict(project.sha256),
         tuple(e.condition_metrics),
     )
     provenance = provenance_bytes(provenance_record(manifest, evidence))

@@ -18,9 +18,10 @@ from ..publish.writer import refuse_sealed
 from .cache import digest
 
 
-def build_key(project_files: dict[str, bytes], theme_files: dict[str, bytes], theme_name: str) -> str:
-    """`project_files`: the loaded project's files; `theme_files`: the theme chain's (``Theme.files``)."""
-    return digest(project_files, theme_files, theme_name)
+def build_key(project_sha256: dict[str, str], theme_files: dict[str, bytes], theme_name: str) -> str:
+    """`project_sha256`: the loaded project's files by their SHA-256 (``Project.sha256``, so that no
+    input is hashed again); `theme_files`: the theme chain's (``Theme.files``)."""
+    return digest(project_sha256, theme_files, theme_name)
 
 
 def output_is_current(out_dir: Path, key: str) -> bool:
@@ -39,5 +40,5 @@ def up_to_date(project: Path | Project, out_dir: Path | None, theme_name: str) -
         project = load_project(project)
     out = Path(out_dir) if out_dir else project.folder / "dossier-out"
     refuse_sealed(out)
-    key = build_key(project.files, load_theme(theme_name).files, theme_name)
+    key = build_key(project.sha256, load_theme(theme_name).files, theme_name)
     return out if output_is_current(out, key) else None

@@ -63,37 +63,64 @@ class RigRun:
         return int(self.line_numbers.size)
 
 
-def parse_run(raw: bytes, spec: RunSpec) -> RigRun:
-    """Parse the bytes of the rig file of `spec` (as the loader read them) into a :class:`RigRun`."""
+def parse_run(raw: bytes, spec: RunSpec, sha256: str | None = None) -> RigRun:
+    """Parse the bytes of the rig file of `spec` (as the loader read them) into a :class:`RigRun`.
+
+    `sha256`: the digest of `raw` where the loader computed it (each input is hashed once). A clean
+    numeric table is parsed straight from the bytes (only the lines before the data are decoded);
+    anything else goes through the careful parser, which decodes the whole file.
+    """
     shown = spec.file
-    digest = hashlib.sha256(raw).hexdigest()
+    digest = sha256 or hashlib.sha256(raw).hexdigest()
+    fast = _fast_run(raw, spec, shown)
+    if fast is not None:
+        channels, lines, rejected = fast
+        return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines, rejected=rejected)
     encoding = "utf-8-sig"
     try:
         text = raw.decode(encoding)
     except UnicodeDecodeError:
         encoding = "latin-1"  # labs' tools often write Windows-1252 headers (e.g. '°')
         text = raw.decode(encoding)
-    channels, lines, rejected = parse_table(text, spec, shown, raw=raw, encoding=encoding)
+    channels, lines, rejected = parse_table(text, spec, shown, raw=raw, encoding=encoding, try_fast=False)
     return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines, rejected=rejected)
 
 
-def parse_table(
-    text: str, spec: RunSpec, shown: str, raw: bytes | None = None, encoding: str = "utf-8-sig"
-) -> tuple[dict[str, np.ndarray], np.ndarray, tuple[RejectedRow, ...]]:
-    """Parse rig-file text per `spec`; return internal channels, source line numbers and the rows
-    not kept (empty, or with implausible values), each with its reason.
-
-    `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text.
-    """
-    if not text.strip():
-        raise RigDataError(shown, f"the file is empty; expected a header on line {spec.header_line} and data rows")
-    head = text.split("\n", spec.header_line)[: spec.header_line]
-    if len(head) < spec.header_line or (
-        len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1
-    ):
-        raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(head)} line(s)")
+def _fast_run(raw: bytes, spec: RunSpec, shown: str):
+    """The parse of a clean numeric table from its bytes, decoding only the lines before the data;
+    None whenever anything is unusual (the careful path then finds and names it)."""
+    first = spec.header_line + spec.skip_after_header
+    end = -1
+    for _ in range(first):
+        end = raw.find(b"\n", end + 1)
+        if end < 0:
+            return None
     try:
-        header = [h.strip() for h in next(csv.reader([head[-1].rstrip("\r")], delimiter=spec.delimiter), [])]
+        head_text = raw[: end + 1].decode("utf-8-sig")
+        encoding = "utf-8-sig"
+    except UnicodeDecodeError:
+        head_text, encoding = raw[: end + 1].decode("latin-1"), "latin-1"  # as the careful path decides
+    head = head_text.split("\n", spec.header_line)[: spec.header_line]
+    if len(head) < spec.header_line or not head[-1].strip():
+        return None
+    try:
+        header, index = _header_index(head[-1], spec, shown)
+    except RigDataError:
+        return None
+    fast = _fast_table(raw, encoding, spec, index, len(header), first)
+    if fast is None:
+        return None
+    kept, kept_lines, rejected = _keep_plausible(_to_internal(fast[0], spec), fast[1], spec, header, index, ())
+    if not kept_lines.size:
+        return None
+    _check_plausible(kept, kept_lines, spec, shown)
+    return kept, kept_lines, rejected
+
+
+def _header_index(line: str, spec: RunSpec, shown: str) -> tuple[list[str], dict[str, int]]:
+    """The header's column names and, for each channel of `spec`, the index of its column."""
+    try:
+        header = [h.strip() for h in next(csv.reader([line.rstrip("\r")], delimiter=spec.delimiter), [])]
     except csv.Error as exc:
         raise RigDataError(
             shown, f"the header cannot be read as delimited text ({exc})", line=spec.header_line
@@ -113,15 +140,44 @@ def parse_table(
                 shown, f"column name {col.name!r} appears {len(matches)} times in the header", line=spec.header_line
             )
         index[channel] = matches[0]
+    return header, index
+
+
+def parse_table(
+    text: str,
+    spec: RunSpec,
+    shown: str,
+    raw: bytes | None = None,
+    encoding: str = "utf-8-sig",
+    try_fast: bool = True,
+) -> tuple[dict[str, np.ndarray], np.ndarray, tuple[RejectedRow, ...]]:
+    """Parse rig-file text per `spec`; return internal channels, source line numbers and the rows
+    not kept (empty, or with implausible values), each with its reason.
+
+    `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text;
+    `try_fast` False: the caller has tried it already.
+    """
+    if not text.strip():
+        raise RigDataError(shown, f"the file is empty; expected a header on line {spec.header_line} and data rows")
+    head = text.split("\n", spec.header_line)[: spec.header_line]
+    if len(head) < spec.header_line or (
+        len(head) == spec.header_line and not head[-1].strip() and spec.header_line > 1
+    ):
+        raise RigDataError(shown, f"expected a header on line {spec.header_line}; the file has {len(head)} line(s)")
+    header, index = _header_index(head[-1], spec, shown)
 
     first = spec.header_line + spec.skip_after_header  # 0-based index of the first data row
-    fast = _fast_table(
-        raw if raw is not None else text.encode("utf-8"),
-        encoding if raw is not None else "utf-8",
-        spec,
-        index,
-        len(header),
-        first,
+    fast = (
+        _fast_table(
+            raw if raw is not None else text.encode("utf-8"),
+            encoding if raw is not None else "utf-8",
+            spec,
+            index,
+            len(header),
+            first,
+        )
+        if try_fast
+        else None
     )
     if fast is not None:
         kept, kept_lines, rejected = _keep_plausible(_to_internal(fast[0], spec), fast[1], spec, header, index, ())
@@ -266,7 +322,8 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
     if spec.decimal == "," and b"." in body:
         return None  # a '.' in a decimal-comma file: the careful parser says where
     n_lines = body.count(b"\n") + 1
-    first_line = body.split(b"\n", 1)[0]
+    first_end = body.find(b"\n")
+    first_line = body[: first_end if first_end >= 0 else len(body)]  # not split: that copies the whole body
     if first_line.count(spec.delimiter.encode()) != n_fields - 1:
         return None
     cols = sorted(set(index.values()))
@@ -286,12 +343,12 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
         return None
     if frame.shape != (n_lines, n_fields):
         return None  # a row with more or fewer fields: the careful parser names its line
-    arr = frame.to_numpy(dtype=float)[:, cols]
-    if not np.all(np.isfinite(arr)):
+    columns = {i: frame.iloc[:, i].to_numpy(dtype=float, copy=True) for i in cols}  # only the used ones
+    if not all(np.all(np.isfinite(c)) for c in columns.values()):
         return None
     line_numbers = np.arange(first + 1, first + 1 + n_lines, dtype=np.int64)
     line_numbers.setflags(write=False)
-    return {ch: np.array(arr[:, cols.index(i)]) for ch, i in index.items()}, line_numbers
+    return {ch: columns[i] for ch, i in index.items()}, line_numbers
 
 
 def _number(cell: str, decimal: str, shown: str, line: int, column: str) -> float:

@@ -31,6 +31,7 @@ class Project:
 
     manifest: Manifest
     files: dict[str, bytes]  # relative POSIX path -> bytes: the manifest, rig files, narrative, templates/
+    sha256: dict[str, str]  # relative POSIX path -> SHA-256 of its bytes: every input hashed once, here
 
     @property
     def folder(self) -> Path:
@@ -114,8 +115,9 @@ def _project(raw_bytes: bytes, project_dir: Path, read_named, read_templates) ->
         raise ManifestError(shown, problems)
     files.update(read_templates())
     assert data is not None  # the schema returns None only with a problem, raised above
-    manifest = replace(typed_manifest(data, project_dir), sha256=hashlib.sha256(raw_bytes).hexdigest())
-    return Project(manifest, dict(sorted(files.items())))
+    digests = {name: hashlib.sha256(content).hexdigest() for name, content in sorted(files.items())}
+    manifest = replace(typed_manifest(data, project_dir), sha256=digests[MANIFEST_NAME])
+    return Project(manifest, dict(sorted(files.items())), digests)
 
 
 def validated(raw: dict, problems: list[Problem]) -> dict | None:

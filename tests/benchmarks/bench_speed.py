@@ -93,10 +93,17 @@ def build_once(project: Path, out: Path, themes: Path, cache: bool = True) -> tu
 
 
 def _touch_one_sample(path: Path, field: int) -> None:
-    """Change the last digit of one sample (field `field` of the line in the middle of a
-    comma-separated rig file): one number, the same layout."""
+    """Change the last digit of one sample (field `field` of the data line whose slip angle is
+    nearest 5°, inside a sweep, of a comma-separated rig file): one number, the same layout."""
     lines = path.read_bytes().split(b"\n")
-    i = len(lines) // 2
+
+    def off(line: bytes) -> float:
+        try:
+            return abs(abs(float(line.split(b",")[1])) - 5.0)
+        except (ValueError, IndexError):
+            return float("inf")
+
+    i = min(range(len(lines)), key=lambda k: off(lines[k]))
     cells = lines[i].split(b",")
     digit = int(cells[field][-1:])
     cells[field] = cells[field][:-1] + str((digit + 1) % 10).encode()
