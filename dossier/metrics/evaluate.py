@@ -160,6 +160,20 @@ def _refine_root(f, lo: float, hi: float) -> float:
 
 
 _PEAK_MEMO: dict = {}
+_AT_MEMO: dict = {}
+
+
+def _read_at(m: SpecimenModel, camber_deg: float, pressure_kpa: float) -> SpecimenModel:
+    """`m` read at another camber and pressure, made once per evaluation: the same fit objects for
+    every metric and coefficient step there, so that the peak memo serves them all. The memo holds
+    the model it was made from (so that its id cannot be reused) and is emptied with the peak memo."""
+    key = (id(m), float(camber_deg), float(pressure_kpa))
+    hit = _AT_MEMO.get(key)
+    if hit is None:
+        hit = (m, m.at(camber_deg, pressure_kpa))
+        _AT_MEMO[key] = hit
+    return hit[1]
+
 
 
 def _memo_peak(channel: str, m: SpecimenModel, load, v: Values, sign: float, step: float):
@@ -328,8 +342,8 @@ def _pressure_slope(name: str, relative: bool):
         if hi - lo < MIN_PRESSURE_SPAN_KPA:
             return None
         at = fits[0]
-        high = COMPUTE[name](m.at(at.camber_deg, hi), load, v)
-        low = COMPUTE[name](m.at(at.camber_deg, lo), load, v)
+        high = COMPUTE[name](_read_at(m, at.camber_deg, hi), load, v)
+        low = COMPUTE[name](_read_at(m, at.camber_deg, lo), load, v)
         if high is None or low is None:
             return None
         per_kpa = (high - low) / (hi - lo)
@@ -428,6 +442,7 @@ def specimen_metrics(models: SpecimenModel) -> list[MetricValue]:
 
 def _evaluate(models, load_n, definitions, points, threshold) -> list[MetricValue]:
     _PEAK_MEMO.clear()
+    _AT_MEMO.clear()
     base: Values = {c: models.get(c).values for c in ("fy", "mz", "fx") if models.get(c) is not None}
     ref = models.fy or models.fx
     out = []

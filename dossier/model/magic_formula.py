@@ -192,7 +192,11 @@ INFO = {c.name: c for cat in CATALOGUE.values() for c in cat}
 
 def defaults(channel: str) -> dict[str, float]:
     """Return every coefficient of a channel ("fy", "mz", "fx") at its default value."""
-    return {c.name: c.default for c in CATALOGUE[channel]}
+    return dict(_DEFAULTS[channel])
+
+
+# The defaults of each channel, made once: every model call merges its coefficients into them.
+_DEFAULTS = {channel: {c.name: c.default for c in cat} for channel, cat in CATALOGUE.items()}
 
 
 def _fy0_parts(alpha, fz, c, fz0_n, gamma, dpi):
@@ -240,7 +244,7 @@ def fy0(alpha_rad, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0
     dpi : array_like
         Relative inflation pressure (p − p0)/p0.
     """
-    c = {**defaults("fy"), **p}
+    c = {**_DEFAULTS["fy"], **p}
     return _fy0_parts(
         np.asarray(alpha_rad, float),
         np.asarray(fz_n, float),
@@ -253,7 +257,7 @@ def fy0(alpha_rad, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0
 
 def fy0_cornering_stiffness_n_per_rad(fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     """Return Kyα of eq. 4.E25 (with the pressure terms of BSP2010), N/rad."""
-    c = {**defaults("fy"), **p}
+    c = {**_DEFAULTS["fy"], **p}
     fz = np.asarray(fz_n, dtype=float)
     return (
         c["pKy1"]
@@ -282,8 +286,8 @@ def mz0(
     r0_m : float
         Unloaded tire radius R0, m.
     """
-    c = {**defaults("fy"), **p_fy}
-    cq = {**defaults("mz"), **q}
+    c = {**_DEFAULTS["fy"], **p_fy}
+    cq = {**_DEFAULTS["mz"], **q}
     alpha = np.asarray(alpha_rad, float)
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
@@ -303,7 +307,7 @@ def pneumatic_trail_m(alpha_rad, fz_n, q: dict[str, float], fz0_n: float, r0_m: 
     t = Dt cos[Ct arctan{Bt αt − Et(Bt αt − arctan Bt αt)}] cos α, with αt = α + SHt (4.E34-35),
     Bt (4.E40), Ct (4.E41), Dt (4.E42, with the pressure term of BSP2010) and Et ≤ 1 (4.E43).
     """
-    cq = {**defaults("mz"), **q}
+    cq = {**_DEFAULTS["mz"], **q}
     alpha = np.asarray(alpha_rad, float)
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
@@ -338,7 +342,7 @@ def fx0(kappa, fz_n, p: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     kappa : array_like
         Longitudinal slip ratio (fraction; positive when driving).
     """
-    c = {**defaults("fx"), **p}
+    c = {**_DEFAULTS["fx"], **p}
     k = np.asarray(kappa, float)
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
@@ -371,7 +375,7 @@ def _weighting(slip, shift, B, C, E):
 def gx_alpha(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_rad=0.0):
     """Weighting Gxα of Fx by slip angle under combined slip (Pacejka 2006, 4.E51-4.E57); α* = tan α,
     γ* = sin γ. Gxα = 1 at α = 0."""
-    c = {**defaults("fxc"), **r}
+    c = {**_DEFAULTS["fxc"], **r}
     k = np.asarray(kappa, float)
     a = np.tan(np.asarray(alpha_rad, float))
     g = np.sin(np.asarray(gamma_rad, float))
@@ -384,7 +388,7 @@ def gx_alpha(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_ra
 def gy_kappa(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_rad=0.0):
     """Weighting Gyκ of Fy by slip ratio under combined slip (Pacejka 2006, 4.E59-4.E65). Gyκ = 1
     at κ = 0."""
-    c = {**defaults("fyc"), **r}
+    c = {**_DEFAULTS["fyc"], **r}
     k = np.asarray(kappa, float)
     a = np.tan(np.asarray(alpha_rad, float))
     g = np.sin(np.asarray(gamma_rad, float))
@@ -396,7 +400,7 @@ def gy_kappa(kappa, alpha_rad, fz_n, r: dict[str, float], fz0_n: float, gamma_ra
 
 def svy_kappa(kappa, alpha_rad, fz_n, r: dict[str, float], mu_y, fz0_n: float, gamma_rad=0.0):
     """Lateral force induced by slip ratio, SVyκ in N (Pacejka 2006, 4.E66-4.E67; ζ2 = 1): zero at κ = 0."""
-    c = {**defaults("fyc"), **r}
+    c = {**_DEFAULTS["fyc"], **r}
     k = np.asarray(kappa, float)
     a = np.tan(np.asarray(alpha_rad, float))
     g = np.sin(np.asarray(gamma_rad, float))
@@ -415,7 +419,7 @@ def fx_combined(kappa, alpha_rad, fz_n, p: dict[str, float], r: dict[str, float]
 def fy_combined(alpha_rad, kappa, fz_n, p: dict[str, float], r: dict[str, float], fz0_n: float, gamma_rad=0.0, dpi=0.0):
     """Lateral force under combined slip, Fy = Gyκ·Fy0 + SVyκ in N (Pacejka 2006, 4.E58), with the
     pure-slip coefficients `p` and the combined-slip ones `r`."""
-    c = {**defaults("fy"), **p}
+    c = {**_DEFAULTS["fy"], **p}
     a = np.asarray(alpha_rad, float)
     fz = np.asarray(fz_n, float)
     g = np.asarray(gamma_rad, float)
