@@ -215,3 +215,23 @@ def test_a_load_column_in_lbf_labelled_n_is_named_with_the_factor(tmp_path):
     text = " ".join(c.account.verdict_reasons)
     assert "load steps at 899, 1349, 1798 N: the set-points are 4.448 times these, which is the lbf-to-N factor" in text
     assert "runs[0].columns.fz.unit" in text
+
+
+@pytest.mark.parametrize("cpus", [2, 3])
+def test_a_table_read_in_pieces_equals_one_read_whole(tmp_path, monkeypatch, cpus):
+    # Large tables are read in pieces, one thread each: the same numbers and line numbers as one
+    # piece, and a damaged line in any piece still goes to the careful parser, which names it.
+    import dossier.ingest.rig_table as R
+
+    raw, spec = _damaged(tmp_path, [])
+    whole = parse_run(raw, spec)
+    monkeypatch.setattr(R, "PIECE_BYTES", 200)
+    monkeypatch.setattr(R.os, "cpu_count", lambda: cpus)
+    assert len(R._pieces(raw, raw.find(b"\n") + 1, len(raw) - 1)) == cpus
+    pieces = parse_run(raw, spec)
+    assert all(np.array_equal(whole.channels[c], pieces.channels[c]) for c in whole.channels)
+    assert np.array_equal(whole.line_numbers, pieces.line_numbers) and pieces.rejected == whole.rejected
+    raw, spec = _damaged(tmp_path, [(50, "1.96,3.8,-4000")])  # a short line late in the file
+    with pytest.raises(RigDataError, match="line 51") as found:
+        parse_run(raw, spec)
+    assert "expected 4 fields" in str(found.value)

@@ -13,6 +13,8 @@ import csv
 import hashlib
 import io
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -318,18 +320,50 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
         end -= 1
     if end <= start or spec.delimiter == spec.decimal:
         return None
-    body = raw[start:end]
-    if spec.decimal == "," and b"." in body:
+    if spec.decimal == "," and raw.find(b".", start, end) >= 0:
         return None  # a '.' in a decimal-comma file: the careful parser says where
-    n_lines = body.count(b"\n") + 1
-    first_end = body.find(b"\n")
-    first_line = body[: first_end if first_end >= 0 else len(body)]  # not split: that copies the whole body
-    if first_line.count(spec.delimiter.encode()) != n_fields - 1:
+    first_end = raw.find(b"\n", start, end)
+    if raw.count(spec.delimiter.encode(), start, first_end if first_end >= 0 else end) != n_fields - 1:
         return None
     cols = sorted(set(index.values()))
+    pieces = _pieces(raw, start, end)
+    if len(pieces) == 1:
+        parts = [_read_piece(pandas, raw, *pieces[0], spec, encoding, n_fields, cols)]
+    else:  # the reader's tokenizer and number conversion release the GIL: one thread a piece
+        with ThreadPoolExecutor(len(pieces)) as threads:
+            parts = list(threads.map(lambda ab: _read_piece(pandas, raw, *ab, spec, encoding, n_fields, cols), pieces))
+    if any(part is None for part in parts):
+        return None
+    columns = {i: parts[0][i] if len(parts) == 1 else np.concatenate([part[i] for part in parts]) for i in cols}
+    n_lines = columns[cols[0]].size  # each piece holds exactly one row per line (checked there)
+    line_numbers = np.arange(first + 1, first + 1 + n_lines, dtype=np.int64)
+    line_numbers.setflags(write=False)
+    return {ch: columns[i] for ch, i in index.items()}, line_numbers
+
+
+PIECE_BYTES = 8 << 20  # a table larger than this is read in pieces, one thread each (up to one per CPU)
+
+
+def _pieces(raw: bytes, start: int, end: int) -> list[tuple[int, int]]:
+    """Byte ranges of `raw[start:end]` that begin and end at line boundaries, about equal in size."""
+    n = max(1, min(os.cpu_count() or 1, (end - start) // PIECE_BYTES))
+    cuts = [start]
+    for k in range(1, n):
+        nl = raw.find(b"\n", start + (end - start) * k // n, end)
+        if nl < 0:
+            break
+        if nl + 1 > cuts[-1]:
+            cuts.append(nl + 1)
+    return [(a, b) for a, b in zip(cuts, [*cuts[1:], end]) if b > a]
+
+
+def _read_piece(pandas, raw: bytes, a: int, b: int, spec: RunSpec, encoding: str, n_fields: int, cols: list[int]):
+    """The used columns of the lines in `raw[a:b]` (float64), or None if a line is not clean."""
+    piece = raw[a:b]
+    n_lines = piece.count(b"\n") + (0 if piece.endswith(b"\n") else 1)
     try:
         frame = pandas.read_csv(
-            io.BytesIO(body),
+            io.BytesIO(piece),
             sep=spec.delimiter,
             decimal=spec.decimal,
             header=None,  # every column, not `usecols`: with it, the reader ignores extra fields
@@ -346,9 +380,7 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
     columns = {i: frame.iloc[:, i].to_numpy(dtype=float, copy=True) for i in cols}  # only the used ones
     if not all(np.all(np.isfinite(c)) for c in columns.values()):
         return None
-    line_numbers = np.arange(first + 1, first + 1 + n_lines, dtype=np.int64)
-    line_numbers.setflags(write=False)
-    return {ch: columns[i] for ch, i in index.items()}, line_numbers
+    return columns
 
 
 def _number(cell: str, decimal: str, shown: str, line: int, column: str) -> float:
