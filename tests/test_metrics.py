@@ -123,3 +123,39 @@ def test_peak_and_root_searches_agree_with_scipy():
 
     root = optimize.brentq(lambda a: float(level(a)), 0.0, x, xtol=1e-13)
     assert _refine_root(level, 0.0, x) == pytest.approx(root, abs=1e-10)
+
+
+def test_intervals_with_every_coefficient_step_in_one_call_equal_those_step_by_step(monkeypatch):
+    # Two ways of computing the same delta-method intervals: every coefficient step of a metric in
+    # one vectorised model call (evaluate.BATCHED), or two model calls per step. Asked: the same
+    # values to 1e-9 relative. The data: Fy, Mz and Fx over 4 loads × 3 cambers × 2 pressures, so
+    # that the camber and pressure metrics are computed too.
+    import sys
+    from pathlib import Path
+
+    import dossier.metrics.evaluate as E
+
+    sys.path.insert(0, str(Path(__file__).parent / "benchmarks"))
+    import bench_fit as B
+
+    lat, lon = B.points()
+    fy = fit_channel(lat, "fy", LINEAR, B.FZ0, B.P0)
+    mz = fit_channel(lat, "mz", LINEAR, B.FZ0, B.P0, B.R0, fy.values)
+    fx = fit_channel(lon, "fx", LINEAR, B.FZ0, B.P0)
+    model = SpecimenModel("S", fy, mz, fx)
+    batched = {m.metric: m for m in metric_values(model, 4000.0)}
+    monkeypatch.setattr(E, "BATCHED", frozenset())
+    stepwise = {m.metric: m for m in metric_values(model, 4000.0)}
+    assert batched.keys() == stepwise.keys() and not E.BATCHED
+    covered = set()
+    for name, m in stepwise.items():
+        assert batched[name].value == m.value, name
+        if m.stderr is None:
+            assert batched[name].stderr is None, name
+            continue
+        assert batched[name].stderr == pytest.approx(m.stderr, rel=1e-9, abs=0.0), name
+        covered.add(name)
+    monkeypatch.undo()
+    assert {"cornering_stiffness", "pneumatic_trail", "camber_stiffness", "longitudinal_slip_stiffness"} <= covered
+    assert {"cornering_stiffness_per_10kpa", "pneumatic_trail_pct_per_bar"} <= covered
+    assert covered >= E.BATCHED & set(stepwise)

@@ -87,7 +87,10 @@ def _fx(m: SpecimenModel, x, load, v: Values):
 
 
 def _slope(f, h):
-    return float(_slopes(f, h))
+    """Central-difference slope at zero: a float, or one per coefficient set when `f` is read with
+    a batch of coefficient sets (see :func:`_delta_stderr`)."""
+    s = _slopes(f, h)
+    return float(s) if np.ndim(s) == 0 else s
 
 
 def _slopes(f, h):
@@ -175,7 +178,6 @@ def _read_at(m: SpecimenModel, camber_deg: float, pressure_kpa: float) -> Specim
     return hit[1]
 
 
-
 def _memo_peak(channel: str, m: SpecimenModel, load, v: Values, sign: float, step: float):
     """One side's peak of a channel, remembered for the evaluation under way.
 
@@ -252,7 +254,7 @@ def aligning_stiffness(m, load, v):
 
 def pneumatic_trail_mm(m, load, v):
     dfy = -cornering_stiffness(m, load, v)
-    return 1000.0 * -aligning_stiffness(m, load, v) / dfy if dfy else None
+    return 1000.0 * -aligning_stiffness(m, load, v) / dfy if np.all(dfy) else None
 
 
 def _root_near_zero(f, half=3.0):
@@ -279,9 +281,8 @@ def camber_stiffness(m, load, v):
     if not any(c.status == "fitted" and c.name in ("pVy3", "pVy4", "pHy3", "pKy3") for c in m.fy.coefficients):
         return None  # no cambered data: camber dependence held at its default
     h, at = 1e-3, m.fy.camber_deg
-    return float(
-        (m.fy.predict(0.0, load, at + h, values=v["fy"]) - m.fy.predict(0.0, load, at - h, values=v["fy"])) / (2 * h)
-    )
+    s = (m.fy.predict(0.0, load, at + h, values=v["fy"]) - m.fy.predict(0.0, load, at - h, values=v["fy"])) / (2 * h)
+    return float(s) if np.ndim(s) == 0 else s
 
 
 def slip_stiffness(m, load, v):
@@ -350,7 +351,7 @@ def _pressure_slope(name: str, relative: bool):
         if not relative:
             return 10.0 * per_kpa
         here = COMPUTE[name](m, load, v)
-        return None if not here else 100.0 * 100.0 * per_kpa / here
+        return None if not np.all(here) else 100.0 * 100.0 * per_kpa / here
 
     return slope
 
@@ -553,7 +554,30 @@ def _outside(fits: list[ChannelFit], load_n: float) -> list[str]:
     return out
 
 
+# Metrics whose function reads the model only at scalar slips, so that it can be given every
+# coefficient step of an interval at once (each coefficient an array, one element per step): one
+# vectorised model call instead of two per coefficient.
+BATCHED = frozenset(
+    {
+        "cornering_stiffness",
+        "cornering_coefficient",
+        "aligning_stiffness",
+        "pneumatic_trail",
+        "longitudinal_slip_stiffness",
+        "camber_stiffness",
+        "camber_coefficient",
+        *(
+            f"{name}{suffix}"
+            for name in ("cornering_stiffness", "pneumatic_trail")
+            for suffix in ("_per_10kpa", "_pct_per_bar")
+        ),
+    }
+)
+
+
 def _delta_stderr(models: SpecimenModel, d: MetricDefinition, load_n: float, base: Values) -> float | None:
+    """The metric's standard uncertainty from the fit's covariance (delta method, central
+    differences of the metric in each coefficient with a finite variance)."""
     var = 0.0
     any_finite = False
     for channel in d.channels:
@@ -564,20 +588,43 @@ def _delta_stderr(models: SpecimenModel, d: MetricDefinition, load_n: float, bas
         if not np.any(finite):
             continue
         any_finite = True
+        cv = base[channel]
+        steps = [
+            (i, max(0.05 * np.sqrt(cov[i, i]), 1e-9 * max(abs(cv[names[i]]), 1.0))) for i in np.flatnonzero(finite)
+        ]
         g = np.zeros(len(names))
-        for i, name in enumerate(names):
-            if not finite[i]:
-                continue
-            cv = base[channel]
-            h = max(0.05 * np.sqrt(cov[i, i]), 1e-9 * max(abs(cv[name]), 1.0))
-            up = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] + h}})
-            dn = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] - h}})
-            if up is None or dn is None:
+        if d.name in BATCHED:
+            changed = _steps_batch(models, d, load_n, base, channel, names, steps)
+            if changed is None:
                 return None
-            g[i] = (up - dn) / (2 * h)
+            for (i, h), (up, dn) in zip(steps, changed):
+                g[i] = (up - dn) / (2 * h)
+        else:
+            for i, h in steps:
+                name = names[i]
+                up = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] + h}})
+                dn = COMPUTE[d.name](models, load_n, {**base, channel: {**cv, name: cv[name] - h}})
+                if up is None or dn is None:
+                    return None
+                g[i] = (up - dn) / (2 * h)
         sub = np.ix_(finite, finite)
         var += float(g[finite] @ cov[sub] @ g[finite])
     return float(np.sqrt(max(var, 0.0))) if any_finite else None
+
+
+def _steps_batch(models, d, load_n, base, channel, names, steps):
+    """The metric at every step up and down of `steps` in one call; [(up, down)] or None."""
+    k = len(steps)
+    cv = base[channel]
+    batch = {name: np.full(2 * k, value, dtype=float) for name, value in cv.items()}
+    for j, (i, h) in enumerate(steps):
+        batch[names[i]][j] = cv[names[i]] + h
+        batch[names[i]][k + j] = cv[names[i]] - h
+    found = COMPUTE[d.name](models, load_n, {**base, channel: batch})
+    if found is None:
+        return None
+    found = np.broadcast_to(np.asarray(found, dtype=float), (2 * k,))
+    return [(float(found[j]), float(found[k + j])) for j in range(k)]
 
 
 def single_metric(models: SpecimenModel, name: str, load_n: float) -> MetricValue | None:
