@@ -328,10 +328,12 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
     cols = sorted(set(index.values()))
     pieces = _pieces(raw, start, end)
     if len(pieces) == 1:
-        parts = [_read_piece(pandas, raw, *pieces[0], spec, encoding, n_fields, cols)]
+        parts = [_read_piece(pandas, raw, pieces[0][0], pieces[0][1], spec, encoding, n_fields, cols)]
     else:  # the reader's tokenizer and number conversion release the GIL: one thread a piece
         with ThreadPoolExecutor(len(pieces)) as threads:
-            parts = list(threads.map(lambda ab: _read_piece(pandas, raw, *ab, spec, encoding, n_fields, cols), pieces))
+            parts = list(
+                threads.map(lambda ab: _read_piece(pandas, raw, ab[0], ab[1], spec, encoding, n_fields, cols), pieces)
+            )
     if any(part is None for part in parts):
         return None
     columns = {i: parts[0][i] if len(parts) == 1 else np.concatenate([part[i] for part in parts]) for i in cols}

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -351,7 +352,7 @@ def _pressure_slope(name: str, relative: bool):
         if not relative:
             return 10.0 * per_kpa
         here = COMPUTE[name](m, load, v)
-        return None if not np.all(here) else 100.0 * 100.0 * per_kpa / here
+        return None if here is None or not np.all(here) else 100.0 * 100.0 * per_kpa / here
 
     return slope
 
@@ -616,15 +617,15 @@ def _steps_batch(models, d, load_n, base, channel, names, steps):
     """The metric at every step up and down of `steps` in one call; [(up, down)] or None."""
     k = len(steps)
     cv = base[channel]
-    batch = {name: np.full(2 * k, value, dtype=float) for name, value in cv.items()}
+    batch: Any = {name: np.full(2 * k, value, dtype=float) for name, value in cv.items()}
     for j, (i, h) in enumerate(steps):
         batch[names[i]][j] = cv[names[i]] + h
         batch[names[i]][k + j] = cv[names[i]] - h
     found = COMPUTE[d.name](models, load_n, {**base, channel: batch})
     if found is None:
         return None
-    found = np.broadcast_to(np.asarray(found, dtype=float), (2 * k,))
-    return [(float(found[j]), float(found[k + j])) for j in range(k)]
+    each = np.broadcast_to(np.asarray(found, dtype=float), (2 * k,))
+    return [(float(each[j]), float(each[k + j])) for j in range(k)]
 
 
 def single_metric(models: SpecimenModel, name: str, load_n: float) -> MetricValue | None:
