@@ -244,3 +244,22 @@ def test_no_two_curves_of_one_figure_look_alike():
     colors = ["1f4a57", "c0692a", "5b8c3a", "8a4f9e", "9c3b22", "3f7fa6"]  # the default theme's cycle
     looks = [_distinct(i, colors)[:2] for i in range(24)]
     assert len(set(looks)) == 24
+
+
+def test_large_attachments_are_deflated_fast_and_read_back_whole(small, tmp_path, monkeypatch):
+    # Attachments of LARGE_ATTACHMENT_BYTES or more are deflated at level 1 instead of pydyf's 9:
+    # other bytes, the same files when read back, still marked Flate-encoded.
+    import dossier.document.pdfa as A
+
+    root, out = small
+    monkeypatch.setattr(A, "LARGE_ATTACHMENT_BYTES", 1000)
+    build(root, tmp_path / "fast", use_cache=False, workers=1)
+    fast, usual = PdfReader(tmp_path / "fast/dossier.pdf"), PdfReader(out / "dossier.pdf")
+    assert (tmp_path / "fast/dossier.pdf").read_bytes() != (out / "dossier.pdf").read_bytes()
+    assert set(fast.attachments) == set(usual.attachments)
+    for name in fast.attachments:
+        assert fast.attachments[name] == usual.attachments[name], name
+    files = fast.trailer["/Root"]["/Names"]["/EmbeddedFiles"]["/Names"][1::2]
+    streams = [f.get_object()["/EF"]["/F"].get_object() for f in files]
+    assert all(s["/Filter"] == "/FlateDecode" for s in streams)
+    assert any(len(s.get_data()) >= 1000 for s in streams)

@@ -14,6 +14,8 @@ import hashlib
 import io
 import os
 import re
+import zlib
+from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 from dataclasses import dataclass
 from importlib import metadata
@@ -155,6 +157,47 @@ class ArchiveFinisher:
         _no_interpolation(pdf)
         _associate_attachments(pdf)
         _metadata_date(pdf, self.stamp)
+        _deflate_attachments_once(pdf)  # last: no key may be added to a stream's dictionary after it
+
+
+# Attachments at least this large (a large project's rig files and conditioned curves) are
+# deflated at level 1: about 12 times as fast as pydyf's level 9 on rig data, and about a sixth
+# larger (measured on a 65 MB, 1 million-row rig file: 86 against 7 MB/s, 0.46 against 0.39 of
+# the size). The level depends on the size alone, so the same inputs give the same bytes.
+LARGE_ATTACHMENT_BYTES = 4 << 20
+
+
+def _deflate_attachments_once(pdf) -> None:
+    """Deflate each attached file once, here, in threads (zlib releases the GIL).
+
+    pydyf deflates a stream, at level 9, every time its bytes are asked for, and writing a
+    document asks twice (once for the document's identifier, once for the file). Deflated here
+    with pydyf's settings (level 9 below LARGE_ATTACHMENT_BYTES) and the /Filter key added where
+    pydyf adds it (after the others, before /Length), a file is byte for byte what pydyf writes.
+    """
+    import pydyf
+
+    names = pdf.catalog.get("Names", {})
+    if "EmbeddedFiles" not in names:
+        return
+    tree = _object(pdf, names["EmbeddedFiles"])
+    streams = []
+    for reference in tree["Names"][1::2]:
+        stream = _object(pdf, _object(pdf, reference)["EF"]["F"])
+        if isinstance(stream, pydyf.Stream) and stream.compress and all(isinstance(i, bytes) for i in stream.stream):
+            streams.append(stream)
+
+    def deflate(stream) -> bytes:
+        data = b"\n".join(stream.stream)
+        packer = zlib.compressobj(level=9 if len(data) < LARGE_ATTACHMENT_BYTES else 1)
+        return packer.compress(data) + packer.flush()
+
+    with ThreadPoolExecutor(max(1, min(len(streams), os.cpu_count() or 1))) as threads:
+        packed = list(threads.map(deflate, streams))
+    for stream, data in zip(streams, packed):
+        stream.stream = [data]
+        stream.compress = False
+        stream.extra["Filter"] = "/FlateDecode"
 
 
 def _object(pdf, reference):
