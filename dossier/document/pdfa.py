@@ -177,15 +177,13 @@ def _deflate_attachments_once(pdf) -> None:
     """
     import pydyf
 
-    names = pdf.catalog.get("Names", {})
-    if "EmbeddedFiles" not in names:
+    streams = [
+        stream
+        for _, stream in _attached_files(pdf)
+        if isinstance(stream, pydyf.Stream) and stream.compress and all(isinstance(i, bytes) for i in stream.stream)
+    ]
+    if not streams:
         return
-    tree = _object(pdf, names["EmbeddedFiles"])
-    streams = []
-    for reference in tree["Names"][1::2]:
-        stream = _object(pdf, _object(pdf, reference)["EF"]["F"])
-        if isinstance(stream, pydyf.Stream) and stream.compress and all(isinstance(i, bytes) for i in stream.stream):
-            streams.append(stream)
 
     def deflate(stream) -> bytes:
         data = b"\n".join(stream.stream)
@@ -205,6 +203,16 @@ def _object(pdf, reference):
     if isinstance(reference, (bytes, str)):
         return pdf.objects[int(reference.split()[0])]
     return reference
+
+
+def _attached_files(pdf) -> list:
+    """(file specification, embedded file stream) of every attachment in the catalog's name tree."""
+    names = pdf.catalog.get("Names", {})
+    if "EmbeddedFiles" not in names:
+        return []
+    tree = _object(pdf, names["EmbeddedFiles"])
+    specs = [_object(pdf, reference) for reference in tree["Names"][1::2]]
+    return [(spec, _object(pdf, spec["EF"]["F"])) for spec in specs]
 
 
 def _no_interpolation(pdf) -> None:
@@ -229,21 +237,17 @@ def _associate_attachments(pdf) -> None:
     """
     import pydyf
 
-    names = pdf.catalog.get("Names", {})
-    if "EmbeddedFiles" not in names:
+    if "EmbeddedFiles" not in pdf.catalog.get("Names", {}):
         pdf.catalog.pop("AF", None)
         return
-    tree = _object(pdf, names["EmbeddedFiles"])
     listed = pydyf.Array()
-    for reference in tree["Names"][1::2]:
-        spec = _object(pdf, reference)
+    for spec, stream in _attached_files(pdf):
         file_name = spec["UF"].string
         try:
             original = original_path(spec["Desc"].string, file_name)
         except ValueError:  # not attached by render_pdf (a template's own <link rel="attachment">)
             original = file_name
         spec["AFRelationship"] = "/" + relationship(original)
-        stream = _object(pdf, spec["EF"]["F"])
         stream.extra["Subtype"] = "/" + mime_type(original).replace("/", "#2f")
         listed.append(spec.reference)
     pdf.catalog["AF"] = listed

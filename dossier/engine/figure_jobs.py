@@ -84,8 +84,7 @@ def draw_figures(tasks, style: bytes, cache: Cache, pool: WorkerPool) -> list:
     drawn = [cache.get(key) for key in keys]
     todo = [i for i, fig in enumerate(drawn) if fig is MISSING]
     for i, fig in zip(todo, run_figure_tasks([tasks[i] for i in todo], pool)):
-        place, name, _ = tasks[i]
-        cache.put(keys[i], fig, f"figure {':'.join(map(str, place))} {fig.filename}")
+        cache.put(keys[i], fig, f"figure {':'.join(map(str, tasks[i][0]))} {fig.filename}")
         drawn[i] = fig
     return drawn
 

@@ -84,7 +84,7 @@ def parse_run(raw: bytes, spec: RunSpec, sha256: str | None = None) -> RigRun:
     except UnicodeDecodeError:
         encoding = "latin-1"  # labs' tools often write Windows-1252 headers (e.g. '°')
         text = raw.decode(encoding)
-    channels, lines, rejected = parse_table(text, spec, shown, raw=raw, encoding=encoding, try_fast=False)
+    channels, lines, rejected = parse_table(text, spec, shown)
     return RigRun(spec=spec, sha256=digest, channels=channels, line_numbers=lines, rejected=rejected)
 
 
@@ -146,19 +146,11 @@ def _header_index(line: str, spec: RunSpec, shown: str) -> tuple[list[str], dict
 
 
 def parse_table(
-    text: str,
-    spec: RunSpec,
-    shown: str,
-    raw: bytes | None = None,
-    encoding: str = "utf-8-sig",
-    try_fast: bool = True,
+    text: str, spec: RunSpec, shown: str
 ) -> tuple[dict[str, np.ndarray], np.ndarray, tuple[RejectedRow, ...]]:
-    """Parse rig-file text per `spec`; return internal channels, source line numbers and the rows
-    not kept (empty, or with implausible values), each with its reason.
-
-    `raw` (the file's bytes) lets clean numeric tables take the fast path without copying text;
-    `try_fast` False: the caller has tried it already.
-    """
+    """Parse rig-file text per `spec`, row by row; return internal channels, source line numbers and
+    the rows not kept (empty, or with implausible values), each with its reason. The careful path:
+    every problem is named with its file, line and column (clean tables take :func:`_fast_run`)."""
     if not text.strip():
         raise RigDataError(shown, f"the file is empty; expected a header on line {spec.header_line} and data rows")
     head = text.split("\n", spec.header_line)[: spec.header_line]
@@ -169,24 +161,6 @@ def parse_table(
     header, index = _header_index(head[-1], spec, shown)
 
     first = spec.header_line + spec.skip_after_header  # 0-based index of the first data row
-    fast = (
-        _fast_table(
-            raw if raw is not None else text.encode("utf-8"),
-            encoding if raw is not None else "utf-8",
-            spec,
-            index,
-            len(header),
-            first,
-        )
-        if try_fast
-        else None
-    )
-    if fast is not None:
-        kept, kept_lines, rejected = _keep_plausible(_to_internal(fast[0], spec), fast[1], spec, header, index, ())
-        if not kept_lines.size:
-            raise RigDataError(shown, f"has no usable data rows ({len(rejected)} rejected: {rejected[0].reason})")
-        _check_plausible(kept, kept_lines, spec, shown)
-        return kept, kept_lines, rejected
     # One row per physical line (a quote never joins lines), so that every line number is the
     # file's own.
     rows = []
@@ -307,8 +281,6 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
     a finite number. Anything else goes to the careful row-by-row parser, which names the
     file, line and column of the problem.
     """
-    import pandas  # its C reader is several times faster than anything hand-written here
-
     start = 0
     for _ in range(first):  # skip the header and the lines after it, without splitting the file
         nl = raw.find(b"\n", start)
@@ -327,16 +299,12 @@ def _fast_table(raw: bytes, encoding: str, spec: RunSpec, index: dict[str, int],
         return None
     cols = sorted(set(index.values()))
     pieces = _pieces(raw, start, end)
-    if len(pieces) == 1:
-        parts = [_read_piece(pandas, raw, pieces[0][0], pieces[0][1], spec, encoding, n_fields, cols)]
-    else:  # the reader's tokenizer and number conversion release the GIL: one thread a piece
-        with ThreadPoolExecutor(len(pieces)) as threads:
-            parts = list(
-                threads.map(lambda ab: _read_piece(pandas, raw, ab[0], ab[1], spec, encoding, n_fields, cols), pieces)
-            )
+    # The reader's tokenizer and number conversion release the GIL: one thread a piece.
+    with ThreadPoolExecutor(len(pieces)) as threads:
+        parts = list(threads.map(lambda ab: _read_piece(raw, ab[0], ab[1], spec, encoding, n_fields, cols), pieces))
     if any(part is None for part in parts):
         return None
-    columns = {i: parts[0][i] if len(parts) == 1 else np.concatenate([part[i] for part in parts]) for i in cols}
+    columns = parts[0] if len(parts) == 1 else {i: np.concatenate([part[i] for part in parts]) for i in cols}
     n_lines = columns[cols[0]].size  # each piece holds exactly one row per line (checked there)
     line_numbers = np.arange(first + 1, first + 1 + n_lines, dtype=np.int64)
     line_numbers.setflags(write=False)
@@ -359,8 +327,10 @@ def _pieces(raw: bytes, start: int, end: int) -> list[tuple[int, int]]:
     return [(a, b) for a, b in zip(cuts, [*cuts[1:], end]) if b > a]
 
 
-def _read_piece(pandas, raw: bytes, a: int, b: int, spec: RunSpec, encoding: str, n_fields: int, cols: list[int]):
+def _read_piece(raw: bytes, a: int, b: int, spec: RunSpec, encoding: str, n_fields: int, cols: list[int]):
     """The used columns of the lines in `raw[a:b]` (float64), or None if a line is not clean."""
+    import pandas  # its C reader is several times faster than anything hand-written here
+
     piece = raw[a:b]
     n_lines = piece.count(b"\n") + (0 if piece.endswith(b"\n") else 1)
     try:

@@ -87,11 +87,15 @@ def _fx(m: SpecimenModel, x, load, v: Values):
     return _fitted(m, "fx").predict(x, load, values=v["fx"])
 
 
+def _one_or_each(value):
+    """A float, or the array as it is when the model was read with a batch of coefficient sets
+    (one value per set, see :func:`_delta_stderr`)."""
+    return float(value) if np.ndim(value) == 0 else value
+
+
 def _slope(f, h):
-    """Central-difference slope at zero: a float, or one per coefficient set when `f` is read with
-    a batch of coefficient sets (see :func:`_delta_stderr`)."""
-    s = _slopes(f, h)
-    return float(s) if np.ndim(s) == 0 else s
+    """Central-difference slope at zero (one per coefficient set for a batch)."""
+    return _one_or_each(_slopes(f, h))
 
 
 def _slopes(f, h):
@@ -282,8 +286,9 @@ def camber_stiffness(m, load, v):
     if not any(c.status == "fitted" and c.name in ("pVy3", "pVy4", "pHy3", "pKy3") for c in m.fy.coefficients):
         return None  # no cambered data: camber dependence held at its default
     h, at = 1e-3, m.fy.camber_deg
-    s = (m.fy.predict(0.0, load, at + h, values=v["fy"]) - m.fy.predict(0.0, load, at - h, values=v["fy"])) / (2 * h)
-    return float(s) if np.ndim(s) == 0 else s
+    return _one_or_each(
+        (m.fy.predict(0.0, load, at + h, values=v["fy"]) - m.fy.predict(0.0, load, at - h, values=v["fy"])) / (2 * h)
+    )
 
 
 def slip_stiffness(m, load, v):
